@@ -1,0 +1,36 @@
+"""chain — analyse tube (valve) preamps written as a stage-level netlist.
+
+House plan (imports flow one way; a module imports only rooms to its left)::
+
+    errors, units → tubes → language → circuit → build → dc → smallsignal
+        → formulas → headroom → analysis → report | plot | diff → cli
+
+* ``language`` turns text into frozen :class:`~chain.language.Design` objects
+  and knows nothing of analysis;
+* ``build`` is the only place that knows how a stage expands into parts;
+* ``dc`` solves the nonlinear operating point (Koren triode model);
+* ``smallsignal`` linearises each triode and computes the response numerically;
+* ``formulas`` is the only room that imports lcapy and sympy;
+* ``report``, ``plot`` and ``diff`` read results and compute no new physics.
+
+The one entry point for the API is :func:`analyze`.
+"""
+
+__version__ = "0.1.0"
+
+__all__ = ["__version__", "analyze", "diff"]
+
+
+def analyze(source, **options):
+    """Analyse a netlist file (path) or an already parsed Design; see
+    :func:`chain.analysis.analyze`."""
+    from chain.analysis import analyze as _analyze
+
+    return _analyze(source, **options)
+
+
+def diff(a, b, **options):
+    """Compare two analyses; see :func:`chain.diff.diff`."""
+    from chain.diff import diff as _diff
+
+    return _diff(a, b, **options)

@@ -1,0 +1,126 @@
+"""Run the analysis steps in order and return one frozen :class:`Analysis`.
+
+    netlist → Design → Circuit → DC solve (+ diagnostics) → linearise →
+    response over the band → stage table and overall figures → headroom
+
+Nothing here formats or prints; :meth:`Analysis.table` and
+:meth:`Analysis.plot` are thin delegates to the report and plot layers.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from chain import __version__
+from chain.circuit import Circuit
+from chain.dc import DcSolution, SolveOptions, solve
+from chain.errors import Diagnostic
+from chain.language.design import Design
+from chain.smallsignal import OverallResult, Response, StageRow, linearize, overall, response, stage_table
+
+__all__ = ["Analysis", "analyze", "analyze_design", "sweep_frequencies"]
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Analysis:
+    """Everything `chain` knows about one preamp, in SI units."""
+
+    design: Design
+    circuit: Circuit
+    dc: DcSolution
+    #: the frequency response over the design's band
+    freq: Response
+    #: per-stage figures at the reference frequency, in signal order
+    stages: tuple[StageRow, ...]
+    overall: OverallResult
+    #: large-signal results (:class:`chain.headroom.Headroom`), or None when skipped
+    headroom: object | None
+    #: language warnings and operating-point diagnostics
+    diagnostics: tuple[Diagnostic, ...]
+    #: SHA-256 of the netlist text (hex)
+    netlist_sha256: str
+    options: SolveOptions
+    version: str = __version__
+
+    def response(self) -> Response:
+        """The frequency response (see :class:`chain.smallsignal.Response`)."""
+        return self.freq
+
+    def table(self) -> str:
+        """The per-stage table as plain text."""
+        from chain.report import render
+
+        return render(self, fmt="text", sections=("stages",))
+
+    def plot(self, *, nodes=None, ax=None):
+        """The Bode plot of this analysis (see :func:`chain.plot.bode.bode`)."""
+        from chain.plot.bode import bode
+
+        return bode(self.freq, nodes=nodes, corners=(self.overall.f_low_hz, self.overall.f_high_hz), ax=ax,
+                    title=self.design.title)
+
+
+def sweep_frequencies(design: Design) -> np.ndarray:
+    """The log-spaced analysis frequencies of ``design``'s settings, Hz,
+    with the reference frequency included exactly."""
+    s = design.settings
+    f = np.geomspace(s.band_low_hz, s.band_high_hz, s.points)
+    return np.unique(np.append(f, s.reference_hz))
+
+
+def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic, ...] = (), *,
+                   headroom: bool = True, options: SolveOptions = SolveOptions()) -> Analysis:
+    """Analyse an already built design (see :func:`analyze`)."""
+    dc = solve(circuit, options)
+    ss = linearize(circuit, dc)
+    freq = response(ss, sweep_frequencies(design))
+    s = design.settings
+    rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v)
+    total = overall(freq, s.reference_hz)
+    large = None
+    if headroom:
+        from chain.headroom import headroom as run_headroom
+
+        large = run_headroom(circuit, dc, level_v=s.level_v)
+    text = "\n".join(design.lines)
+    return Analysis(
+        design=design, circuit=circuit, dc=dc, freq=freq, stages=rows, overall=total, headroom=large,
+        diagnostics=tuple(warnings) + tuple(dc.diagnostics),
+        netlist_sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
+        options=options,
+    )
+
+
+def analyze(source: str | Path | Design, *, headroom: bool = True,
+            options: SolveOptions = SolveOptions()) -> Analysis:
+    """Analyse a netlist.
+
+    Parameters
+    ----------
+    source
+        A path to a netlist file, or a :class:`~chain.language.design.Design`.
+    headroom
+        Also run the large-signal headroom analysis (slower).
+    options
+        Numeric settings of the DC solve.
+
+    Raises
+    ------
+    chain.errors.LanguageError
+        bad netlist (located diagnostics).
+    chain.errors.AnalysisError
+        the DC solve did not converge.
+    """
+    from chain.build import build, load
+    from chain.language.validate import check
+
+    if isinstance(source, Design):
+        design, warnings = source, check(source)
+        circuit = build(design)
+    else:
+        design, circuit, warnings = load(source)
+    return analyze_design(design, circuit, warnings, headroom=headroom, options=options)

@@ -1,0 +1,442 @@
+"""Design → Circuit: the one place that knows how stages expand into parts.
+
+:func:`build` turns a validated :class:`~chain.language.design.Design` into a
+flat :class:`~chain.circuit.Circuit` and checks its topology with networkx
+(dangling nodes, nodes and grids with no DC path to ground, loops of
+couplings, stages off the signal path).  Problems are raised together as one
+:class:`~chain.errors.LanguageError`, each located at the netlist line that
+made the part.
+
+Part names: a stage's own parts are ``<stage>.RL`` (plate load), ``.Rk``,
+``.Ck``, ``.Rkc`` (split bypass), ``.Rg`` (grid leak), ``.Rs`` (grid
+stopper); its triode is named after the stage.  Supplies ``supply.<name>``,
+rails ``rail.<name>.R`` / ``.C``, couplings ``couple.<src>-<dst>.C``, network
+parts ``<instance>.<part>`` (a pot gives ``<instance>.<pot>.a`` and ``.b``),
+source parts ``input.*``, the load ``output.load``, strays ``stray.<node>``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import fields, replace
+
+from chain.circuit import (
+    GROUND,
+    Capacitor,
+    Circuit,
+    Inductor,
+    Resistor,
+    StageNodes,
+    Triode,
+    VoltageSource,
+)
+from chain.errors import Diagnostic, LanguageError, Span, error
+from chain.language.design import Design, Pot, Stage
+from chain.tubes import Ratings, TriodeModel, lookup
+
+__all__ = ["build", "load", "load_text", "pot_fraction", "tube_model", "WIPER_OHM"]
+
+#: smallest resistance either side of a pot's wiper, ohm (contact resistance;
+#: keeps a pot turned fully up or down from shorting two nodes together)
+WIPER_OHM = 0.1
+
+_RATING_KEYS = {"vp-max": "vp_max_v", "pd-max": "pd_max_w", "ik-max": "ik_max_a",
+                "vhk-max": "vhk_max_v", "rg-max": "rg_max_ohm"}
+_MODEL_KEYS = {"mu": "mu", "ex": "ex", "kg1": "kg1", "kp": "kp", "kvb": "kvb",
+               "cgk": "cgk_f", "cgp": "cgp_f", "cpk": "cpk_f"}
+
+
+def pot_fraction(taper: str, taper_mid: float, position: float) -> float:
+    """Fraction of a pot's resistance between wiper and the knob-0 end.
+
+    Linear: ``t = x``.  Audio (log) taper with mid-rotation fraction ``p``:
+    the exponential law ``t = (b**x - 1) / (b - 1)`` with ``b = (1/p - 1)**2``,
+    which passes through t(0) = 0, t(1/2) = p, t(1) = 1 (solve
+    ``1/(sqrt(b) + 1) = p``).  A common idealisation of the two-slope
+    tapers sold as "audio"; real parts deviate by several percent.
+
+    Parameters
+    ----------
+    position : float
+        fraction of travel 0..1 (knob setting / 10)
+    """
+    x = min(max(position, 0.0), 1.0)
+    if taper == "linear":
+        return x
+    b = (1.0 / taper_mid - 1.0) ** 2
+    return (b**x - 1.0) / (b - 1.0)
+
+
+def tube_model(design: Design, name: str) -> TriodeModel:
+    """The model for tube ``name``: a netlist definition or a built-in type."""
+    defs = {t.name: t for t in design.tubes}
+    if name not in defs:
+        return lookup(name)
+    t = defs[name]
+    params = dict(t.params)
+    if t.base is not None:
+        base = tube_model(design, t.base) if t.base in defs else lookup(t.base)
+    else:
+        template = lookup("12AX7")
+        none_ratings = Ratings(**{f.name: (None if f.name != "source" else "netlist")
+                                  for f in fields(Ratings)})
+        base = replace(template, cgk_f=0.0, cgp_f=0.0, cpk_f=0.0, ratings=none_ratings, aliases=())
+    model_changes = {_MODEL_KEYS[k]: v for k, v in params.items() if k in _MODEL_KEYS}
+    rating_changes = {_RATING_KEYS[k]: v for k, v in params.items() if k in _RATING_KEYS}
+    ratings = replace(base.ratings, **rating_changes) if rating_changes else base.ratings
+    src = f"defined in {design.path} line {t.span.line}" + (f", starting from {t.base}" if t.base else "")
+    return replace(base, name=t.name, ratings=ratings, source=src, aliases=(), **model_changes)
+
+
+class _Nodes:
+    """Union-find over node names; ground and rails always stay roots."""
+
+    def __init__(self, fixed: set[str]):
+        self.parent: dict[str, str] = {}
+        self.fixed = fixed
+
+    def find(self, n: str) -> str:
+        while self.parent.get(n, n) != n:
+            n = self.parent[n]
+        return n
+
+    def join(self, keep: str, other: str) -> None:
+        a, b = self.find(keep), self.find(other)
+        if a == b:
+            return
+        if b in self.fixed and a not in self.fixed:
+            a, b = b, a
+        self.parent[b] = a
+
+
+class _Expander:
+    def __init__(self, design: Design):
+        self.d = design
+        self.problems: list[Diagnostic] = []
+        self.res: list[Resistor] = []
+        self.caps: list[Capacitor] = []
+        self.inds: list[Inductor] = []
+        self.srcs: list[VoltageSource] = []
+        self.tris: list[Triode] = []
+        self.origins: dict[str, Span] = {}
+        rails = {s.name for s in design.supplies} | {r.name for r in design.rails}
+        self.nodes = _Nodes(rails | {GROUND})
+        #: stage → terminal → node
+        self.terminals: dict[str, dict[str, str]] = {}
+
+    def span(self, span: Span) -> Span:
+        if span.line > 0 and not span.text and span.line <= len(self.d.lines):
+            return replace(span, text=self.d.lines[span.line - 1])
+        return span
+
+    def err(self, code: str, message: str, span: Span | None, hint: str = "", subject: str = ""):
+        self.problems.append(error(code, message, self.span(span) if span else None, hint, subject))
+
+    def add(self, part, span: Span):
+        bucket = {Resistor: self.res, Capacitor: self.caps, Inductor: self.inds,
+                  VoltageSource: self.srcs, Triode: self.tris}[type(part)]
+        bucket.append(part)
+        self.origins[part.name] = span
+
+    # -- supplies ---------------------------------------------------------------
+    def supplies(self):
+        for s in self.d.supplies:
+            if s.impedance_ohm > 0:
+                raw = f"{s.name}.raw"
+                self.add(VoltageSource(f"supply.{s.name}", raw, GROUND, s.volts, "supply"), s.span)
+                self.add(Resistor(f"supply.{s.name}.R", raw, s.name, s.impedance_ohm), s.span)
+            else:
+                self.add(VoltageSource(f"supply.{s.name}", s.name, GROUND, s.volts, "supply"), s.span)
+        for r in self.d.rails:
+            self.add(Resistor(f"rail.{r.name}.R", r.feed, r.name, r.drop_ohm), r.span)
+            if r.decouple_f is not None:
+                self.add(Capacitor(f"rail.{r.name}.C", r.name, GROUND, r.decouple_f, r.decouple_rated_v), r.span)
+
+    # -- stages -----------------------------------------------------------------
+    def stage(self, s: Stage) -> StageNodes:
+        n = s.name
+        sp = s.spans
+        plate = f"{n}.plate" if s.plate_load_ohm is not None else s.rail
+        if s.plate_load_ohm is not None:
+            self.add(Resistor(f"{n}.RL", s.rail, plate, s.plate_load_ohm), sp.get("plate", s.span))
+        cathode = GROUND
+        if s.cathode is not None:
+            cathode = f"{n}.cathode"
+            cs = sp.get("cathode", s.span)
+            self.add(Resistor(f"{n}.Rk", cathode, GROUND, s.cathode.r_ohm), cs)
+            if s.cathode.bypass_f is not None:
+                top = cathode
+                if s.cathode.bypass_series_ohm is not None:
+                    top = f"{n}.kb"
+                    self.add(Resistor(f"{n}.Rkc", cathode, top, s.cathode.bypass_series_ohm), cs)
+                self.add(Capacitor(f"{n}.Ck", top, GROUND, s.cathode.bypass_f, s.cathode.bypass_rated_v), cs)
+        if s.grid_ground:
+            grid = inp = GROUND
+        else:
+            inp = f"{n}.in"
+            grid = f"{n}.grid" if s.grid_stopper_ohm is not None else inp
+            if s.grid_stopper_ohm is not None:
+                self.add(Resistor(f"{n}.Rs", inp, grid, s.grid_stopper_ohm), sp.get("grid_stopper", s.span))
+            if s.grid_leak_ohm is not None:
+                self.add(Resistor(f"{n}.Rg", inp, GROUND, s.grid_leak_ohm), sp.get("grid_leak", s.span))
+        heater = s.heater_v if s.heater_v is not None else self.d.settings.heater_v
+        try:
+            model = tube_model(self.d, s.tube)
+        except KeyError:
+            self.err("E206", f"unknown tube type '{s.tube}'", s.span)
+            model = lookup("12AX7")
+        self.add(Triode(n, plate, grid, cathode, model, heater), s.span)
+        self.terminals[n] = {"plate": plate, "grid": grid, "cathode": cathode, "in": inp}
+        signal_in = cathode if s.kind == "common-grid" else inp
+        signal_out = cathode if s.kind == "cathode-follower" else plate
+        return StageNodes(n, s.kind, model.name, signal_in, signal_out, n, s.rail)
+
+    # -- networks ---------------------------------------------------------------
+    def resolve(self, name: str, instance: str | None, ports: dict[str, str], span: Span) -> str:
+        if name in ports:
+            return ports[name]
+        if name == GROUND or name in self.nodes.fixed:
+            return name
+        if "." in name:
+            head, tail = name.split(".", 1)
+            if head in self.terminals:
+                return self.terminals[head][tail]
+            return name
+        if instance is None:
+            self.err("E211", f"unknown node '{name}'", span)
+            return name
+        return f"{instance}.{name}"
+
+    def network(self, net, instance: str, ports: dict[str, str]):
+        for p in net.parts:
+            if isinstance(p, Pot):
+                a = self.resolve(p.a, instance, ports, p.span)
+                w = self.resolve(p.wiper, instance, ports, p.span)
+                b = self.resolve(p.b, instance, ports, p.span)
+                t = pot_fraction(p.taper, p.taper_mid, p.position)
+                # a pot wired as a variable resistor (wiper tied to one end)
+                # has no part across the tied section
+                if a != w:
+                    self.add(Resistor(f"{instance}.{p.name}.a", a, w, max(p.value * (1.0 - t), WIPER_OHM)), p.span)
+                if w != b:
+                    self.add(Resistor(f"{instance}.{p.name}.b", w, b, max(p.value * t, WIPER_OHM)), p.span)
+                continue
+            a = self.resolve(p.a, instance, ports, p.span)
+            b = self.resolve(p.b, instance, ports, p.span)
+            name = f"{instance}.{p.name}"
+            if p.kind == "resistor":
+                self.add(Resistor(name, a, b, p.value), p.span)
+            elif p.kind == "capacitor":
+                self.add(Capacitor(name, a, b, p.value, p.rated_v), p.span)
+            else:
+                self.add(Inductor(name, a, b, p.value), p.span)
+
+
+def build(design: Design) -> Circuit:
+    """Expand ``design`` into a Circuit and check its topology.
+
+    Raises
+    ------
+    LanguageError
+        with every topology problem found (codes E3xx), located at the
+        netlist lines that made the parts involved.
+    """
+    x = _Expander(design)
+    x.supplies()
+    stage_nodes = {s.name: x.stage(s) for s in design.stages}
+    order = _signal_order(design, x)
+    nets = {n.name: n for n in design.networks}
+
+    output_node: str | None = None
+    couplings: dict[str, tuple[str, str]] = {}
+    for c in design.couplings:
+        src = stage_nodes[c.src].output
+        if c.dst == "output":
+            dst = "output"
+        else:
+            dst = stage_nodes[c.dst].input
+        if c.kind == "cap":
+            name = f"couple.{c.src}-{c.dst}.C"
+            x.add(Capacitor(name, src, dst, c.cap_f, c.rated_v), c.span)
+            couplings[c.label] = (src, dst)
+        elif c.kind == "direct":
+            x.nodes.join(src, dst)
+            dst = src
+        else:
+            x.network(nets[c.network], c.label, {nets[c.network].ports[0]: src, nets[c.network].ports[1]: dst})
+            couplings[c.label] = (src, dst)
+        if c.dst == "output":
+            output_node = dst
+    for net in design.networks:
+        if not net.ports:
+            x.network(net, net.name, {})
+
+    src = design.source
+    first_in = stage_nodes[src.into].input
+    emf = first_in if src.kind == "ideal" or (src.kind == "resistance" and src.r_ohm == 0) else "input.emf"
+    x.add(VoltageSource("input", emf, GROUND, 0.0, "signal"), src.span)
+    if src.kind == "resistance" and src.r_ohm > 0:
+        x.add(Resistor("input.R", emf, first_in, src.r_ohm), src.span)
+    elif src.kind == "pickup":
+        x.add(Resistor("input.Rw", emf, "input.w", src.r_ohm), src.span)
+        x.add(Inductor("input.L", "input.w", first_in, src.l_h), src.span)
+        if src.c_f > 0:
+            x.add(Capacitor("input.C", first_in, GROUND, src.c_f), src.span)
+        if src.cable_f > 0:
+            x.add(Capacitor("input.Ccable", first_in, GROUND, src.cable_f), src.span)
+
+    out = design.output
+    if out.node is not None:
+        if out.node in stage_nodes:
+            output_node = stage_nodes[out.node].output
+        else:
+            output_node = x.resolve(out.node, None, {}, out.span)
+    x.add(Resistor("output.load", output_node, GROUND, out.load_ohm), out.span)
+    for st in design.strays:
+        node = stage_nodes[st.node].output if st.node in stage_nodes else x.resolve(st.node, None, {}, st.span)
+        if st.farads > 0:
+            x.add(Capacitor(f"stray.{st.node}", node, GROUND, st.farads), st.span)
+
+    if x.problems:
+        raise LanguageError(x.problems)
+    circuit = _renamed(design, x, [stage_nodes[n] for n in order], first_in, output_node, couplings)
+    problems = check_topology(circuit, design)
+    if problems:
+        raise LanguageError(problems)
+    return circuit
+
+
+def _signal_order(design: Design, x: _Expander) -> list[str]:
+    """Stages in signal order from the input along the couplings."""
+    import networkx as nx
+
+    g = nx.DiGraph()
+    g.add_nodes_from(s.name for s in design.stages)
+    for c in design.couplings:
+        g.add_edge(c.src, c.dst, span=c.span, kind=c.kind)
+    direct = nx.DiGraph([(c.src, c.dst) for c in design.couplings if c.kind == "direct"])
+    for cycle in nx.simple_cycles(direct):
+        first = next(c for c in design.couplings if c.kind == "direct" and c.src == cycle[0])
+        x.err("E315", "loop of direct couplings: " + " -> ".join(cycle + [cycle[0]]), first.span,
+              "a direct coupling passes DC; a loop of them has no defined operating point")
+    try:
+        cycle = nx.find_cycle(g)
+    except nx.NetworkXNoCycle:
+        cycle = None
+    if cycle and not x.problems:
+        first = g.edges[cycle[0][0], cycle[0][1]]["span"]
+        x.err("E317", "the couplings form a loop: " + " -> ".join(e[0] for e in cycle) + f" -> {cycle[0][0]}",
+              first, "write feedback as a network naming stage terminals, not as a coupling")
+    start = design.source.into
+    reached = set(nx.descendants(g, start)) | {start} if start in g else set()
+    for s in design.stages:
+        if s.name not in reached:
+            x.err("E316", f"stage '{s.name}' is not on the signal path from the input", s.span,
+                  f"couple it: 'couple <stage> -> {s.name} cap 22n'", s.name)
+    if cycle:
+        return [s.name for s in design.stages]
+    sub = g.subgraph(reached)
+    return [n for n in nx.topological_sort(sub) if n != "output"]
+
+
+def _renamed(design, x: _Expander, stages, input_node, output_node, couplings) -> Circuit:
+    f = x.nodes.find
+    res = tuple(replace(r, a=f(r.a), b=f(r.b)) for r in x.res)
+    caps = tuple(replace(c, a=f(c.a), b=f(c.b)) for c in x.caps)
+    inds = tuple(replace(i, a=f(i.a), b=f(i.b)) for i in x.inds)
+    srcs = tuple(replace(s, pos=f(s.pos), neg=f(s.neg)) for s in x.srcs)
+    tris = tuple(replace(t, plate=f(t.plate), grid=f(t.grid), cathode=f(t.cathode)) for t in x.tris)
+    stage_nodes = tuple(replace(s, input=f(s.input), output=f(s.output), rail=f(s.rail)) for s in stages)
+    rails = tuple(s.name for s in design.supplies) + tuple(r.name for r in design.rails)
+    return Circuit(
+        title=design.title,
+        resistors=res, capacitors=caps, inductors=inds, sources=srcs, triodes=tris,
+        stages=stage_nodes,
+        input_node=f(input_node),
+        output_node=f(output_node),
+        rails=rails,
+        couplings={k: (f(a), f(b)) for k, (a, b) in couplings.items()},
+        origins=dict(x.origins),
+    )
+
+
+def check_topology(circuit: Circuit, design: Design) -> list[Diagnostic]:
+    """Dangling nodes and nodes (grids above all) with no DC path to ground.
+
+    The DC graph joins nodes through resistors, inductors and voltage
+    sources (a supply is a DC path to ground); capacitors are open and a
+    triode passes no DC from its grid.
+    """
+    import networkx as nx
+
+    def located(part_name: str) -> Span | None:
+        sp = circuit.origins.get(part_name)
+        if sp is None or sp.line <= 0:
+            return None
+        return replace(sp, text=design.lines[sp.line - 1]) if not sp.text and sp.line <= len(design.lines) else sp
+
+    problems: list[Diagnostic] = []
+    touches: dict[str, list[str]] = {}
+    dc = nx.Graph()
+    dc.add_node(GROUND)
+    for part in (*circuit.resistors, *circuit.inductors):
+        dc.add_edge(part.a, part.b)
+    for c in circuit.capacitors:
+        dc.add_nodes_from((c.a, c.b))
+    for s in circuit.sources:
+        dc.add_edge(s.pos, s.neg)
+    for t in circuit.triodes:
+        dc.add_nodes_from((t.plate, t.grid, t.cathode))
+    for part in (*circuit.resistors, *circuit.inductors, *circuit.capacitors):
+        touches.setdefault(part.a, []).append(part.name)
+        touches.setdefault(part.b, []).append(part.name)
+    for s in circuit.sources:
+        touches.setdefault(s.pos, []).append(s.name)
+        touches.setdefault(s.neg, []).append(s.name)
+    for t in circuit.triodes:
+        for node in (t.plate, t.grid, t.cathode):
+            touches.setdefault(node, []).append(t.name)
+
+    for node, parts in touches.items():
+        if node != GROUND and len(parts) == 1:
+            problems.append(error("E312", f"node '{node}' is connected to '{parts[0]}' only (dangling)",
+                                  located(parts[0]), "connect the other end, or remove the part"))
+    grids = {t.grid: t.name for t in circuit.triodes}
+    for component in nx.connected_components(dc):
+        if GROUND in component:
+            continue
+        grid_nodes = sorted(n for n in component if n in grids)
+        if grid_nodes:
+            stage = grids[grid_nodes[0]]
+            problems.append(error("E314", f"the grid of stage '{stage}' has no DC path to ground",
+                                  located(stage), f"add a grid leak: 'grid leak 1M' under stage {stage}", stage))
+            continue
+        node = sorted(component)[0]
+        if all(len(touches.get(n, [])) <= 1 for n in component):
+            continue  # already reported as dangling
+        problems.append(error("E313", f"node '{node}' has no DC path to ground (it connects only through capacitors)",
+                              located(touches[node][0]), "add a resistor to ground or to a rail"))
+    return problems
+
+
+def load(path) -> tuple[Design, Circuit, tuple[Diagnostic, ...]]:
+    """Parse, validate and build the netlist file at ``path``.
+
+    Returns the Design, its Circuit and the language warnings.
+    """
+    from chain.language import parse_file
+
+    return _loaded(parse_file(path))
+
+
+def load_text(text: str, source: str = "<string>") -> tuple[Design, Circuit, tuple[Diagnostic, ...]]:
+    """As :func:`load`, from netlist text."""
+    from chain.language import parse_text
+
+    return _loaded(parse_text(text, source))
+
+
+def _loaded(design: Design):
+    from chain.language.validate import check
+
+    warnings = check(design)
+    return design, build(design), warnings

@@ -1,0 +1,197 @@
+"""The `chain` command line: argument parsing, exit codes, error display.
+
+Exit status: 0 success; 1 ``diff``/``compare`` found differences beyond the
+tolerance; 2 bad input (a message naming file, line and column); 3 an
+internal error (a bug in chain: the message says so).
+
+Heavy modules (matplotlib, lcapy, sympy) are imported inside the commands
+that use them, so ``chain check`` starts fast.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+from pathlib import Path
+from typing import Sequence
+
+from chain import __version__
+from chain.errors import ChainError, Diagnostic
+
+__all__ = ["main", "run"]
+
+SAFETY = ("Safety: tube amplifiers hold lethal voltages, also after switch-off; these numbers are model "
+          "estimates, not measurements. Work on live equipment only if qualified, under local electrical codes.")
+
+
+class UsageError(Exception):
+    """A command-line mistake that argparse cannot see (exit 2)."""
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="chain",
+        description="Analyse a tube (valve) guitar or bass preamp written as a stage-level netlist: "
+                    "operating points, gains, frequency response, headroom; compare voicings.",
+        epilog=SAFETY,
+    )
+    p.add_argument("--version", action="version", version=f"chain {__version__}")
+    p.add_argument("--traceback", action="store_true", help="show Python tracebacks (for developers)")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", required=True)
+
+    c = sub.add_parser("check", help="parse and validate netlists; print a summary of each",
+                       description="Parse and validate each netlist and print its stages in signal order, "
+                                   "networks and rails. Exit 2 on the first file with errors (all files are checked).")
+    c.add_argument("files", nargs="+", metavar="FILE", help="netlist file(s)")
+
+    b = sub.add_parser("bias", help="DC operating point of every stage, with ratings warnings",
+                       description="Solve the DC operating point of the whole chain and print Vp, Vg, Vk, Ip, "
+                                   "dissipation, gm, rp and mu per stage, the rails and the diagnostics.")
+    b.add_argument("file", metavar="FILE")
+    b.add_argument("--plot", metavar="PATH", help="draw each stage's plate characteristics with its load line "
+                   "and operating point; PATH ends in .png or .svg (one file per stage: PATH with -STAGE added)")
+
+    r = sub.add_parser("report", help="the full analysis: stage table, response, corners, headroom",
+                       description="Analyse the netlist and print the report.")
+    r.add_argument("file", metavar="FILE")
+    r.add_argument("--format", choices=("text", "markdown", "json"), default="text")
+    r.add_argument("--output", metavar="PATH", help="write the report here instead of standard output")
+    r.add_argument("--plot", metavar="PATH", help="also draw the Bode plot to PATH (.png or .svg)")
+    r.add_argument("--no-headroom", action="store_true", help="skip the large-signal headroom analysis")
+
+    pl = sub.add_parser("plot", help="draw the Bode plot (magnitude and phase) to PNG or SVG",
+                        description="Draw the frequency response from the input to the output, corners marked.")
+    pl.add_argument("file", metavar="FILE")
+    pl.add_argument("--output", "-o", metavar="PATH", help="PNG or SVG file (default: FILE with .png)")
+    pl.add_argument("--stages", action="store_true", help="also draw every stage's output node")
+
+    f = sub.add_parser("formulas", help="closed-form gain and impedances of each stage (symbolic)",
+                       description="Print each stage's gain, input and output impedance as formulas in its "
+                                   "own parts, and with the numbers at its operating point.")
+    f.add_argument("file", metavar="FILE")
+    f.add_argument("stage", nargs="?", metavar="STAGE", help="only this stage")
+    f.add_argument("--latex", action="store_true", help="print LaTeX instead of plain text")
+
+    h = sub.add_parser("headroom", help="where each stage clips, which first, and how it distorts",
+                       description="Large-signal transfer curves at mid-band: clipping points per stage, "
+                                   "the first stage to clip, and the harmonic spectrum at the input level.")
+    h.add_argument("file", metavar="FILE")
+    h.add_argument("--level", metavar="VOLTS", help="input level, peak (e.g. 150mV); default: the netlist's")
+    h.add_argument("--plot", metavar="PATH", help="draw transfer curves and spectra to PATH (.png or .svg)")
+
+    d = sub.add_parser("diff", help="what a part change moved: two netlists or two JSON reports",
+                       description="Compare two voicings. Exit 0 when nothing differs beyond the tolerance, "
+                                   "1 when something does, 2 on error.")
+    d.add_argument("a", metavar="A")
+    d.add_argument("b", metavar="B")
+    d.add_argument("--tolerance-db", type=float, default=0.05, metavar="DB",
+                   help="smallest gain change reported, dB (default 0.05)")
+    d.add_argument("--tolerance-pct", type=float, default=0.5, metavar="PCT",
+                   help="smallest impedance, current or voltage change reported, %% (default 0.5)")
+    d.add_argument("--plot", metavar="PATH", help="overlay both responses with their difference, .png or .svg")
+    d.add_argument("--format", choices=("text", "json"), default="text")
+
+    cm = sub.add_parser("compare", help="several voicings side by side",
+                        description="Tabulate the key numbers of several netlists side by side; exit 1 "
+                                    "if they differ.")
+    cm.add_argument("files", nargs="+", metavar="FILE")
+    cm.add_argument("--plot", metavar="PATH", help="overlay all responses, .png or .svg")
+    return p
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit status."""
+    parser = _parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse exits 2 on usage errors, 0 on --help
+        return int(exc.code or 0)
+    try:
+        return _COMMANDS[args.command](args)
+    except ChainError as exc:
+        if args.traceback:
+            raise
+        _print_diagnostics(exc.diagnostics)
+        return 2
+    except UsageError as exc:
+        if args.traceback:
+            raise
+        print(f"chain: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        return 130
+    except Exception as exc:  # an internal error: say so, never a bare traceback
+        if args.traceback:
+            raise
+        print(f"chain: internal error ({type(exc).__name__}: {exc}). This is a bug in chain; "
+              "run again with --traceback and report it.", file=sys.stderr)
+        return 3
+
+
+def run() -> None:
+    """Console-script entry point."""
+    sys.exit(main())
+
+
+def _print_diagnostics(diagnostics: Sequence[Diagnostic]) -> None:
+    errors = [d for d in diagnostics if d.severity == "error"]
+    for d in diagnostics:
+        print(d.render(), file=sys.stderr)
+    if len(errors) > 1:
+        print(f"{len(errors)} errors", file=sys.stderr)
+
+
+def write_atomically(path: str | os.PathLike, data: bytes | str) -> None:
+    """Write ``data`` to ``path`` through a temporary file in the same folder,
+    so that a failure never leaves a half-written file behind."""
+    target = Path(path)
+    if not target.parent.exists():
+        raise UsageError(f"cannot write {path}: folder {target.parent} does not exist")
+    raw = data.encode("utf-8") if isinstance(data, str) else data
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", dir=target.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(raw)
+        os.replace(tmp, target)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def _figure_path(path: str) -> str:
+    if Path(path).suffix.lower() not in (".png", ".svg"):
+        raise UsageError(f"plot file must end in .png or .svg, not '{path}'")
+    return path
+
+
+# --------------------------------------------------------------------------- commands
+
+
+def _cmd_check(args) -> int:
+    from chain.build import load
+    from chain.report.summary import check_summary
+
+    status = 0
+    for path in args.files:
+        try:
+            design, circuit, warnings = load(path)
+        except ChainError as exc:
+            _print_diagnostics(exc.diagnostics)
+            status = 2
+            continue
+        print(check_summary(design, circuit))
+        for w in warnings:
+            print(w.render())
+    return status
+
+
+_COMMANDS = {
+    "check": _cmd_check,
+}
+
+
+if __name__ == "__main__":
+    run()

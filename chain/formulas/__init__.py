@@ -1,0 +1,41 @@
+"""Closed-form small-signal formulas per stage, and a flat reference solve.
+
+The only room of `chain` that uses lcapy and sympy, and only inside the
+functions that need them: importing this package loads neither.
+
+* :func:`stage_parts` — one stage's :class:`StageParts` from a Circuit and
+  its DC solution;
+* :func:`stage_netlist` — the stage's small-signal model as lcapy netlist
+  text (pure string building);
+* :func:`stage_formulas` — gain, input and output impedance solved by lcapy:
+  symbolic mid-band and s-domain forms in the stage's own symbols, the full
+  numeric model with interelectrode capacitances, plain text and LaTeX;
+* :func:`flat_netlist`, :func:`flat_solve`, :func:`flat_transfer` — the
+  whole chain as one lcapy netlist, solved as an independent reference for
+  :mod:`chain.smallsignal`.
+
+lcapy and sympy failures are raised as :class:`~chain.errors.FormulaError`
+carrying the generated netlist.
+"""
+
+from chain.formulas.flat import FlatSolution, flat_solve, flat_transfer
+from chain.formulas.netlist import SYMBOLS, flat_model, flat_netlist, stage_netlist
+from chain.formulas.parts import KINDS, StageParts, stage_parts
+from chain.formulas.stage import QUANTITIES, Formula, StageFormulas, stage_formulas
+
+__all__ = [
+    "KINDS",
+    "QUANTITIES",
+    "SYMBOLS",
+    "StageParts",
+    "stage_parts",
+    "stage_netlist",
+    "Formula",
+    "StageFormulas",
+    "stage_formulas",
+    "flat_netlist",
+    "flat_model",
+    "FlatSolution",
+    "flat_solve",
+    "flat_transfer",
+]

@@ -1,0 +1,275 @@
+"""The plain, immutable description a netlist parses into.
+
+Nothing here knows the text syntax (that is :mod:`chain.language.parser`) or
+any analysis.  Values are floats in SI base units (ohm, F, H, V, Hz); pot
+positions are fractions of travel 0..1.  Every object carries the
+:class:`~chain.errors.Span` of the line it came from, excluded from equality so
+that two netlists that differ only in layout and comments compare equal.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+from chain.errors import Span
+
+__all__ = [
+    "STAGE_KINDS",
+    "ANALYSED_KINDS",
+    "TERMINALS",
+    "Settings",
+    "Supply",
+    "Rail",
+    "TubeDef",
+    "Cathode",
+    "Stage",
+    "Part",
+    "Pot",
+    "Network",
+    "Coupling",
+    "Source",
+    "Output",
+    "Stray",
+    "Design",
+]
+
+#: every stage configuration the grammar knows
+STAGE_KINDS = ("common-cathode", "cathode-follower", "common-grid", "cathodyne", "long-tailed-pair")
+#: the configurations the analysis handles today (two-triode kinds parse but are refused)
+ANALYSED_KINDS = ("common-cathode", "cathode-follower", "common-grid")
+#: stage terminals a network may name as ``STAGE.terminal``
+TERMINALS = ("plate", "grid", "cathode", "in")
+
+_NOWHERE = Span("<none>", 0, 0)
+
+
+def _span() -> Span:
+    return field(default=_NOWHERE, compare=False, repr=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Settings:
+    """Analysis settings with their defaults."""
+
+    #: frequency at which gains and impedances are tabulated, Hz
+    reference_hz: float = 1000.0
+    #: lower and upper end of the sweep, Hz
+    band_low_hz: float = 10.0
+    band_high_hz: float = 100e3
+    #: number of log-spaced sweep points
+    points: int = 500
+    #: input signal level, volts peak
+    level_v: float = 0.1
+    #: heater potential relative to ground, V (for the heater–cathode check)
+    heater_v: float = 0.0
+
+
+@dataclass(frozen=True, slots=True)
+class Supply:
+    """The raw DC supply: an ideal source behind an optional output impedance."""
+
+    name: str
+    volts: float
+    impedance_ohm: float = 0.0
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class Rail:
+    """A rail fed from ``feed`` (a supply or another rail) through a dropping
+    resistor, decoupled to ground by a capacitor."""
+
+    name: str
+    feed: str
+    drop_ohm: float
+    decouple_f: float | None = None
+    decouple_rated_v: float | None = None
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class TubeDef:
+    """A tube model defined in the netlist: a base type (or none) plus
+    parameter overrides, ``(key, value)`` pairs in SI units."""
+
+    name: str
+    base: str | None
+    params: tuple[tuple[str, float], ...]
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class Cathode:
+    """Cathode network: ``r_ohm`` to ground, optionally bypassed by
+    ``bypass_f``; with ``bypass_series_ohm`` the capacitor has a resistor in
+    series (the split form: the cathode sees Rk ∥ (Rkc + Ck))."""
+
+    r_ohm: float
+    bypass_f: float | None = None
+    bypass_series_ohm: float | None = None
+    bypass_rated_v: float | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class Stage:
+    name: str
+    kind: str
+    tube: str
+    #: plate load resistor, ohm; None for a plate straight on its rail
+    plate_load_ohm: float | None = None
+    #: the supply or rail the plate (load) hangs from
+    rail: str = ""
+    cathode: Cathode | None = None
+    grid_leak_ohm: float | None = None
+    grid_stopper_ohm: float | None = None
+    #: grid tied straight to ground (the usual common-grid stage)
+    grid_ground: bool = False
+    #: heater potential for this tube, V; None = the design's setting
+    heater_v: float | None = None
+    span: Span = _span()
+    #: where each member line was written: "plate", "cathode", "grid_leak", …
+    spans: dict = field(default_factory=dict, compare=False, repr=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Part:
+    """A two-terminal part in a network: ``kind`` is resistor, capacitor or inductor."""
+
+    kind: str
+    name: str
+    a: str
+    b: str
+    value: float
+    rated_v: float | None = None
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class Pot:
+    """A potentiometer: ends ``a`` (the end the wiper reaches at full
+    rotation, knob 10) and ``b`` (knob 0), wiper ``wiper``.
+
+    ``taper`` is ``"linear"`` or ``"audio"``; for audio, ``taper_mid`` is the
+    fraction of resistance between wiper and ``b`` at mid-rotation (0.1 for
+    the usual 10 % audio taper).  ``position`` is the fraction of travel 0..1.
+    """
+
+    name: str
+    a: str
+    wiper: str
+    b: str
+    value: float
+    taper: str
+    taper_mid: float
+    position: float
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class Network:
+    """A named passive network.  With ports (``in`` and ``out``) it is a
+    template attached by ``couple … via NAME``; without ports it is placed
+    as written, its nodes naming stage terminals directly."""
+
+    name: str
+    ports: tuple[str, ...]
+    parts: tuple[Part | Pot, ...]
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class Coupling:
+    """How the signal passes from stage ``src`` to stage ``dst`` (or to
+    ``"output"``): ``kind`` is ``cap``, ``direct`` or ``network``."""
+
+    src: str
+    dst: str
+    kind: str
+    cap_f: float | None = None
+    rated_v: float | None = None
+    network: str | None = None
+    #: the instance name of the attached network (defaults to the network's name)
+    instance: str | None = None
+    span: Span = _span()
+
+    @property
+    def label(self) -> str:
+        if self.kind == "network":
+            return self.instance or self.network or ""
+        return f"{self.src}->{self.dst}"
+
+
+@dataclass(frozen=True, slots=True)
+class Source:
+    """The input signal source, driving stage ``into``.
+
+    ``kind`` is ``ideal``, ``resistance`` (``r_ohm``) or ``pickup``
+    (winding resistance ``r_ohm`` and inductance ``l_h`` in series, its own
+    capacitance ``c_f`` and the cable's ``cable_f`` across the output)."""
+
+    kind: str
+    into: str
+    r_ohm: float = 0.0
+    l_h: float = 0.0
+    c_f: float = 0.0
+    cable_f: float = 0.0
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class Output:
+    """Where the output is taken (a stage name, a stage terminal or a network
+    node; None when a coupling leads to ``output``) and the load there."""
+
+    node: str | None
+    load_ohm: float | None
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class Stray:
+    """Stray capacitance from a node to ground."""
+
+    node: str
+    farads: float
+    span: Span = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class Design:
+    """A whole preamp as written."""
+
+    title: str = ""
+    settings: Settings = Settings()
+    supplies: tuple[Supply, ...] = ()
+    rails: tuple[Rail, ...] = ()
+    tubes: tuple[TubeDef, ...] = ()
+    stages: tuple[Stage, ...] = ()
+    networks: tuple[Network, ...] = ()
+    couplings: tuple[Coupling, ...] = ()
+    source: Source | None = None
+    output: Output | None = None
+    strays: tuple[Stray, ...] = ()
+    #: the file it came from ("<string>" for text)
+    path: str = field(default="<string>", compare=False)
+    #: the lines of the text, for error display
+    lines: tuple[str, ...] = field(default=(), compare=False, repr=False)
+
+    def stage(self, name: str) -> Stage:
+        for s in self.stages:
+            if s.name == name:
+                return s
+        raise KeyError(name)
+
+    def network(self, name: str) -> Network:
+        for n in self.networks:
+            if n.name == name:
+                return n
+        raise KeyError(name)
+
+    def with_stage(self, name: str, **changes) -> "Design":
+        """A new Design with stage ``name``'s fields replaced."""
+        stages = tuple(replace(s, **changes) if s.name == name else s for s in self.stages)
+        if stages == self.stages and not any(s.name == name for s in self.stages):
+            raise KeyError(name)
+        return replace(self, stages=stages)

@@ -1,0 +1,559 @@
+"""Text → :class:`~chain.language.design.Design`.
+
+The netlist is line-oriented.  Each line (with its ``#`` comment removed) is
+parsed on its own by the lark grammar in ``grammar.lark``; indented lines are
+members of the last ``stage`` or ``network`` header above them.  Parsing line
+by line lets one pass collect *every* syntax error of a file, each located by
+file, line and column, before anything is raised.
+
+Entry points: :func:`parse_text` and :func:`parse_file` (nothing is sniffed:
+text is text, a path is a path).  Both validate the result
+(:mod:`chain.language.validate`) and raise :class:`~chain.errors.LanguageError`
+carrying all diagnostics found.
+"""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass, replace
+from functools import lru_cache
+from importlib import resources
+from pathlib import Path
+
+from chain.errors import Diagnostic, LanguageError, Span, error
+from chain.language.design import (
+    Cathode,
+    Coupling,
+    Design,
+    Network,
+    Output,
+    Part,
+    Pot,
+    Rail,
+    Settings,
+    Source,
+    Stage,
+    Stray,
+    Supply,
+    TubeDef,
+)
+from chain.units import QuantityError, parse_quantity
+
+__all__ = ["parse_text", "parse_file", "parse_syntax"]
+
+#: statements allowed at the top level, and inside each kind of block
+TOP_LEVEL = {"title", "set_reference", "set_band", "set_level", "set_points", "set_heater", "supply",
+             "rail", "tube", "stage", "network", "couple", "input", "output", "stray"}
+STAGE_MEMBERS = {"plate_load", "plate_on", "cathode", "grid", "heater"}
+NETWORK_MEMBERS = {"part", "pot"}
+
+#: units expected for each tube parameter key (None: a plain number)
+TUBE_KEYS = {
+    "mu": None, "ex": None, "kg1": None, "kp": None, "kvb": None,
+    "cgk": "F", "cgp": "F", "cpk": "F",
+    "vp-max": "V", "pd-max": "W", "ik-max": "A", "vhk-max": "V", "rg-max": "ohm",
+}
+
+
+@lru_cache(maxsize=1)
+def _lark():
+    from lark import Lark
+
+    text = resources.files("chain.language").joinpath("grammar.lark").read_text(encoding="utf-8")
+    return Lark(text, parser="lalr", lexer="contextual", propagate_positions=True)
+
+
+@lru_cache(maxsize=1)
+def _terminal_words() -> dict[str, str]:
+    """Terminal name → what the user would type, for error messages."""
+    words = {}
+    for t in _lark().terminals:
+        if t.pattern.type == "str":
+            words[t.name] = t.pattern.value
+    words.update({"VALUE": "a value", "NAME": "a name", "TYPE": "a tube type", "KEY": "a parameter name",
+                  "REST": "text", "$END": "end of line"})
+    return words
+
+
+def strip_comment(line: str) -> str:
+    """The line without its ``#`` comment (a ``#`` inside double quotes stays)."""
+    quoted = False
+    for i, ch in enumerate(line):
+        if ch == '"':
+            quoted = not quoted
+        elif ch == "#" and not quoted:
+            return line[:i]
+    return line
+
+
+@dataclass(frozen=True, slots=True)
+class Statement:
+    """One parsed line: ``kind`` (the grammar rule), its ``tree``, its place."""
+
+    kind: str
+    tree: object
+    span: Span
+    indented: bool
+
+
+class _LineErrors(Exception):
+    def __init__(self, diagnostics):
+        self.diagnostics = diagnostics
+
+
+def _expected_names(exc) -> set[str]:
+    from lark.exceptions import UnexpectedCharacters
+
+    if isinstance(exc, UnexpectedCharacters):
+        return set(exc.allowed or ())
+    return set(exc.expected or ())
+
+
+def _syntax_error(exc, body: str, span: Span) -> Diagnostic:
+    """A located E10x diagnostic for lark's exception on the stripped line ``body``.
+
+    The offending *word* (up to white space) is reported, and what was
+    expected is asked of the parser at the start of that word, so that a
+    keyword glued to more letters ("capacitor" where "cap" is allowed) is
+    reported as one wrong word.
+    """
+    from lark.exceptions import UnexpectedEOF, UnexpectedInput
+
+    words = _terminal_words()
+    at_end = isinstance(exc, UnexpectedEOF) or getattr(getattr(exc, "token", None), "type", "") == "$END"
+    indent = span.column - 1
+    if at_end:
+        found, pos = "", len(body)
+        expected_names = _expected_names(exc)
+    else:
+        pos = (getattr(exc, "column", 1) or 1) - 1
+        start = pos
+        while start > 0 and not body[start - 1].isspace():
+            start -= 1
+        stop = pos
+        while stop < len(body) and not body[stop].isspace():
+            stop += 1
+        found, pos = body[start:stop], start
+        try:
+            state = _lark().parse_interactive(body[:start].rstrip())
+            state.exhaust_lexer()
+            expected_names = set(state.accepts())
+        except UnexpectedInput:
+            expected_names = _expected_names(exc)
+    expected = sorted({words.get(name, name.lower()) for name in expected_names})
+    span = replace(span, column=indent + pos + 1)
+    literal = [w for w in expected if not w.startswith(("a ", "an ", "end ", "text"))]
+    hint = ""
+    if found:
+        close = difflib.get_close_matches(found, literal, n=1, cutoff=0.6)
+        if close:
+            hint = f"did you mean '{close[0]}'?"
+    listing = ", ".join(f"'{w}'" if w in literal else w for w in expected) or "nothing more"
+    if not found:
+        return error("E101", f"line ends too early: expected {listing}", span, hint)
+    if expected == ["end of line"]:
+        return error("E102", f"unexpected '{found}' after a complete statement", span, hint)
+    return error("E103", f"unexpected '{found}': expected {listing}", span, hint)
+
+
+def parse_syntax(text: str, source: str = "<string>") -> Design:
+    """Parse ``text`` into a Design, checking syntax only.
+
+    Raises
+    ------
+    LanguageError
+        with every syntax error of the text (codes E1xx).
+    """
+    from lark.exceptions import UnexpectedInput
+
+    lines = text.splitlines()
+    statements: list[Statement] = []
+    diagnostics: list[Diagnostic] = []
+    for number, raw in enumerate(lines, start=1):
+        body = strip_comment(raw)
+        if not body.strip():
+            continue
+        if "\t" in body[: len(body) - len(body.lstrip())]:
+            col = body.index("\t") + 1
+            diagnostics.append(error("E104", "indent with spaces, not tabs", Span(source, number, col, raw)))
+            continue
+        indent = len(body) - len(body.lstrip())
+        span = Span(source, number, indent + 1, raw)
+        try:
+            tree = _lark().parse(body.strip())
+        except UnexpectedInput as exc:
+            diagnostics.append(_syntax_error(exc, body.strip(), span))
+            head = body.split()[0]
+            if indent == 0 and head in ("stage", "network"):
+                # keep the block open so its member lines are still checked
+                # without a cascade of "outside a block" errors
+                statements.append(Statement("broken_" + head, None, span, False))
+            continue
+        rule = tree.children[0]
+        statements.append(Statement(rule.data, rule, span, indent > 0))
+    builder = _Builder(source, tuple(lines))
+    for st in statements:
+        try:
+            builder.add(st)
+        except _LineErrors as exc:
+            diagnostics.extend(exc.diagnostics)
+    if diagnostics:
+        raise LanguageError(diagnostics)
+    return builder.design()
+
+
+def parse_text(text: str, source: str = "<string>") -> Design:
+    """Parse and validate netlist ``text``; ``source`` names it in messages."""
+    from chain.language.validate import check
+
+    design = parse_syntax(text, source)
+    check(design)
+    return design
+
+
+def parse_file(path) -> Design:
+    """Parse and validate the netlist file at ``path``.
+
+    Raises
+    ------
+    LanguageError
+        E100 if the file cannot be read, else as :func:`parse_text`.
+    """
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+        raise LanguageError(error("E100", f"cannot read netlist: {reason}", Span(str(path), 1, 1))) from None
+    return parse_text(text, str(path))
+
+
+# --------------------------------------------------------------------------
+# statements → design objects
+
+
+def _tok(node) -> str:
+    return str(node)
+
+
+def _col(token, span: Span) -> int:
+    return span.column + (getattr(token, "column", 1) or 1) - 1
+
+
+class _Builder:
+    """Collects statements into blocks and design objects."""
+
+    def __init__(self, source: str, lines: tuple[str, ...]):
+        self.source = source
+        self.lines = lines
+        self.title = ""
+        self.settings: dict[str, float] = {}
+        self.supplies: list[Supply] = []
+        self.rails: list[Rail] = []
+        self.tubes: list[TubeDef] = []
+        self.stages: list[dict] = []
+        self.networks: list[dict] = []
+        self.couplings: list[Coupling] = []
+        self.sources: list[Source] = []
+        self.outputs: list[Output] = []
+        self.strays: list[Stray] = []
+        #: the open block: ("stage", dict) or ("network", dict) or None
+        self.block: tuple[str, dict] | None = None
+
+    # -- values ---------------------------------------------------------------
+    def value(self, tree, span: Span, unit: str | None, what: str) -> float:
+        token = tree.children[0]
+        text = str(token)
+        col = _col(token, span)
+        try:
+            return parse_quantity(text, unit)
+        except QuantityError as exc:
+            raise _LineErrors([error("E110", f"bad {what} '{text}': {exc.message}",
+                                     replace(span, column=col + exc.column), exc.hint)]) from None
+
+    def percent(self, tree, span: Span, what: str) -> float:
+        token = tree.children[0]
+        text = str(token)
+        col = _col(token, span)
+        body = text[:-1] if text.endswith("%") else text
+        try:
+            number = float(body)
+        except ValueError:
+            raise _LineErrors([error("E110", f"bad {what} '{text}': write a percentage such as 10%",
+                                     replace(span, column=col))]) from None
+        return number / 100.0 if text.endswith("%") else number
+
+    def at(self, token, span: Span) -> Span:
+        return replace(span, column=_col(token, span))
+
+    # -- dispatch -------------------------------------------------------------
+    def add(self, st: Statement) -> None:
+        kind = st.kind
+        if st.indented:
+            if self.block is None:
+                raise _LineErrors([error("E105", f"indented '{_first_word(st)}' line outside a stage or network block", st.span,
+                                         "remove the indentation, or put it under a 'stage' or 'network' header")])
+            block_kind, _ = self.block
+            allowed = STAGE_MEMBERS if block_kind == "stage" else NETWORK_MEMBERS
+            if kind not in allowed:
+                where = "a stage" if block_kind == "stage" else "a network"
+                raise _LineErrors([error("E106", f"'{_first_word(st)}' does not belong inside {where}", st.span,
+                                         _member_hint(block_kind))])
+            getattr(self, "_" + kind)(st.tree, st.span)
+            return
+        if kind.startswith("broken_"):
+            block = kind[len("broken_"):]
+            self.block = (block, {"name": "?", "parts": []})
+            return
+        if kind not in TOP_LEVEL:
+            raise _LineErrors([error("E107", f"'{_first_word(st)}' must be indented under a "
+                                     f"{'stage' if kind in STAGE_MEMBERS else 'network'} header", st.span)])
+        self.block = None
+        getattr(self, "_" + kind)(st.tree, st.span)
+
+    # -- top level ------------------------------------------------------------
+    def _title(self, tree, span):
+        text = str(tree.children[0]).strip()
+        if len(text) >= 2 and text[0] == text[-1] == '"':
+            text = text[1:-1]
+        self.title = text
+
+    def _set_reference(self, tree, span):
+        self.settings["reference_hz"] = (self.value(tree.children[0], span, "Hz", "reference frequency"), span)
+
+    def _set_band(self, tree, span):
+        lo = self.value(tree.children[0], span, "Hz", "band start")
+        hi = self.value(tree.children[1], span, "Hz", "band end")
+        self.settings["band"] = ((lo, hi), span)
+
+    def _set_level(self, tree, span):
+        self.settings["level_v"] = (self.value(tree.children[0], span, "V", "input level"), span)
+
+    def _set_points(self, tree, span):
+        self.settings["points"] = (self.value(tree.children[0], span, None, "number of points"), span)
+
+    def _set_heater(self, tree, span):
+        self.settings["heater_v"] = (self.value(tree.children[0], span, "V", "heater potential"), span)
+
+    def _supply(self, tree, span):
+        name, volts, *rest = tree.children
+        imp = self.value(rest[0], span, "ohm", "supply impedance") if rest else 0.0
+        self.supplies.append(Supply(str(name), self.value(volts, span, "V", "supply voltage"), imp,
+                                    self.at(name, span)))
+
+    def _rail(self, tree, span):
+        name, feed, drop, *rest = tree.children
+        dec_f = dec_v = None
+        if rest:
+            dec = rest[0]
+            dec_f = self.value(dec.children[0], span, "F", "decoupling capacitor")
+            if len(dec.children) > 1:
+                dec_v = self.value(dec.children[1].children[0], span, "V", "voltage rating")
+        self.rails.append(Rail(str(name), str(feed), self.value(drop, span, "ohm", "dropping resistor"),
+                               dec_f, dec_v, self.at(name, span)))
+
+    def _tube(self, tree, span):
+        children = list(tree.children)
+        name = children.pop(0)
+        base = None
+        if children and not hasattr(children[0], "data"):
+            base = str(children.pop(0))
+        params = []
+        problems = []
+        for p in children:
+            key_tok, val = p.children
+            key = str(key_tok)
+            if key not in TUBE_KEYS:
+                close = difflib.get_close_matches(key, list(TUBE_KEYS), n=1)
+                problems.append(error("E111", f"unknown tube parameter '{key}'", self.at(key_tok, span),
+                                      f"did you mean '{close[0]}'?" if close else
+                                      "known: " + ", ".join(TUBE_KEYS)))
+                continue
+            try:
+                params.append((key, self.value(val, span, TUBE_KEYS[key], f"tube parameter {key}")))
+            except _LineErrors as exc:
+                problems.extend(exc.diagnostics)
+        if problems:
+            raise _LineErrors(problems)
+        self.tubes.append(TubeDef(str(name), base, tuple(params), self.at(name, span)))
+
+    def _stage(self, tree, span):
+        name, kind, tube = tree.children
+        stage = {"name": str(name), "kind": kind.data.replace("_", "-"), "tube": str(tube),
+                 "span": self.at(name, span)}
+        self.stages.append(stage)
+        self.block = ("stage", stage)
+
+    def _network(self, tree, span):
+        name, *ports = tree.children
+        net = {"name": str(name), "ports": tuple(str(p) for p in ports), "parts": [], "span": self.at(name, span)}
+        self.networks.append(net)
+        self.block = ("network", net)
+
+    def _couple(self, tree, span):
+        src, dst, how = tree.children
+        common = dict(src=str(src), dst=str(dst), span=self.at(src, span))
+        if how.data == "via_cap":
+            rated = self.value(how.children[1].children[0], span, "V", "voltage rating") if len(how.children) > 1 else None
+            self.couplings.append(Coupling(kind="cap", cap_f=self.value(how.children[0], span, "F", "coupling capacitor"),
+                                           rated_v=rated, **common))
+        elif how.data == "via_direct":
+            self.couplings.append(Coupling(kind="direct", **common))
+        else:
+            net = str(how.children[0])
+            inst = str(how.children[1]) if len(how.children) > 1 else None
+            self.couplings.append(Coupling(kind="network", network=net, instance=inst, **common))
+
+    def _input(self, tree, span):
+        into, src = tree.children
+        kind = src.data
+        if kind == "ideal":
+            self.sources.append(Source("ideal", str(into), span=self.at(into, span)))
+        elif kind == "resistance":
+            self.sources.append(Source("resistance", str(into), self.value(src.children[0], span, "ohm", "source resistance"),
+                                       span=self.at(into, span)))
+        else:
+            r, l, c, *cable = src.children
+            self.sources.append(Source(
+                "pickup", str(into),
+                r_ohm=self.value(r, span, "ohm", "winding resistance"),
+                l_h=self.value(l, span, "H", "pickup inductance"),
+                c_f=self.value(c, span, "F", "pickup capacitance"),
+                cable_f=self.value(cable[0], span, "F", "cable capacitance") if cable else 0.0,
+                span=self.at(into, span)))
+
+    def _output(self, tree, span):
+        children = list(tree.children)
+        node = str(children.pop(0)) if len(children) == 2 else None
+        self.outputs.append(Output(node, self.value(children[0], span, "ohm", "output load"), span))
+
+    def _stray(self, tree, span):
+        node, val = tree.children
+        self.strays.append(Stray(str(node), self.value(val, span, "F", "stray capacitance"), self.at(node, span)))
+
+    # -- stage members --------------------------------------------------------
+    def _member(self, key: str, value, span: Span) -> None:
+        _, stage = self.block
+        if key in stage:
+            raise _LineErrors([error("E108", f"stage {stage['name']} already has its {key.replace('_', ' ')}", span,
+                                     "give each part once per stage")])
+        stage[key] = value
+        stage.setdefault("spans", {})[key] = span
+
+    def _plate_load(self, tree, span):
+        val, rail = tree.children
+        self._member("plate", (self.value(val, span, "ohm", "plate load"), str(rail)), span)
+
+    def _plate_on(self, tree, span):
+        self._member("plate", (None, str(tree.children[0])), span)
+
+    def _cathode(self, tree, span):
+        r, *rest = tree.children
+        rk = self.value(r, span, "ohm", "cathode resistor")
+        ck = rkc = rated = None
+        if rest:
+            by = rest[0].children
+            ck = self.value(by[0], span, "F", "bypass capacitor")
+            for item in by[1:]:
+                if hasattr(item, "data") and item.data == "rated":
+                    rated = self.value(item.children[0], span, "V", "voltage rating")
+                else:
+                    rkc = self.value(item, span, "ohm", "bypass series resistor")
+        self._member("cathode", Cathode(rk, ck, rkc, rated), span)
+
+    def _grid(self, tree, span):
+        for item in tree.children:
+            if item.data == "grid_leak":
+                self._member("grid_leak", self.value(item.children[0], span, "ohm", "grid leak"), span)
+            elif item.data == "grid_stopper":
+                self._member("grid_stopper", self.value(item.children[0], span, "ohm", "grid stopper"), span)
+            else:
+                self._member("grid_ground", True, span)
+
+    def _heater(self, tree, span):
+        self._member("heater", self.value(tree.children[0], span, "V", "heater potential"), span)
+
+    # -- network members ------------------------------------------------------
+    def _part(self, tree, span):
+        kind_tree, name, a, b, val, *rest = tree.children
+        kind = kind_tree.data
+        unit = {"resistor": "ohm", "capacitor": "F", "inductor": "H"}[kind]
+        rated = None
+        if rest:
+            if kind != "capacitor":
+                raise _LineErrors([error("E109", f"only capacitors take a voltage rating, not a {kind}", span)])
+            rated = self.value(rest[0].children[0], span, "V", "voltage rating")
+        _, net = self.block
+        net["parts"].append(Part(kind, str(name), str(a), str(b), self.value(val, span, unit, kind), rated,
+                                 self.at(name, span)))
+
+    def _pot(self, tree, span):
+        name, a, w, b, val, taper, position = tree.children
+        mid = 0.5
+        if taper.data == "audio":
+            mid = self.percent(taper.children[0], span, "taper") if taper.children else 0.1
+        if position.data == "knob":
+            pos = self.value(position.children[0], span, None, "knob setting") / 10.0
+        else:
+            pos = self.value(position.children[0], span, None, "travel")
+        _, net = self.block
+        net["parts"].append(Pot(str(name), str(a), str(w), str(b), self.value(val, span, "ohm", "pot value"),
+                                taper.data, mid, pos, self.at(name, span)))
+
+    # -- result -----------------------------------------------------------------
+    def design(self) -> Design:
+        problems: list[Diagnostic] = []
+        settings = Settings()
+        s = self.settings
+        kw = {}
+        for key in ("reference_hz", "level_v", "heater_v"):
+            if key in s:
+                kw[key] = s[key][0]
+        if "points" in s:
+            pts, sp = s["points"]
+            if pts != int(pts) or not 10 <= pts <= 100000:
+                problems.append(error("E112", f"number of points must be a whole number from 10 to 100000, not {pts:g}", sp))
+            else:
+                kw["points"] = int(pts)
+        if "band" in s:
+            (lo, hi), sp = s["band"]
+            kw["band_low_hz"], kw["band_high_hz"] = lo, hi
+        settings = replace(settings, **kw)
+        stages = []
+        for st in self.stages:
+            load, rail = st.get("plate", (None, ""))
+            stages.append(Stage(st["name"], st["kind"], st["tube"], load, rail, st.get("cathode"),
+                                st.get("grid_leak"), st.get("grid_stopper"), st.get("grid_ground", False),
+                                st.get("heater"), st["span"], dict(st.get("spans", {}))))
+        networks = tuple(Network(n["name"], n["ports"], tuple(n["parts"]), n["span"]) for n in self.networks)
+        for extra in self.sources[1:]:
+            problems.append(error("E113", "a design has one input; this is a second 'input' line", extra.span))
+        for extra in self.outputs[1:]:
+            problems.append(error("E113", "a design has one output; this is a second 'output' line", extra.span))
+        if problems:
+            raise LanguageError(problems)
+        return Design(
+            title=self.title,
+            settings=settings,
+            supplies=tuple(self.supplies),
+            rails=tuple(self.rails),
+            tubes=tuple(self.tubes),
+            stages=tuple(stages),
+            networks=networks,
+            couplings=tuple(self.couplings),
+            source=self.sources[0] if self.sources else None,
+            output=self.outputs[0] if self.outputs else None,
+            strays=tuple(self.strays),
+            path=self.source,
+            lines=self.lines,
+        )
+
+
+def _first_word(st: Statement) -> str:
+    return st.span.text.split()[0] if st.span.text.split() else st.kind
+
+
+def _member_hint(block_kind: str) -> str:
+    if block_kind == "stage":
+        return "a stage holds 'plate', 'cathode', 'grid' and 'heater' lines"
+    return "a network holds 'resistor', 'capacitor', 'inductor' and 'pot' lines"

@@ -1,0 +1,389 @@
+"""Semantic checks of a Design: names, references and values.
+
+Topology (DC paths, dangling nodes, loops of direct couplings) is checked on
+the expanded circuit by :mod:`chain.build`, where the parts actually exist.
+
+:func:`check` collects every problem and raises one
+:class:`~chain.errors.LanguageError`; it returns the warnings.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+
+from chain.errors import Diagnostic, LanguageError, Span, error, warning
+from chain.language.design import ANALYSED_KINDS, TERMINALS, Design, Pot, Stage
+from chain.tubes import LIBRARY, lookup
+
+__all__ = ["check", "RANGES", "network_node_name"]
+
+#: sensible limits per role, SI units: (low, high, what)
+RANGES = {
+    "supply": (1.0, 1000.0, "supply voltage"),
+    "supply_impedance": (0.0, 100e3, "supply impedance"),
+    "drop": (1.0, 1e6, "dropping resistor"),
+    "decouple": (10e-9, 10e-3, "decoupling capacitor"),
+    "plate_load": (1e3, 10e6, "plate load"),
+    "cathode": (1.0, 1e6, "cathode resistor"),
+    "bypass": (1e-9, 10e-3, "cathode bypass capacitor"),
+    "bypass_series": (1.0, 1e6, "bypass series resistor"),
+    "grid_leak": (1e3, 100e6, "grid leak"),
+    "grid_stopper": (1.0, 10e6, "grid stopper"),
+    "coupling": (1e-12, 100e-6, "coupling capacitor"),
+    "resistor": (0.01, 1e9, "resistor"),
+    "capacitor": (0.1e-12, 10e-3, "capacitor"),
+    "inductor": (1e-9, 1e3, "inductor"),
+    "pot": (100.0, 100e6, "pot"),
+    "source_r": (0.0, 10e6, "source resistance"),
+    "pickup_r": (1.0, 100e3, "pickup winding resistance"),
+    "pickup_l": (1e-3, 100.0, "pickup inductance"),
+    "pickup_c": (0.0, 10e-9, "pickup capacitance"),
+    "cable": (0.0, 100e-9, "cable capacitance"),
+    "load": (100.0, 1e9, "output load"),
+    "stray": (0.0, 10e-9, "stray capacitance"),
+    "reference": (1.0, 1e6, "reference frequency"),
+    "level": (1e-6, 100.0, "input level"),
+    "rated": (1.0, 10e3, "voltage rating"),
+    "heater": (-500.0, 500.0, "heater potential"),
+}
+
+_SI_UNITS = {"supply": "V", "supply_impedance": "Ω", "drop": "Ω", "decouple": "F", "plate_load": "Ω",
+             "cathode": "Ω", "bypass": "F", "bypass_series": "Ω", "grid_leak": "Ω", "grid_stopper": "Ω",
+             "coupling": "F", "resistor": "Ω", "capacitor": "F", "inductor": "H", "pot": "Ω",
+             "source_r": "Ω", "pickup_r": "Ω", "pickup_l": "H", "pickup_c": "F", "cable": "F", "load": "Ω",
+             "stray": "F", "reference": "Hz", "level": "V", "rated": "V", "heater": "V"}
+
+
+def _fmt(value: float, unit: str) -> str:
+    from chain.units import format_si
+
+    return format_si(value, unit)
+
+
+class _Checker:
+    def __init__(self, design: Design):
+        self.d = design
+        self.problems: list[Diagnostic] = []
+        self.warnings: list[Diagnostic] = []
+
+    def err(self, code, message, span, hint="", subject=""):
+        self.problems.append(error(code, message, self._lined(span), hint, subject))
+
+    def warn(self, code, message, span, hint="", subject=""):
+        self.warnings.append(warning(code, message, self._lined(span), hint, subject))
+
+    def _lined(self, span: Span | None) -> Span | None:
+        if span is None or span.line <= 0:
+            return None
+        if not span.text and span.line <= len(self.d.lines):
+            from dataclasses import replace
+
+            return replace(span, text=self.d.lines[span.line - 1])
+        return span
+
+    # -- values ---------------------------------------------------------------
+    def in_range(self, role: str, value: float | None, span: Span, subject: str = "", *, zero_ok=False):
+        if value is None:
+            return
+        lo, hi, what = RANGES[role]
+        unit = _SI_UNITS[role]
+        if not math.isfinite(value):
+            self.err("E301", f"{what} must be a finite number", span, subject=subject)
+        elif value < 0 or (value == 0 and not zero_ok and lo > 0):
+            self.err("E301", f"{what} must be positive, not {_fmt(value, unit)}", span, subject=subject)
+        elif value < lo or value > hi:
+            self.err("E302", f"{what} of {_fmt(value, unit)} is outside the sensible range "
+                     f"{_fmt(lo, unit)} to {_fmt(hi, unit)}", span,
+                     "check the prefix: m is milli, M is mega", subject)
+
+    # -- names ----------------------------------------------------------------
+    def unique(self, items, what):
+        seen: dict[str, Span] = {}
+        for name, span in items:
+            if name in seen:
+                self.err("E201", f"duplicate {what} name '{name}' (first defined on line {seen[name].line})", span)
+            else:
+                seen[name] = span
+
+    def unknown(self, code, what, name, span, known, hint_extra=""):
+        close = difflib.get_close_matches(name, list(known), n=1, cutoff=0.5)
+        hint = f"did you mean '{close[0]}'?" if close else hint_extra
+        self.err(code, f"unknown {what} '{name}'", span, hint)
+
+    def run(self) -> tuple[Diagnostic, ...]:
+        d = self.d
+        stage_names = {s.name for s in d.stages}
+        net_names = {n.name for n in d.networks}
+        rail_names = [s.name for s in d.supplies] + [r.name for r in d.rails]
+        self.unique([(s.name, s.span) for s in d.supplies] + [(r.name, r.span) for r in d.rails]
+                    + [(s.name, s.span) for s in d.stages] + [(n.name, n.span) for n in d.networks], "stage, network or rail")
+        self.unique([(t.name, t.span) for t in d.tubes], "tube")
+        reserved = {"gnd", "output", "input"}
+        for name, span in [(s.name, s.span) for s in d.stages] + [(n.name, n.span) for n in d.networks] + \
+                          [(r, None) for r in rail_names]:
+            if name in reserved:
+                self.err("E202", f"'{name}' is a reserved word and cannot name a stage, network or rail",
+                         span or d.supplies[0].span)
+
+        self.check_settings()
+        self.check_supplies(rail_names)
+        tube_names = self.check_tubes()
+        for s in d.stages:
+            self.check_stage(s, rail_names, tube_names)
+        self.check_networks(stage_names, net_names, rail_names)
+        self.check_couplings(stage_names, net_names)
+        self.check_source_output(stage_names, net_names)
+        for st in d.strays:
+            self.in_range("stray", st.farads, st.span, zero_ok=True)
+            self.check_node_ref(st.node, st.span, stage_names, net_names, rail_names, local=None)
+        if self.problems:
+            raise LanguageError(tuple(self.problems) + tuple(self.warnings))
+        return tuple(self.warnings)
+
+    def check_settings(self):
+        s = self.d.settings
+        nowhere = Span(self.d.path, 0, 0)
+        self.in_range("reference", s.reference_hz, nowhere)
+        self.in_range("level", s.level_v, nowhere)
+        self.in_range("heater", s.heater_v, nowhere, zero_ok=True)
+        if not 0 < s.band_low_hz < s.band_high_hz:
+            self.err("E303", f"the band must run from a lower to a higher frequency, not "
+                     f"{_fmt(s.band_low_hz, 'Hz')} to {_fmt(s.band_high_hz, 'Hz')}", self._setting_span("band"))
+        elif not s.band_low_hz <= s.reference_hz <= s.band_high_hz:
+            self.err("E303", f"reference frequency {_fmt(s.reference_hz, 'Hz')} lies outside the band "
+                     f"{_fmt(s.band_low_hz, 'Hz')} to {_fmt(s.band_high_hz, 'Hz')}", self._setting_span("reference"))
+
+    def _setting_span(self, key: str) -> Span:
+        for i, line in enumerate(self.d.lines, start=1):
+            words = line.split()
+            if len(words) >= 2 and words[0] == "set" and words[1] == key:
+                return Span(self.d.path, i, 1, line)
+        return Span(self.d.path, 0, 0)
+
+    def check_supplies(self, rail_names):
+        d = self.d
+        if not d.supplies:
+            self.err("E203", "no supply: add a line such as 'supply B+ 300V'", Span(d.path, 1, 1))
+        for s in d.supplies:
+            self.in_range("supply", s.volts, s.span)
+            self.in_range("supply_impedance", s.impedance_ohm, s.span, zero_ok=True)
+        feeds = {r.name: r.feed for r in d.rails}
+        for r in d.rails:
+            self.in_range("drop", r.drop_ohm, r.span)
+            self.in_range("decouple", r.decouple_f, r.span)
+            self.in_range("rated", r.decouple_rated_v, r.span)
+            if r.feed not in rail_names:
+                self.unknown("E204", "supply or rail", r.feed, r.span, rail_names)
+        # a loop of rails feeding each other never reaches a supply
+        for r in d.rails:
+            seen, cur = set(), r.name
+            while cur in feeds and cur not in seen:
+                seen.add(cur)
+                cur = feeds[cur]
+            if cur in seen:
+                self.err("E205", f"rail '{r.name}' is fed in a loop and never reaches a supply", r.span)
+
+    def check_tubes(self) -> set[str]:
+        known = set(LIBRARY) | {t.name for t in self.d.tubes}
+        for t in self.d.tubes:
+            if t.base is not None:
+                try:
+                    lookup(t.base)
+                except KeyError:
+                    if t.base not in {u.name for u in self.d.tubes}:
+                        self.unknown("E206", "tube type", t.base, t.span, known)
+            elif {k for k, _ in t.params} < {"mu", "ex", "kg1", "kp", "kvb"} | set():
+                pass
+            if t.base is None:
+                missing = [k for k in ("mu", "ex", "kg1", "kp", "kvb") if k not in dict(t.params)]
+                if missing:
+                    self.err("E207", f"tube '{t.name}' needs the model parameters {', '.join(missing)} "
+                             "(or 'like TYPE' to start from a built-in type)", t.span)
+            for key, value in t.params:
+                if key in ("mu", "ex", "kg1", "kp", "kvb") and not value > 0:
+                    self.err("E301", f"tube parameter {key} must be positive, not {value:g}", t.span)
+        return known
+
+    def check_stage(self, s: Stage, rail_names, tube_names):
+        sp = s.spans
+        if s.kind not in ANALYSED_KINDS:
+            self.err("E208", f"stage '{s.name}': {s.kind} stages are part of the language but not analysed yet",
+                     s.span, "use common-cathode, cathode-follower or common-grid")
+        try:
+            lookup(s.tube)
+        except KeyError:
+            if s.tube not in tube_names:
+                self.unknown("E206", "tube type", s.tube, s.span, tube_names,
+                             "define it with a 'tube' line or use a built-in type")
+        if not s.rail:
+            self.err("E304", f"stage '{s.name}' has no plate line, so its plate has no path to a rail", s.span,
+                     "add 'plate 100k from B+' (or 'plate on B+' for a follower)")
+        elif s.rail not in rail_names:
+            self.unknown("E204", "supply or rail", s.rail, sp.get("plate", s.span), rail_names)
+        if s.plate_load_ohm is None and s.rail and s.kind != "cathode-follower":
+            self.err("E305", f"stage '{s.name}': a {s.kind} stage needs a plate load", sp.get("plate", s.span),
+                     "only a cathode follower may have its plate straight on a rail")
+        self.in_range("plate_load", s.plate_load_ohm, sp.get("plate", s.span), s.name)
+        if s.cathode is not None:
+            cs = sp.get("cathode", s.span)
+            self.in_range("cathode", s.cathode.r_ohm, cs, s.name)
+            self.in_range("bypass", s.cathode.bypass_f, cs, s.name)
+            self.in_range("bypass_series", s.cathode.bypass_series_ohm, cs, s.name)
+            self.in_range("rated", s.cathode.bypass_rated_v, cs, s.name)
+        elif s.kind in ("cathode-follower", "common-grid"):
+            self.err("E306", f"stage '{s.name}': a {s.kind} stage needs a cathode resistor", s.span)
+        self.in_range("grid_leak", s.grid_leak_ohm, sp.get("grid_leak", s.span), s.name)
+        self.in_range("grid_stopper", s.grid_stopper_ohm, sp.get("grid_stopper", s.span), s.name)
+        if s.heater_v is not None:
+            self.in_range("heater", s.heater_v, sp.get("heater", s.span), s.name, zero_ok=True)
+        if s.grid_ground and s.grid_leak_ohm is not None:
+            self.err("E307", f"stage '{s.name}': a grid tied to ground needs no grid leak", sp.get("grid_ground", s.span))
+        if s.grid_ground and s.kind != "common-grid":
+            self.err("E307", f"stage '{s.name}': only a common-grid stage has its grid tied to ground",
+                     sp.get("grid_ground", s.span), "drive the grid through a grid leak instead")
+        if s.kind == "common-grid" and not s.grid_ground and s.grid_leak_ohm is None:
+            self.err("E308", f"stage '{s.name}': the common-grid stage's grid needs 'grid ground' or a grid leak",
+                     s.span)
+
+    def check_node_ref(self, name, span, stage_names, net_names, rail_names, local):
+        """A node written in a network (``local`` = that network's name) or a stray line."""
+        if name == "gnd" or name in rail_names:
+            return
+        if "." in name:
+            head, tail = name.split(".", 1)
+            if head in stage_names:
+                if tail not in TERMINALS:
+                    self.unknown("E209", f"terminal of stage {head}", tail, span, TERMINALS)
+                return
+            if head in net_names or head in self._instances():
+                return
+            self.unknown("E210", "stage or network", head, span, list(stage_names) + list(net_names))
+            return
+        if local is None:
+            self.unknown("E211", "node", name, span, list(rail_names) + ["gnd"],
+                         "name a stage terminal such as V1.plate, a rail, or a network node as net.node")
+
+    def _instances(self):
+        return {c.instance for c in self.d.couplings if c.instance}
+
+    def check_networks(self, stage_names, net_names, rail_names):
+        for n in self.d.networks:
+            if n.ports and len(n.ports) != 2:
+                self.err("E212", f"network '{n.name}' must have an input and an output port", n.span)
+            self.unique([(p.name, p.span) for p in n.parts], f"part in network {n.name}")
+            if not n.parts:
+                self.err("E213", f"network '{n.name}' has no parts", n.span)
+            for p in n.parts:
+                nodes = (p.a, p.wiper, p.b) if isinstance(p, Pot) else (p.a, p.b)
+                for node in nodes:
+                    self.check_node_ref(node, p.span, stage_names, net_names, rail_names, local=n.name)
+                if isinstance(p, Pot):
+                    self.in_range("pot", p.value, p.span)
+                    if not 0.0 <= p.position <= 1.0:
+                        self.err("E309", f"pot '{p.name}' position out of range: knob settings run 0 to 10, "
+                                 "travel 0 to 1", p.span)
+                    if p.taper == "audio" and not 0.005 <= p.taper_mid <= 0.495:
+                        self.err("E310", f"pot '{p.name}': an audio taper's mid-rotation fraction must lie "
+                                 f"between 0.5% and 49.5%, not {p.taper_mid * 100:g}%", p.span)
+                else:
+                    self.in_range(p.kind, p.value, p.span)
+                    self.in_range("rated", p.rated_v, p.span)
+                    if len(set(nodes)) == 1:
+                        self.err("E311", f"part '{p.name}' has both ends on node '{p.a}'", p.span)
+            used = [c for c in self.d.couplings if c.kind == "network" and c.network == n.name]
+            if n.ports and not used:
+                self.warn("W201", f"network '{n.name}' has ports but is never attached with 'couple … via {n.name}'",
+                          n.span, subject=n.name)
+            if not n.ports and used:
+                self.err("E214", f"network '{n.name}' is attached with 'via' but has no ports", used[0].span,
+                         f"write its header as 'network {n.name}: in -> out'")
+
+    def check_couplings(self, stage_names, net_names):
+        instances: dict[str, Span] = {}
+        for c in self.d.couplings:
+            if c.src not in stage_names:
+                self.unknown("E215", "stage", c.src, c.span, stage_names)
+            if c.dst != "output" and c.dst not in stage_names:
+                self.unknown("E215", "stage", c.dst, c.span, list(stage_names) + ["output"])
+            if c.src == c.dst:
+                self.err("E216", f"stage '{c.src}' is coupled to itself", c.span)
+            if c.kind == "cap":
+                self.in_range("coupling", c.cap_f, c.span)
+                self.in_range("rated", c.rated_v, c.span)
+            if c.kind == "network":
+                if c.network not in net_names:
+                    self.unknown("E217", "network", c.network, c.span, net_names)
+                inst = c.label
+                if inst in instances:
+                    self.err("E218", f"network instance '{inst}' is attached twice (line {instances[inst].line})",
+                             c.span, f"name the second one: 'via {c.network} as {c.network}2'")
+                instances[inst] = c.span
+            if c.kind == "direct" and c.dst == "output":
+                continue
+        # each stage is fed by at most one coupling
+        fed: dict[str, Span] = {}
+        for c in self.d.couplings:
+            if c.dst in fed:
+                self.err("E219", f"'{c.dst}' is fed by two couplings (line {fed[c.dst].line} and here)", c.span)
+            fed[c.dst] = c.span
+        if self.d.source is not None and self.d.source.into in fed:
+            self.err("E219", f"stage '{self.d.source.into}' is fed by the input and by a coupling", fed[self.d.source.into])
+
+    def check_source_output(self, stage_names, net_names):
+        d = self.d
+        src = d.source
+        if src is None:
+            self.err("E220", "no input: add a line such as 'input into V1 resistance 10k'", Span(d.path, 1, 1))
+        else:
+            if src.into not in stage_names:
+                self.unknown("E215", "stage", src.into, src.span, stage_names)
+            if src.kind == "resistance":
+                self.in_range("source_r", src.r_ohm, src.span, zero_ok=True)
+            elif src.kind == "pickup":
+                self.in_range("pickup_r", src.r_ohm, src.span)
+                self.in_range("pickup_l", src.l_h, src.span)
+                self.in_range("pickup_c", src.c_f, src.span, zero_ok=True)
+                self.in_range("cable", src.cable_f, src.span, zero_ok=True)
+        out = d.output
+        to_output = [c for c in d.couplings if c.dst == "output"]
+        if out is None:
+            self.err("E221", "no output: add a line such as 'output V2 load 1M'", Span(d.path, 1, 1))
+            return
+        self.in_range("load", out.load_ohm, out.span)
+        if out.node is None and not to_output:
+            self.err("E222", "say where the output is taken: 'output V2 load 1M', or couple a stage to 'output'", out.span)
+        if out.node is not None and to_output:
+            self.err("E222", "the output is fed by a coupling already; write 'output load …' without a node", out.span)
+        if out.node is not None:
+            rails = [s.name for s in d.supplies] + [r.name for r in d.rails]
+            if out.node not in stage_names:
+                self.check_node_ref(out.node, out.span, stage_names, net_names, rails, local=None)
+
+
+def check(design: Design) -> tuple[Diagnostic, ...]:
+    """Check names, references and values; raise LanguageError on any error.
+
+    Returns
+    -------
+    tuple of Diagnostic
+        the warnings (codes W2xx).
+    """
+    return _Checker(design).run()
+
+
+def network_node_name(design: Design, instance: str, local: str, ports: dict[str, str]) -> str:
+    """The circuit node a network's node name refers to.
+
+    ``instance`` is the network instance's name, ``ports`` maps its port
+    names to the circuit nodes they attach to.  Rails and ``gnd`` keep their
+    names; ``STAGE.terminal`` and ``net.node`` are returned as written (the
+    builder resolves terminals); a plain local name becomes ``instance.local``.
+    """
+    if local in ports:
+        return ports[local]
+    if local == "gnd" or "." in local:
+        return local
+    if local in {s.name for s in design.supplies} | {r.name for r in design.rails}:
+        return local
+    return f"{instance}.{local}"

@@ -1,0 +1,1 @@
+"""Renderers over results: they read, format and compute no new physics."""

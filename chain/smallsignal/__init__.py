@@ -1,0 +1,39 @@
+"""Small-signal (AC) analysis of a chain at its DC operating point.
+
+``linearize(circuit, dc)`` → :class:`SmallSignalCircuit` (supplies shorted,
+triodes as ``mu·vgk`` in series with ``rp`` plus interelectrode
+capacitances); ``response(ss, f_hz)`` → :class:`Response` (every node's
+transfer per volt of source EMF and the input, output and per-stage
+impedances, vectorised over frequency by modified nodal analysis);
+``corners``, ``gain_at``, ``stage_table`` and ``overall`` read it.
+Frequencies are in Hz everywhere; impedances in ohm (complex).
+"""
+
+from chain.smallsignal.corners import corners, response_corners
+from chain.smallsignal.model import (
+    SmallSignalCircuit,
+    Transconductance,
+    TriodeSmallSignal,
+    linearize,
+)
+from chain.smallsignal.response import Response, gain_at, response, stage_owns, transfer_function
+from chain.smallsignal.table import OverallResult, StageRow, db, overall, stage_table
+
+__all__ = [
+    "SmallSignalCircuit",
+    "Transconductance",
+    "TriodeSmallSignal",
+    "linearize",
+    "Response",
+    "response",
+    "transfer_function",
+    "gain_at",
+    "stage_owns",
+    "corners",
+    "response_corners",
+    "StageRow",
+    "OverallResult",
+    "stage_table",
+    "overall",
+    "db",
+]

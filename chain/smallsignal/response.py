@@ -1,0 +1,253 @@
+"""Frequency response of a linearised chain: node transfers and impedances.
+
+Definitions (every quantity per volt of signal-source EMF, frequency in Hz):
+
+``h[node]``
+    Node voltage (V) for a 1 V source EMF, for every circuit node (nodes
+    shorted to ground by a supply read 0).
+``zin_ohm``
+    The impedance the source network sees at ``circuit.input_node``:
+    ``v(input) / i`` where ``i`` is the current flowing into the input node
+    from the source side — the signal source itself and the parts named
+    ``"input.*"`` — taken from the full solution.  Because the rest of the
+    network holds no independent source this is exactly the load impedance
+    (the pickup's load).
+``zout_ohm``
+    The driving-point impedance at ``circuit.output_node`` with the source
+    EMF zeroed (the source is a short, its own ``"input.*"`` impedance
+    stays) and the output load removed (the part named ``"output.load"``, or
+    the parts named ``"output.load.*"`` when the load has several).
+``stage_zin_ohm[stage]``
+    ``v(stage.input) / i`` with everything connected, ``i`` being the
+    current flowing into the stage input node through the parts that are
+    *not* the stage's own (own parts: names ``"<stage>.*"`` and the stage
+    triode's ``"<triode>.*"`` — its ``rp``, ``gm``, ``Cgk``, ``Cgp``,
+    ``Cpk``).  It therefore includes the stage's grid leak, grid stopper,
+    the Miller-multiplied ``Cgp`` and, for a common-grid stage, the cathode
+    resistor, and it sees the real load of the stage.
+``stage_zout_ohm[stage]``
+    The driving-point impedance at ``stage.output`` with the source EMF
+    zeroed and every part touching the output node removed unless it is the
+    stage's own or a rail part (``"rail.*"``): coupling capacitors, the next
+    stage's grid leak or interelectrode capacitances, the output load.  A
+    part of another triode touching the node (its ``rp``, its ``gm`` current)
+    is removed with it.  What remains upstream (the earlier stages, the
+    source impedance, any feedback network named for the stage) stays.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+from typing import Callable, Mapping, Sequence
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from chain.circuit import GROUND
+from chain.errors import AnalysisError, error
+from chain.smallsignal.mna import Mna, Stamp, assemble, current_into, solve
+from chain.smallsignal.model import SmallSignalCircuit
+
+__all__ = [
+    "Response",
+    "response",
+    "transfer_function",
+    "gain_at",
+    "stage_owns",
+]
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Response:
+    """Frequency response of a small-signal circuit (see the module docstring).
+
+    Arrays are read-only, all of shape ``f_hz.shape``.  Equality is exact
+    (every array equal element by element).
+    """
+
+    #: analysis frequencies, Hz
+    f_hz: np.ndarray
+    #: node name → complex node voltage per volt of source EMF
+    h: Mapping[str, np.ndarray]
+    #: impedance loading the source at the input node, ohm (complex)
+    zin_ohm: np.ndarray
+    #: impedance at the output node, source zeroed, output load removed, ohm
+    zout_ohm: np.ndarray
+    #: stage name → stage input impedance, ohm (complex)
+    stage_zin_ohm: Mapping[str, np.ndarray]
+    #: stage name → stage output impedance, ohm (complex)
+    stage_zout_ohm: Mapping[str, np.ndarray]
+    #: the network the response belongs to (for exact re-evaluation)
+    ss: SmallSignalCircuit
+    #: "modal" or "direct": how the equations were solved
+    method: str = "modal"
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, Response):
+            return NotImplemented
+        for f in fields(self):
+            a, b = getattr(self, f.name), getattr(other, f.name)
+            if isinstance(a, np.ndarray):
+                if not np.array_equal(a, b):
+                    return False
+            elif isinstance(a, Mapping):
+                if a.keys() != b.keys() or not all(np.array_equal(a[k], b[k]) for k in a):
+                    return False
+            elif a != b:
+                return False
+        return True
+
+    __hash__ = None  # type: ignore[assignment]
+
+    @property
+    def output(self) -> np.ndarray:
+        """Transfer from source EMF to the output node (V/V)."""
+        return self.h[self.ss.circuit.output_node]
+
+
+def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto") -> Response:
+    """Solve ``ss`` at every frequency of ``f_hz``.
+
+    Parameters
+    ----------
+    ss
+        The linearised circuit (:func:`chain.smallsignal.linearize`).
+    f_hz
+        Frequencies, Hz: positive and finite, scalar or 1-D.
+    method
+        ``"auto"`` (modal decomposition for many frequencies, checked and
+        replaced by the direct solve when inaccurate), ``"modal"`` or
+        ``"direct"``; the numbers agree to rounding.
+
+    Returns
+    -------
+    Response
+        Node transfers (V/V), input, output and per-stage impedances (ohm);
+        definitions in the module docstring.
+    """
+    f = _frequencies(f_hz)
+    s = 2j * np.pi * f
+    mna = assemble(ss)
+    x, used = solve(mna, s, mna.source_rhs(), method)
+
+    circuit = ss.circuit
+    h = {}
+    zero = np.zeros(f.shape, dtype=complex)
+    for name, rep in ss.node_of.items():
+        h[name] = _frozen(zero if rep == GROUND else x[:, mna.index[rep]])
+
+    source_side = [st for st in mna.stamps
+                   if st.kind == "V" or st.name.startswith("input.")]
+    zin = _loaded_impedance(mna, ss.node_of[circuit.input_node], source_side, x, s)
+    out = mna.index[ss.node_of[circuit.output_node]]
+    load = [st for st in mna.stamps
+            if st.kind != "V" and (st.name == "output.load" or st.name.startswith("output.load."))]
+    zout = _port_impedance(mna, out, load, s, method) if out >= 0 else zero
+    stage_zin, stage_zout = {}, {}
+    for st in circuit.stages:
+        own = stage_owns(st.name, st.triode)
+        others = [e for e in mna.stamps if not own(e.name)]
+        stage_zin[st.name] = _frozen(_loaded_impedance(
+            mna, ss.node_of[st.input], others, x, s))
+        node = mna.index[ss.node_of[st.output]]
+        if node < 0:
+            stage_zout[st.name] = _frozen(zero)
+            continue
+        removed = [e for e in mna.stamps
+                   if e.kind != "V" and not own(e.name) and not e.name.startswith("rail.")
+                   and e.touches(node)]
+        stage_zout[st.name] = _frozen(_port_impedance(mna, node, removed, s, method))
+    return Response(
+        f_hz=_frozen(f), h=h, zin_ohm=_frozen(zin), zout_ohm=_frozen(zout),
+        stage_zin_ohm=stage_zin, stage_zout_ohm=stage_zout, ss=ss, method=used,
+    )
+
+
+def stage_owns(stage: str, triode: str) -> Callable[[str], bool]:
+    """Predicate: is a part of this name one of the stage's own parts?
+
+    Own parts are named ``"<stage>.*"`` or ``"<triode>.*"`` (the triode's
+    small-signal elements), or are the triode itself.
+    """
+    prefixes = (stage + ".", triode + ".")
+
+    def own(name: str) -> bool:
+        return name == triode or name.startswith(prefixes)
+
+    return own
+
+
+def transfer_function(ss: SmallSignalCircuit, node: str) -> Callable[[ArrayLike], np.ndarray]:
+    """Exact ``H(f) = v(node) / EMF`` as a function of frequency (Hz).
+
+    The matrices are assembled once; each call solves ``Y(j2πf)`` directly,
+    so the function is suited to root finding at a few frequencies.
+    """
+    if node not in ss.node_of:
+        raise AnalysisError(error("E505", f"{node!r} is not a node of the circuit", subject=node))
+    rep = ss.node_of[node]
+    mna = assemble(ss)
+    i = mna.index[rep]
+    b = mna.source_rhs()
+
+    def h(f_hz: ArrayLike) -> np.ndarray:
+        f = np.asarray(f_hz, dtype=float)
+        if rep == GROUND:
+            return np.zeros(f.shape, dtype=complex)
+        s = 2j * np.pi * f.reshape(-1)
+        y = mna.g[None] + s[:, None, None] * mna.c[None]
+        x = np.linalg.solve(y, np.broadcast_to(b, (s.size, b.size))[:, :, None])[:, i, 0]
+        return x.reshape(f.shape)
+
+    return h
+
+
+def gain_at(resp: Response, node: str, f_hz: ArrayLike) -> complex | np.ndarray:
+    """``v(node) / EMF`` at ``f_hz`` (Hz), solved exactly (not interpolated).
+
+    Returns a complex scalar for a scalar frequency, else an array.
+    """
+    f = np.asarray(f_hz, dtype=float)
+    _frequencies(f)
+    value = transfer_function(resp.ss, node)(f)
+    return complex(value) if value.ndim == 0 else value
+
+
+# -- helpers ------------------------------------------------------------------
+
+
+def _frequencies(f_hz: ArrayLike) -> np.ndarray:
+    f = np.atleast_1d(np.asarray(f_hz, dtype=float))
+    if f.ndim != 1 or f.size == 0 or not np.all(np.isfinite(f)) or not np.all(f > 0.0):
+        raise AnalysisError(error(
+            "E507", "frequencies must be a non-empty 1-D set of positive, finite values (Hz)"))
+    return f
+
+
+def _frozen(a: np.ndarray) -> np.ndarray:
+    a = np.array(a, copy=True)
+    a.flags.writeable = False
+    return a
+
+
+def _port_impedance(mna: Mna, node: int, removed: Sequence[Stamp], s: np.ndarray,
+                    method: str) -> np.ndarray:
+    """Voltage at ``node`` for 1 A injected there, ``removed`` parts taken out (ohm)."""
+    b = np.zeros(mna.size)
+    b[node] = 1.0
+    x, _ = solve(mna.without(removed), s, b, method)
+    return x[:, node]
+
+
+def _loaded_impedance(mna: Mna, node_name: str, feeders: Sequence[Stamp], x: np.ndarray,
+                      s: np.ndarray) -> np.ndarray:
+    """``v(node) / i``, ``i`` the current from ``feeders`` into the node (ohm)."""
+    node = mna.index[node_name]
+    if node < 0:
+        return np.zeros(x.shape[0], dtype=complex)
+    i = np.zeros(x.shape[0], dtype=complex)
+    for st in feeders:
+        if st.touches(node):
+            i = i + current_into(st, node, x, s)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return x[:, node] / i

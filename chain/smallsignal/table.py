@@ -1,0 +1,152 @@
+"""Per-stage and overall figures at one reference frequency (SI units, no printing)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from chain.circuit import Circuit, StageNodes
+from chain.dc.result import DcSolution
+from chain.smallsignal.corners import response_corners
+from chain.smallsignal.response import Response, response
+
+__all__ = ["StageRow", "OverallResult", "stage_table", "overall", "db"]
+
+
+def db(ratio: complex | float) -> float:
+    """``20·log10|ratio|`` in dB (−inf for zero)."""
+    mag = abs(ratio)
+    return 20.0 * math.log10(mag) if mag > 0.0 else -math.inf
+
+
+@dataclass(frozen=True, slots=True)
+class StageRow:
+    """One stage at the reference frequency, everything connected."""
+
+    stage: str
+    #: "common-cathode" | "cathode-follower" | "common-grid"
+    kind: str
+    tube: str
+    #: plate, cathode voltage to ground, V
+    vp_v: float
+    vk_v: float
+    #: plate current, A
+    ip_a: float
+    gm_s: float
+    rp_ohm: float
+    mu: float
+    #: loaded gain H(output)/H(input), V/V (complex) and dB
+    gain: complex
+    gain_db: float
+    #: stage input / output impedance at f_ref, ohm (complex; see chain.smallsignal.response)
+    zin_ohm: complex
+    zout_ohm: complex
+    #: the coupling network feeding the stage (name in Circuit.couplings), or None
+    coupling: str | None
+    #: H(to_node)/H(from_node) of that coupling, V/V, and its dB (negative = loss)
+    coupling_ratio: complex | None
+    coupling_db: float | None
+    #: gain from source EMF to the stage output, V/V and dB
+    cumulative_gain: complex
+    cumulative_db: float
+    #: peak signal at the stage input and output for the given source level, V
+    level_in_v: float
+    level_out_v: float
+
+    @property
+    def phase_deg(self) -> float:
+        """Phase of the loaded gain, degrees in (−180, 180]."""
+        return math.degrees(np.angle(self.gain))
+
+
+@dataclass(frozen=True, slots=True)
+class OverallResult:
+    """The whole chain: source EMF to output node."""
+
+    f_ref_hz: float
+    #: gain at f_ref, V/V (complex) and dB
+    gain: complex
+    gain_db: float
+    #: half-power corners of the output relative to its maximum on the grid, Hz
+    f_low_hz: float | None
+    f_high_hz: float | None
+    #: load on the source and output impedance at f_ref, ohm (complex)
+    zin_ohm: complex
+    zout_ohm: complex
+
+    @property
+    def phase_deg(self) -> float:
+        return math.degrees(np.angle(self.gain))
+
+
+def stage_table(circuit: Circuit, dc: DcSolution, resp: Response, f_ref_hz: float,
+                level_v: float) -> tuple[StageRow, ...]:
+    """One :class:`StageRow` per stage, in signal order.
+
+    Parameters
+    ----------
+    circuit
+        The circuit (its stages and couplings).
+    dc
+        Its DC solution (operating points by triode name).
+    resp
+        The frequency response; its network is re-solved exactly at ``f_ref_hz``.
+    f_ref_hz
+        Reference frequency, Hz.
+    level_v
+        Source EMF, peak volts; levels scale linearly from it.
+    """
+    at = response(resp.ss, [f_ref_hz])
+    rows = []
+    for st in circuit.stages:
+        rows.append(_row(circuit, dc, at, st, level_v))
+    return tuple(rows)
+
+
+def overall(resp: Response, f_ref_hz: float) -> OverallResult:
+    """Overall gain, corners and impedances.
+
+    ``gain`` is ``H(output)`` at ``f_ref_hz`` (solved exactly); the corners
+    are the half-power points of ``H(output)`` relative to its largest value
+    on ``resp.f_hz`` (see :func:`chain.smallsignal.corners`), ``None`` when
+    outside the analysed band.
+    """
+    at = response(resp.ss, [f_ref_hz])
+    gain = complex(at.output[0])
+    low, high = response_corners(resp)
+    return OverallResult(
+        f_ref_hz=float(f_ref_hz), gain=gain, gain_db=db(gain), f_low_hz=low, f_high_hz=high,
+        zin_ohm=complex(at.zin_ohm[0]), zout_ohm=complex(at.zout_ohm[0]),
+    )
+
+
+def _row(circuit: Circuit, dc: DcSolution, at: Response, st: StageNodes,
+         level_v: float) -> StageRow:
+    op = dc.points[st.triode]
+    h_in = complex(at.h[st.input][0])
+    h_out = complex(at.h[st.output][0])
+    gain = h_out / h_in if h_in != 0 else complex("nan")
+    coupling, ratio = _feeding_coupling(circuit, at, st)
+    return StageRow(
+        stage=st.name, kind=st.kind, tube=st.tube,
+        vp_v=op.vp_v, vk_v=op.vk_v, ip_a=op.ip_a, gm_s=op.gm_s, rp_ohm=op.rp_ohm, mu=op.mu,
+        gain=gain, gain_db=db(gain),
+        zin_ohm=complex(at.stage_zin_ohm[st.name][0]),
+        zout_ohm=complex(at.stage_zout_ohm[st.name][0]),
+        coupling=coupling, coupling_ratio=ratio,
+        coupling_db=None if ratio is None else db(ratio),
+        cumulative_gain=h_out, cumulative_db=db(h_out),
+        level_in_v=abs(h_in) * level_v, level_out_v=abs(h_out) * level_v,
+    )
+
+
+def _feeding_coupling(circuit: Circuit, at: Response, st: StageNodes):
+    node_of = at.ss.node_of
+    for name, (frm, to) in circuit.couplings.items():
+        if to == st.input or node_of.get(to) == node_of[st.input]:
+            h_from = complex(at.h[frm][0])
+            ratio = complex(at.h[to][0]) / h_from if h_from != 0 else complex("nan")
+            return name, ratio
+    return None, None
