@@ -853,13 +853,21 @@ class NetworkSystem:
 
 
 def _better(worst, candidate, n: int):
-    """Keep the iterate with the smaller largest node residual (for the report)."""
+    """Keep the failed iterate nearest to a solution (for the report).
+
+    Nearness is the line-search merit: squared node residuals (A²) plus
+    squared branch residuals weighted by ``_BRANCH_WEIGHT_S``.
+    """
     if worst is None:
         return candidate
-    def size(pair):
-        fn = np.abs(pair[1][:n])
-        return float(np.nanmax(fn)) if fn.size and np.any(np.isfinite(fn)) else np.inf
-    return candidate if size(candidate) < size(worst) else worst
+
+    def merit(pair):
+        f = pair[1]
+        if not np.all(np.isfinite(f)):
+            return np.inf
+        return float(f[:n] @ f[:n]) + _BRANCH_WEIGHT_S ** 2 * float(f[n:] @ f[n:])
+
+    return candidate if merit(candidate) < merit(worst) else worst
 
 
 def _load_point(model: TriodeModel, vpk0: float, dvpk: float, vgk0: float, dvgk: float) -> float:
