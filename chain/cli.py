@@ -188,8 +188,83 @@ def _cmd_check(args) -> int:
     return status
 
 
+def _cmd_bias(args) -> int:
+    from chain.build import load
+    from chain.dc import solve
+    from chain.report.summary import bias_table
+
+    design, circuit, warnings = load(args.file)
+    plot_path = _figure_path(args.plot) if args.plot else None
+    dc = solve(circuit)
+    print(bias_table(design, circuit, dc))
+    for w in warnings:
+        print(w.render())
+    if plot_path:
+        for path in _bias_plots(circuit, dc, plot_path):
+            print(f"wrote {path}")
+    return 0
+
+
+def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
+    """One plate-characteristics figure per stage: PATH with -STAGE before the suffix."""
+    import numpy as np
+
+    from chain.dc import plate_family, stage_lines
+    from chain.plot.bias import plot_characteristics, save_figure
+
+    target = Path(plot_path)
+    figures = []
+    for st in circuit.stages:
+        point = dc.points[st.triode]
+        line, bias = stage_lines(circuit, dc, st.name)
+        top = float(line.vpk_v.max())
+        model = circuit.triode(st.triode).model
+        step = 0.5 if point.vgk_v > -3 else 2.0
+        vgks = np.round(np.arange(0.0, min(point.vgk_v * 3.0, -4 * step) - step / 2, -step), 2)
+        family = plate_family(model, vgks, top * 1.15)
+        plot = plot_characteristics(family, line, point, bias=bias, title=f"{st.name} ({st.tube})")
+        figures.append((target.with_name(f"{target.stem}-{st.name}{target.suffix}"), plot))
+    written = []
+    for path, plot in figures:  # draw everything first, then write: nothing half-done
+        save_figure(plot, path)
+        written.append(str(path))
+    return written
+
+
+def _save_figure(figure, path: str) -> None:
+    """Render ``figure`` completely in memory, then write it atomically."""
+    import io
+
+    fmt = Path(path).suffix.lower().lstrip(".")
+    buf = io.BytesIO()
+    metadata = {"Date": None} if fmt == "svg" else {"Software": None}
+    figure.savefig(buf, format=fmt, dpi=200 if fmt == "png" else None, metadata=metadata)
+    write_atomically(path, buf.getvalue())
+
+
+def _bode_nodes(analysis, with_stages: bool):
+    out = analysis.circuit.output_node
+    if not with_stages:
+        return None
+    nodes = [s.output for s in analysis.circuit.stages if s.output != out]
+    return [*dict.fromkeys(nodes), out]
+
+
+def _cmd_plot(args) -> int:
+    from chain.analysis import analyze
+
+    path = _figure_path(args.output or str(Path(args.file).with_suffix(".png")))
+    analysis = analyze(args.file, headroom=False)
+    plot = analysis.plot(nodes=_bode_nodes(analysis, args.stages))
+    _save_figure(plot.figure, path)
+    print(f"wrote {path}")
+    return 0
+
+
 _COMMANDS = {
     "check": _cmd_check,
+    "bias": _cmd_bias,
+    "plot": _cmd_plot,
 }
 
 

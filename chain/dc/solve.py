@@ -34,11 +34,12 @@ Solving
    other triodes held at their present currents — for a few Gauss–Seidel
    sweeps.  Rails come out at their loaded voltage, cathodes above their
    grids, cathode followers' cathodes just above their grids.
-2. Damped Newton: node-voltage steps limited to ``max_step_v``, backtracking
-   on the residual norm, model evaluations that overflow are rejected.
-3. Fallbacks when Newton fails: the stage-by-stage guess (when a caller guess
-   was used), source stepping (every source ramped up from 0 V), gmin
-   stepping (a large gmin reduced decade by decade), then
+2. Damped Newton: each node-voltage step clipped to ±``max_step_v``
+   (default 50 V); steps whose model evaluation is not finite are rejected.
+3. Fallbacks when Newton fails: the stage-by-stage guess (when a caller's
+   guess was used, after at most 40 iterations from it), Newton with a line
+   search instead of clipping, source stepping (every source ramped up from
+   0 V), gmin stepping (a large gmin reduced decade by decade), then
    ``scipy.optimize.root``.
 4. The residual of every node equation (A) and every branch equation (V) is
    checked at the returned point; failure raises
@@ -88,6 +89,8 @@ _ARMIJO = 1e-4
 _MAX_HALVINGS = 12
 #: Gauss–Seidel sweeps of the stage-by-stage starting guess
 _GUESS_SWEEPS = 6
+#: Newton iterations allowed from a caller's guess before the stage-by-stage guess takes over
+_GUESS_MAX_ITER = 40
 
 _KIND_WORDS = {
     "common-cathode": "common-cathode stage",
@@ -385,6 +388,7 @@ class NetworkSystem:
         for i, t in enumerate(tri):
             groups.setdefault(id(t.model), (t.model, []))[1].append(i)
         self._groups = tuple((model, np.array(ix, dtype=np.intp)) for model, ix in groups.values())
+        self._stacked = _stacked_model(self._models) if len(self._groups) > 1 else None
 
         # KCL rows count current leaving the node:
         #   plate +Ip,  grid +Ig,  cathode -(Ip + Ig)
@@ -456,8 +460,8 @@ class NetworkSystem:
         vk = v[self._k]
         vpk = v[self._p] - vk
         vgk = v[self._g] - vk
-        if len(self._groups) == 1:
-            model = self._groups[0][0]
+        if len(self._groups) == 1 or self._stacked is not None:
+            model = self._groups[0][0] if self._stacked is None else self._stacked
             ip, gm, gp = plate_current_and_derivatives(model, vpk, vgk)
             ig, gg = grid_current_and_derivative(model, vgk)
             return (np.asarray(ip, dtype=float), np.asarray(ig, dtype=float), np.asarray(gm, dtype=float),
@@ -472,6 +476,15 @@ class NetworkSystem:
     def residual(self, x: np.ndarray, b: np.ndarray, a: np.ndarray | None = None) -> np.ndarray:
         """Residual: node rows in A (current leaving), branch rows in V."""
         return self._residual_jacobian(x, b, self._a if a is None else a, jacobian=False)[0]
+
+    def jacobian(self, x: np.ndarray) -> np.ndarray:
+        """Analytic Jacobian of :meth:`residual` at ``x`` (S in node rows/voltage columns).
+
+        Independent of the right-hand side, so of the signal voltage.  Its
+        solve with a unit current injected at a node gives the small-signal
+        (DC-coupled, capacitors as in this system) response to that current.
+        """
+        return self._residual_jacobian(np.asarray(x, dtype=float), np.zeros(self.size), self._a)[1]
 
     def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: np.ndarray, *,
                            jacobian: bool = True) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
@@ -654,21 +667,25 @@ class NetworkSystem:
         b = self.rhs(signal_v)
         total = 0
         worst: tuple[np.ndarray, np.ndarray] | None = None
-        starts = []
+        # (start, line search, iteration limit): a caller's guess is a continuation
+        # point and gets a short clipped-Newton try before the stage-by-stage guess
+        attempts: list[tuple[np.ndarray | None, bool, int]] = []
         if guess is not None:
             g = np.asarray(guess, dtype=float)
             if g.shape != (self.size,):
                 raise ValueError(f"guess must have shape ({self.size},), got {g.shape}")
-            starts.append(g)
-        starts.append(None)
-        for start in starts:
-            x0 = self.initial_guess(signal_v) if start is None else start
-            for line_search in (False, True):
-                x, it, ok, f = self._newton(x0, b, options, max_iter=options.max_iter, line_search=line_search)
-                total += it
-                if ok:
-                    return x, total, self._max_node_residual(f)
-                worst = _better(worst, (x, f), self._n)
+            attempts.append((g, False, min(options.max_iter, _GUESS_MAX_ITER)))
+        attempts += [(None, False, options.max_iter), (None, True, options.max_iter)]
+        x_stage = None
+        for start, line_search, max_iter in attempts:
+            if start is None:
+                x_stage = self.initial_guess(signal_v) if x_stage is None else x_stage
+                start = x_stage
+            x, it, ok, f = self._newton(start, b, options, max_iter=max_iter, line_search=line_search)
+            total += it
+            if ok:
+                return x, total, self._max_node_residual(f)
+            worst = _better(worst, (x, f), self._n)
         for strategy in (self._source_stepping, self._gmin_stepping, self._scipy_root):
             x, it, ok, f = strategy(signal_v, options)
             total += it
@@ -722,7 +739,7 @@ class NetworkSystem:
         return x, total + it, ok, f
 
     def _scipy_root(self, signal_v: float, options: SolveOptions):
-        """Last resort: MINPACK hybrid method with the analytic Jacobian."""
+        """Last resort: MINPACK hybrid (dogleg) method with the analytic Jacobian, then Newton."""
         from scipy.optimize import root
 
         b = self.rhs(signal_v)
@@ -736,10 +753,11 @@ class NetworkSystem:
 
         with np.errstate(over="ignore", invalid="ignore"):
             sol = root(fun, x0, jac=jac, method="hybr", options={"maxfev": max(options.max_iter, 1)})
-        x = sol.x
-        f, _, tcur = self._residual_jacobian(x, b, self._a)
-        ok = self._residual_ok(x, f, self._a_abs, tcur, options, b)
-        return x, int(sol.nfev), ok, f
+        if not np.all(np.isfinite(sol.x)):
+            return x0, int(sol.nfev), False, self.residual(x0, b)
+        # MINPACK stops on a relative step of 1.5e-8; Newton polishes to tol_a/tol_v
+        x, it, ok, f = self._newton(sol.x, b, options, max_iter=options.max_iter)
+        return x, int(sol.nfev) + it, ok, f
 
     def _failure(self, worst, iterations: int, options: SolveOptions, signal_v: float) -> DcConvergenceError:
         """Build the DcConvergenceError that names the likely stage."""
@@ -850,6 +868,40 @@ class NetworkSystem:
         """Voltage of one node in the unknown vector ``x`` (0 for ground), V."""
         i = self._vindex[node]
         return 0.0 if i == self._n else float(x[i])
+
+
+class _StackedModel:
+    """Several triode models' parameters as arrays, one entry per triode.
+
+    The tube functions are elementwise numpy code over the parameters, so a
+    stack evaluates every triode of a mixed circuit in one call.  Used only
+    after :func:`_stacked_model` has checked it against the per-model calls.
+    """
+
+    __slots__ = _STACKED_FIELDS = ("name", "mu", "ex", "kg1", "kp", "kvb", "grid_perveance_a_v15",
+                                   "grid_onset_v", "grid_knee_v")
+
+    def __init__(self, models):
+        self.name = "stack"
+        for attr in self._STACKED_FIELDS[1:]:
+            setattr(self, attr, np.array([getattr(m, attr) for m in models], dtype=float))
+
+
+def _stacked_model(models) -> _StackedModel | None:
+    """A :class:`_StackedModel` if it reproduces the per-model evaluation, else None."""
+    try:
+        stack = _StackedModel(models)
+        vpk = np.linspace(50.0, 300.0, len(models))
+        vgk = np.linspace(-3.0, 0.5, len(models))
+        together = (*plate_current_and_derivatives(stack, vpk, vgk), *grid_current_and_derivative(stack, vgk))
+    except (AttributeError, TypeError, ValueError):
+        return None
+    for i, model in enumerate(models):
+        alone = (*plate_current_and_derivatives(model, vpk[i], vgk[i]), *grid_current_and_derivative(model, vgk[i]))
+        for a, b in zip(together, alone):
+            if not np.isclose(np.asarray(a)[i], b, rtol=1e-12, atol=0.0):
+                return None
+    return stack
 
 
 def _better(worst, candidate, n: int):

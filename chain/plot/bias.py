@@ -98,7 +98,6 @@ def plot_characteristics(family: PlateFamily, load_line: LoadLine, point: Operat
         (line,) = ax.plot(family.vpk_v, family.ip_a[i] * _MA_PER_A, color=_mix(PALETTE["curve_low"],
                           PALETTE["curve_high"], t), linewidth=1.2, label=None)
         curves.append(line)
-        _label_curve(ax, family, i, vgk)
     (load,) = ax.plot(load_line.vpk_v, load_line.ip_a * _MA_PER_A, color=PALETTE["load"], linewidth=2.0,
                       label=f"DC load line ({_fmt_ohm(load_line.r_dc_ohm)})")
     bias_artist = None
@@ -111,30 +110,40 @@ def plot_characteristics(family: PlateFamily, load_line: LoadLine, point: Operat
                         markerfacecolor=PALETTE["point"], markeredgecolor=PALETTE["point_edge"],
                         markeredgewidth=1.0, zorder=5,
                         label=f"operating point: {point.vpk_v:.4g} V, {point.ip_a * _MA_PER_A:.3g} mA")
-    ax.annotate(f"Vgk {point.vgk_v:+.3g} V", (point.vpk_v, point.ip_a * _MA_PER_A), xytext=(8, 8),
+    ax.annotate(f"Vgk = {point.vgk_v:.3g} V", (point.vpk_v, point.ip_a * _MA_PER_A), xytext=(10, -14),
                 textcoords="offset points", color=PALETTE["text"], fontsize=8)
     ax.set_xlabel("plate–cathode voltage Vpk (V)")
     ax.set_ylabel("plate current Ip (mA)")
     top = max(float(load_line.ip_a.max()) if load_line.ip_a.size else 0.0, point.ip_a) * _MA_PER_A
     ax.set_xlim(0.0, float(family.vpk_v.max()))
     ax.set_ylim(0.0, max(1.15 * top, 1e-3))
+    for i, vgk in enumerate(family.vgk_v):
+        _label_curve(ax, family, i, float(vgk))
     ax.grid(True, color=PALETTE["grid"], linewidth=0.8)
     ax.set_axisbelow(True)
     for spine in ("top", "right"):
         ax.spines[spine].set_visible(False)
     ax.set_title(title if title is not None else f"{family.model_name} plate characteristics",
                  color=PALETTE["text"], fontsize=11)
-    ax.legend(loc="upper left", fontsize=8, frameon=False)
+    legend = ax.legend(loc="upper left", fontsize=8, frameon=True, framealpha=0.92)
+    legend.get_frame().set_edgecolor("none")
     return CharacteristicsPlot(figure=fig, axes=ax, curves=tuple(curves), load_line=load, bias_line=bias_artist,
                                point=marker)
 
 
 def _label_curve(ax, family: PlateFamily, i: int, vgk: float) -> None:
-    """Small Vgk label at the right end of a curve, when it is on the plot."""
-    y = float(family.ip_a[i, -1]) * _MA_PER_A
-    if y > 0.0:
-        ax.annotate(f"{vgk:g} V", (float(family.vpk_v[-1]), y), xytext=(-4, 2), textcoords="offset points",
-                    ha="right", fontsize=7, color=PALETTE["text"], annotation_clip=True)
+    """Small Vgk label where a curve leaves the plot: the top edge or the right edge."""
+    y_top = ax.get_ylim()[1]
+    ip_ma = family.ip_a[i] * _MA_PER_A
+    above = np.nonzero(ip_ma > y_top)[0]
+    if above.size:
+        j = int(above[0])
+        x = float(np.interp(y_top, ip_ma[max(j - 1, 0):j + 1], family.vpk_v[max(j - 1, 0):j + 1]))
+        ax.annotate(f"{vgk:g} V", (x, y_top), xytext=(3, -10), textcoords="offset points", ha="left",
+                    fontsize=7, color=PALETTE["text"])
+    elif ip_ma[-1] > 0.02 * y_top:
+        ax.annotate(f"{vgk:g} V", (float(family.vpk_v[-1]), float(ip_ma[-1])), xytext=(-4, 3),
+                    textcoords="offset points", ha="right", fontsize=7, color=PALETTE["text"])
 
 
 def _fmt_ohm(value: float) -> str:

@@ -7,8 +7,6 @@ from typing import Callable
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy.optimize import brentq
-
 from chain.smallsignal.response import Response, transfer_function
 
 __all__ = ["corners", "response_corners"]
@@ -102,6 +100,7 @@ def _crossing(f0: float, f1: float, m0: float, m1: float, target: float,
     x = x0 if d1 == d0 else x0 + (dt - d0) * (x1 - x0) / (d1 - d0)
     if evaluate is None:
         return 10.0 ** x
+    from scipy.optimize import brentq
 
     def g(xx: float) -> float:
         return abs(complex(evaluate(10.0 ** xx))) - target

@@ -46,15 +46,18 @@ __all__ = [
     "ModalSolver",
     "DirectSolver",
     "solve",
+    "solve_entry",
     "backward_error",
     "current_into",
 ]
 
 #: componentwise backward error at which refinement stops
-REFINE_TOL = 1e-13
+REFINE_TOL = 1e-15
 #: largest componentwise backward error accepted from the modal solve (the
 #: result is then exact for part values perturbed by at most this fraction)
-BACKWARD_TOL = 1e-11
+BACKWARD_TOL = 1e-14
+#: relative size of the last correction of a watched unknown that ends refinement
+WATCH_TOL = 1e-10
 #: refinement steps of the modal solve before giving up on it
 MAX_REFINE = 4
 #: at most this many frequencies are solved directly under method="auto"
@@ -190,7 +193,7 @@ class _Unsuitable(Exception):
     """The modal decomposition cannot be formed."""
 
 
-def _equilibrate(m: np.ndarray, sweeps: int = 12) -> tuple[np.ndarray, np.ndarray]:
+def _equilibrate(m: np.ndarray, sweeps: int = 6) -> tuple[np.ndarray, np.ndarray]:
     """Row and column scale factors (powers of two) making ``|m|`` balanced.
 
     Ruiz's iteration (from memory of D. Ruiz, "A scaling algorithm to
@@ -235,33 +238,55 @@ class ModalSolver:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             self._d = 1.0 / (1.0 + (s - s0)[:, None] * lam[None, :])  # (nf, N)
 
+    def coords(self, b: np.ndarray) -> np.ndarray:
+        """Modal coordinates ``z`` (nf, N) of the solution: ``x = (V·z)·col_scale``."""
+        with np.errstate(invalid="ignore", over="ignore"):
+            return self._d * ((b * self._r) @ self._wt)
+
+    def full(self, z: np.ndarray) -> np.ndarray:
+        """Every unknown (nf, N) from modal coordinates."""
+        with np.errstate(invalid="ignore", over="ignore"):
+            return (z @ self._vt) * self._c
+
+    def row(self, i: int) -> np.ndarray:
+        """Vector ``v`` with ``x[:, i] = z @ v``."""
+        return self._vt[:, i] * self._c[i]
+
     def solve(self, b: np.ndarray) -> np.ndarray:
         """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS."""
-        with np.errstate(invalid="ignore", over="ignore"):
-            y = (b * self._r) @ self._wt
-            return ((self._d * y) @ self._vt) * self._c
+        return self.full(self.coords(b))
 
 
 class DirectSolver:
-    """``numpy.linalg.solve`` on each ``Y(s)`` (one batched LAPACK call)."""
+    """``numpy.linalg.solve`` on each equilibrated ``Y(s)`` (one batched LAPACK call).
+
+    Rows and columns are scaled by powers of two computed from
+    ``|G| + |s_mid|·|C|`` (``s_mid`` the geometric mean of the band).
+    """
 
     name = "direct"
 
     def __init__(self, g: np.ndarray, c: np.ndarray, s: np.ndarray):
-        self._y = g[None, :, :] + s[:, None, None] * c[None, :, :]
+        w = np.abs(s)
+        s_mid = float(np.sqrt(w.min() * w.max())) if w.size else 1.0
+        self._r, self._c = _equilibrate(np.abs(g) + s_mid * np.abs(c))
+        gs = self._r[:, None] * g * self._c[None, :]
+        cs = self._r[:, None] * c * self._c[None, :]
+        self._y = gs[None, :, :] + s[:, None, None] * cs[None, :, :]
 
     def solve(self, b: np.ndarray) -> np.ndarray:
-        rhs = np.broadcast_to(b, self._y.shape[:2])[:, :, None]
+        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS."""
+        rhs = np.broadcast_to(b * self._r, self._y.shape[:2])[:, :, None]
         try:
-            return np.linalg.solve(self._y, rhs)[:, :, 0]
+            xs = np.linalg.solve(self._y, rhs)[:, :, 0]
         except np.linalg.LinAlgError:
-            out = np.full(self._y.shape[:2], np.nan + 0j)
+            xs = np.full(self._y.shape[:2], np.nan + 0j)
             for k in range(self._y.shape[0]):
                 try:
-                    out[k] = np.linalg.solve(self._y[k], rhs[k, :, 0])
+                    xs[k] = np.linalg.solve(self._y[k], rhs[k, :, 0])
                 except np.linalg.LinAlgError:
                     pass
-            return out
+        return xs * self._c
 
 
 def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple[np.ndarray, str]:
@@ -269,36 +294,99 @@ def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple
 
     ``method``: ``"modal"``, ``"direct"`` or ``"auto"`` (direct for at most
     :data:`DIRECT_BELOW` frequencies, otherwise modal with refinement,
-    falling back to direct when the modal result does not reach
-    :data:`BACKWARD_TOL`).
+    falling back to direct when the modal result is not accurate enough).
+
+    The modal result is refined until its componentwise backward error is
+    at most :data:`REFINE_TOL` (or stops improving) and accepted when it is
+    at most :data:`BACKWARD_TOL`.
     """
     if method not in ("auto", "modal", "direct"):
         raise ValueError(f"method must be 'auto', 'modal' or 'direct', not {method!r}")
+    check = _Checker(mna, s, b)
     if method == "direct" or (method == "auto" and s.size <= DIRECT_BELOW):
-        return DirectSolver(mna.g, mna.c, s).solve(b), "direct"
+        return _refine_all(DirectSolver(mna.g, mna.c, s), check, b, accept=np.inf), "direct"
     try:
         solver = ModalSolver(mna.g, mna.c, s)
     except _Unsuitable:
         solver = None
     if solver is not None:
-        check = _Checker(mna, s, b)
-        x = solver.solve(b)
-        r, berr = check(x)
-        for _ in range(MAX_REFINE):
-            if berr <= REFINE_TOL:
-                break
-            x_new = x + solver.solve(r)
-            r_new, berr_new = check(x_new)
-            if not berr_new < berr:
-                break
-            x, r, berr = x_new, r_new, berr_new
-        if berr <= BACKWARD_TOL:
+        x = _refine_all(solver, check, b)
+        if x is not None:
             return x, "modal"
     if method == "modal":
         raise AnalysisError(error(
             "E506", "the modal frequency solve is inaccurate for this circuit",
             hint="use method='direct'"))
-    return DirectSolver(mna.g, mna.c, s).solve(b), "direct"
+    return _refine_all(DirectSolver(mna.g, mna.c, s), check, b, accept=np.inf), "direct"
+
+
+def solve_entry(mna: Mna, s: np.ndarray, b: np.ndarray, index: int,
+                method: str = "auto") -> np.ndarray:
+    """Only ``x[:, index]`` of ``Y(s)·x = b`` (nf,), cheaper than :func:`solve`.
+
+    The modal result is refined until the last correction of this entry is
+    below :data:`WATCH_TOL` of its value at every frequency (the other
+    unknowns may stay less accurate); otherwise, or for few frequencies, the
+    direct solve is used.
+    """
+    if method not in ("auto", "modal", "direct"):
+        raise ValueError(f"method must be 'auto', 'modal' or 'direct', not {method!r}")
+    if not (method == "direct" or (method == "auto" and s.size <= DIRECT_BELOW)):
+        try:
+            solver = ModalSolver(mna.g, mna.c, s)
+        except _Unsuitable:
+            solver = None
+        if solver is not None:
+            value = _refine_entry(solver, mna, s, b, index)
+            if value is not None:
+                return value
+        if method == "modal":
+            raise AnalysisError(error(
+                "E506", "the modal frequency solve is inaccurate for this circuit",
+                hint="use method='direct'"))
+    x = _refine_all(DirectSolver(mna.g, mna.c, s), _Checker(mna, s, b), b, accept=np.inf)
+    return x[:, index]
+
+
+def _refine_entry(solver: ModalSolver, mna: Mna, s: np.ndarray, b: np.ndarray,
+                  index: int) -> np.ndarray | None:
+    # the residual is formed from x itself: forming it from the modal
+    # coordinates would carry the eigenvector conditioning into it
+    check = _Checker(mna, s, b)
+    v = solver.row(index)
+    x = solver.solve(b)
+    for _ in range(MAX_REFINE):
+        dz = solver.coords(check.residual(x))
+        dx = solver.full(dz)
+        x = x + dx
+        value = x[:, index]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rel = np.abs(dz @ v) / np.abs(value)
+        if np.all(np.isfinite(value)) and np.all(rel <= WATCH_TOL):
+            return value
+    return None
+
+
+def _refine_all(solver, check: "_Checker", b: np.ndarray, *,
+                accept: float = BACKWARD_TOL) -> np.ndarray | None:
+    """Iterative refinement (from memory of Higham, "Accuracy and Stability of
+    Numerical Algorithms", ch. 12): ``x ← x + solve(b − Y·x)`` while the
+    componentwise backward error improves; None unless it ends ≤ ``accept``."""
+    x = solver.solve(b)
+    if isinstance(solver, ModalSolver):
+        # the modal solve is never at rounding level by itself: one correction
+        # step always pays, so skip measuring the first backward error
+        x = x + solver.solve(check.residual(x))
+    r, berr = check(x)
+    for _ in range(MAX_REFINE):
+        if berr <= REFINE_TOL:
+            break
+        x_new = x + solver.solve(r)
+        r_new, berr_new = check(x_new)
+        if not berr_new < berr:
+            break
+        x, r, berr = x_new, r_new, berr_new
+    return x if berr <= accept else None
 
 
 class _Checker:
@@ -315,12 +403,18 @@ class _Checker:
         self._gc = np.hstack([mna.g.T, mna.c.T])
         self._abs_gc = np.abs(self._gc)
 
-    def __call__(self, x: np.ndarray) -> tuple[np.ndarray, float]:
-        if not np.all(np.isfinite(x)):
-            return x, np.inf
+    def residual(self, x: np.ndarray) -> np.ndarray:
+        """``b − G·x − s·C·x`` for every frequency (nf, N)."""
         n = self._n
         both = x @ self._gc
-        r = self._b - both[:, :n] - both[:, n:] * self._s[:, None]
+        return self._b - both[:, :n] - both[:, n:] * self._s[:, None]
+
+    def __call__(self, x: np.ndarray) -> tuple[np.ndarray, float]:
+        """``(residual, largest componentwise backward error)``; inf if ``x`` is not finite."""
+        if not np.all(np.isfinite(x)):
+            return np.zeros_like(x), np.inf
+        n = self._n
+        r = self.residual(x)
         mags = np.abs(x) @ self._abs_gc
         scale = mags[:, :n] + mags[:, n:] * self._abs_s + self._abs_b
         with np.errstate(divide="ignore", invalid="ignore"):

@@ -42,8 +42,6 @@ import math
 from dataclasses import dataclass
 from typing import Mapping
 
-import networkx as nx
-
 from chain.circuit import GROUND, Capacitor, Circuit, Inductor, Resistor, VoltageSource
 from chain.dc.result import DcSolution
 from chain.errors import AnalysisError, error
@@ -264,6 +262,8 @@ def _merge_shorts(circuit: Circuit) -> tuple[dict[str, str], list[str]]:
     ground, else the group's first node in :meth:`Circuit.nodes` order) and
     the names of the shorting parts.
     """
+    import networkx as nx
+
     order = (GROUND,) + circuit.nodes()
     graph = nx.Graph()
     graph.add_nodes_from(order)
@@ -323,6 +323,8 @@ def _triode_small_signal(t, dc: DcSolution, m) -> TriodeSmallSignal:
 
 def _check_grounded(ss: SmallSignalCircuit) -> None:
     """Every node needs a path to ground through some part (at some frequency)."""
+    import networkx as nx
+
     graph = nx.Graph()
     graph.add_nodes_from((GROUND,) + ss.nodes)
     for part in (*ss.resistors, *ss.capacitors, *ss.inductors):

@@ -45,7 +45,7 @@ from numpy.typing import ArrayLike
 
 from chain.circuit import GROUND
 from chain.errors import AnalysisError, error
-from chain.smallsignal.mna import Mna, Stamp, assemble, current_into, solve
+from chain.smallsignal.mna import Mna, Stamp, assemble, current_into, solve, solve_entry
 from chain.smallsignal.model import SmallSignalCircuit
 
 __all__ = [
@@ -72,14 +72,15 @@ class Response:
     #: impedance loading the source at the input node, ohm (complex)
     zin_ohm: np.ndarray
     #: impedance at the output node, source zeroed, output load removed, ohm
-    zout_ohm: np.ndarray
+    #: (None when not computed)
+    zout_ohm: np.ndarray | None
     #: stage name → stage input impedance, ohm (complex)
     stage_zin_ohm: Mapping[str, np.ndarray]
-    #: stage name → stage output impedance, ohm (complex)
+    #: stage name → stage output impedance, ohm (complex); empty when not computed
     stage_zout_ohm: Mapping[str, np.ndarray]
     #: the network the response belongs to (for exact re-evaluation)
     ss: SmallSignalCircuit
-    #: "modal" or "direct": how the equations were solved
+    #: "modal" or "direct": how the node transfers were solved
     method: str = "modal"
 
     def __eq__(self, other: object) -> bool:
@@ -87,6 +88,8 @@ class Response:
             return NotImplemented
         for f in fields(self):
             a, b = getattr(self, f.name), getattr(other, f.name)
+            if (a is None) != (b is None):
+                return False
             if isinstance(a, np.ndarray):
                 if not np.array_equal(a, b):
                     return False
@@ -105,7 +108,8 @@ class Response:
         return self.h[self.ss.circuit.output_node]
 
 
-def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto") -> Response:
+def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto",
+             output_impedances: bool = True) -> Response:
     """Solve ``ss`` at every frequency of ``f_hz``.
 
     Parameters
@@ -118,6 +122,10 @@ def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto") -
         ``"auto"`` (modal decomposition for many frequencies, checked and
         replaced by the direct solve when inaccurate), ``"modal"`` or
         ``"direct"``; the numbers agree to rounding.
+    output_impedances
+        Also compute ``zout_ohm`` and ``stage_zout_ohm`` (one extra solve per
+        stage plus one for the output: several times the cost of the
+        transfers alone).  When False they are ``None`` and ``{}``.
 
     Returns
     -------
@@ -129,36 +137,36 @@ def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto") -
     s = 2j * np.pi * f
     mna = assemble(ss)
     x, used = solve(mna, s, mna.source_rhs(), method)
-
     circuit = ss.circuit
-    h = {}
-    zero = np.zeros(f.shape, dtype=complex)
-    for name, rep in ss.node_of.items():
-        h[name] = _frozen(zero if rep == GROUND else x[:, mna.index[rep]])
 
-    source_side = [st for st in mna.stamps
-                   if st.kind == "V" or st.name.startswith("input.")]
+    zero = np.zeros(f.shape, dtype=complex)
+    h = {name: _frozen(zero if rep == GROUND else x[:, mna.index[rep]])
+         for name, rep in ss.node_of.items()}
+
+    source_side = [st for st in mna.stamps if st.kind == "V" or st.name.startswith("input.")]
     zin = _loaded_impedance(mna, ss.node_of[circuit.input_node], source_side, x, s)
-    out = mna.index[ss.node_of[circuit.output_node]]
-    load = [st for st in mna.stamps
-            if st.kind != "V" and (st.name == "output.load" or st.name.startswith("output.load."))]
-    zout = _port_impedance(mna, out, load, s, method) if out >= 0 else zero
-    stage_zin, stage_zout = {}, {}
+    stage_zin = {}
     for st in circuit.stages:
         own = stage_owns(st.name, st.triode)
-        others = [e for e in mna.stamps if not own(e.name)]
-        stage_zin[st.name] = _frozen(_loaded_impedance(
-            mna, ss.node_of[st.input], others, x, s))
-        node = mna.index[ss.node_of[st.output]]
-        if node < 0:
-            stage_zout[st.name] = _frozen(zero)
-            continue
-        removed = [e for e in mna.stamps
-                   if e.kind != "V" and not own(e.name) and not e.name.startswith("rail.")
-                   and e.touches(node)]
-        stage_zout[st.name] = _frozen(_port_impedance(mna, node, removed, s, method))
+        feeders = [e for e in mna.stamps if not own(e.name)]
+        stage_zin[st.name] = _frozen(_loaded_impedance(mna, ss.node_of[st.input], feeders, x, s))
+
+    zout = None
+    stage_zout = {}
+    if output_impedances:
+        load = [st for st in mna.stamps
+                if st.kind != "V" and (st.name == "output.load" or st.name.startswith("output.load."))]
+        zout = _frozen(_port_impedance(mna, mna.index[ss.node_of[circuit.output_node]], load, s,
+                                       method))
+        for st in circuit.stages:
+            own = stage_owns(st.name, st.triode)
+            node = mna.index[ss.node_of[st.output]]
+            removed = [e for e in mna.stamps
+                       if e.kind != "V" and not own(e.name) and not e.name.startswith("rail.")
+                       and e.touches(node)]
+            stage_zout[st.name] = _frozen(_port_impedance(mna, node, removed, s, method))
     return Response(
-        f_hz=_frozen(f), h=h, zin_ohm=_frozen(zin), zout_ohm=_frozen(zout),
+        f_hz=_frozen(f), h=h, zin_ohm=_frozen(zin), zout_ohm=zout,
         stage_zin_ohm=stage_zin, stage_zout_ohm=stage_zout, ss=ss, method=used,
     )
 
@@ -194,10 +202,8 @@ def transfer_function(ss: SmallSignalCircuit, node: str) -> Callable[[ArrayLike]
         f = np.asarray(f_hz, dtype=float)
         if rep == GROUND:
             return np.zeros(f.shape, dtype=complex)
-        s = 2j * np.pi * f.reshape(-1)
-        y = mna.g[None] + s[:, None, None] * mna.c[None]
-        x = np.linalg.solve(y, np.broadcast_to(b, (s.size, b.size))[:, :, None])[:, i, 0]
-        return x.reshape(f.shape)
+        x, _ = solve(mna, 2j * np.pi * f.reshape(-1), b, "direct")
+        return x[:, i].reshape(f.shape)
 
     return h
 
@@ -233,10 +239,11 @@ def _frozen(a: np.ndarray) -> np.ndarray:
 def _port_impedance(mna: Mna, node: int, removed: Sequence[Stamp], s: np.ndarray,
                     method: str) -> np.ndarray:
     """Voltage at ``node`` for 1 A injected there, ``removed`` parts taken out (ohm)."""
+    if node < 0:
+        return np.zeros(s.shape, dtype=complex)
     b = np.zeros(mna.size)
     b[node] = 1.0
-    x, _ = solve(mna.without(removed), s, b, method)
-    return x[:, node]
+    return solve_entry(mna.without(removed), s, b, node, method)
 
 
 def _loaded_impedance(mna: Mna, node_name: str, feeders: Sequence[Stamp], x: np.ndarray,

@@ -69,7 +69,7 @@ class OverallResult:
     #: gain at f_ref, V/V (complex) and dB
     gain: complex
     gain_db: float
-    #: half-power corners of the output relative to its maximum on the grid, Hz
+    #: half-power corners of the output relative to its level at f_ref, Hz
     f_low_hz: float | None
     f_high_hz: float | None
     #: load on the source and output impedance at f_ref, ohm (complex)
@@ -108,14 +108,21 @@ def stage_table(circuit: Circuit, dc: DcSolution, resp: Response, f_ref_hz: floa
 def overall(resp: Response, f_ref_hz: float) -> OverallResult:
     """Overall gain, corners and impedances.
 
-    ``gain`` is ``H(output)`` at ``f_ref_hz`` (solved exactly); the corners
-    are the half-power points of ``H(output)`` relative to its largest value
-    on ``resp.f_hz`` (see :func:`chain.smallsignal.corners`), ``None`` when
-    outside the analysed band.
+    ``gain`` is ``H(output)`` at ``f_ref_hz`` (solved exactly).  The corners
+    are the half-power (−3.01 dB) points of ``H(output)`` relative to
+    ``|H(f_ref_hz)|``, the first ones met going down and up from
+    ``f_ref_hz`` (see :func:`chain.smallsignal.corners`); a resonant peak
+    above the reference (a pickup's) is therefore inside the band, not its
+    reference.  ``None`` when outside the analysed band or when ``f_ref_hz``
+    is outside it.
     """
     at = response(resp.ss, [f_ref_hz])
     gain = complex(at.output[0])
-    low, high = response_corners(resp)
+    f = resp.f_hz
+    if f.size >= 2 and f[0] <= f_ref_hz <= f[-1]:
+        low, high = response_corners(resp, ref_hz=f_ref_hz)
+    else:
+        low, high = None, None
     return OverallResult(
         f_ref_hz=float(f_ref_hz), gain=gain, gain_db=db(gain), f_low_hz=low, f_high_hz=high,
         zin_ohm=complex(at.zin_ohm[0]), zout_ohm=complex(at.zout_ohm[0]),

@@ -15,7 +15,7 @@ from types import SimpleNamespace
 import pytest
 
 from chain.circuit import GROUND, Capacitor, Circuit, Inductor, Resistor, StageNodes, Triode, VoltageSource
-from chain.tubes import lookup
+from chain.tubes import grid_current, lookup, plate_current
 
 
 @dataclass
@@ -110,9 +110,36 @@ def single_stage(*, rail_v: float = 300.0, rl: float = 100e3, rk: float = 1.5e3,
     return make_circuit(p)
 
 
+def kcl_residuals(circuit, state, gmin_s):
+    """Net current leaving each node, recomputed from the parts (Kirchhoff's current law)."""
+    v = dict(state.node_v)
+    v[GROUND] = 0.0
+    out = {node: gmin_s * v[node] for node in state.node_v}
+    out[GROUND] = 0.0
+    for r in circuit.resistors:
+        i = (v[r.a] - v[r.b]) / r.ohms
+        out[r.a] += i
+        out[r.b] -= i
+    for s in circuit.sources:
+        out[s.pos] -= state.source_i_a[s.name]
+        out[s.neg] += state.source_i_a[s.name]
+    for part in circuit.inductors:
+        out[part.a] += state.branch_i_a[part.name]
+        out[part.b] -= state.branch_i_a[part.name]
+    for t in circuit.triodes:
+        vpk, vgk = v[t.plate] - v[t.cathode], v[t.grid] - v[t.cathode]
+        ip, ig = float(plate_current(t.model, vpk, vgk)), float(grid_current(t.model, vgk))
+        out[t.plate] += ip
+        out[t.grid] += ig
+        out[t.cathode] -= ip + ig
+    out.pop(GROUND)
+    return out
+
+
 @pytest.fixture(scope="session")
 def kit():
     """The circuit-building helpers above, for tests in this folder."""
     return SimpleNamespace(Parts=Parts, supply=supply, rail=rail, signal=signal, common_cathode=common_cathode,
                            cathode_follower=cathode_follower, make_circuit=make_circuit, single_stage=single_stage,
+                           kcl_residuals=kcl_residuals,
                            Inductor=Inductor, Resistor=Resistor, Capacitor=Capacitor, VoltageSource=VoltageSource)

@@ -1,0 +1,481 @@
+"""Where each stage clips, which one clips first, and how.
+
+Definitions (per stage, per half-wave of the source — "positive" is the
+half-cycle where the source EMF is positive):
+
+* **grid conduction** — the triode's grid–cathode voltage reaches the grid
+  model's onset ``grid_onset_v`` (0 V for every built-in tube type), where
+  the grid current is about 3 µA and rising steeply (see
+  :func:`chain.tubes.grid_current`); from there the grid stopper and the
+  source impedance start to drop the signal.
+* **cutoff** — the plate current falls below ``cutoff_fraction`` (default
+  1 %) of its quiescent value.
+* **THD thresholds** — the source peak at which the THD the stage itself
+  adds (:mod:`chain.headroom.distortion`) reaches each of ``thd_levels``
+  (default 1 % and 5 %): for a whole sine, and for each half-wave alone.
+
+The first two are found on the swept transfer curves and refined by
+root-finding on direct solves (source voltage to about 1e-10 relative).
+A stage's clipping point is the earlier of grid conduction and cutoff over
+both half-waves; the available output swing on each side is the output's
+excursion up to that half-wave's limit.  The chain's first stage to clip is
+the one with the lowest clipping point (the earlier stage in signal order
+on a tie).
+
+Levels are source (EMF) peaks in V; dBV values are of the rms value of a
+sine with that peak (0 dBV = 1 V rms), i.e. ``20·log10(peak/√2)``.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+from typing import Callable, Iterable
+
+import numpy as np
+
+from chain.circuit import Circuit, StageNodes
+from chain.dc import DcSolution, SolveOptions
+from chain.errors import DcConvergenceError
+from chain.headroom.curves import DEFAULT_CUTOFF_FRACTION, TransferCurves, build_network, sweep
+from chain.headroom.distortion import Distortion, distortion_in, level_for_thd, thd_versus_level
+from chain.headroom.network import MidBandNetwork
+from chain.units import format_si
+
+__all__ = [
+    "GRID_CONDUCTION",
+    "CUTOFF",
+    "LIMITS",
+    "dbv",
+    "Onset",
+    "HalfWaveLimit",
+    "StageHeadroom",
+    "Headroom",
+    "headroom",
+]
+
+GRID_CONDUCTION = "grid conduction"
+CUTOFF = "cutoff"
+
+#: what the quasi-static mid-band method leaves out (printed with every result)
+LIMITS = (
+    "Quasi-static mid-band model: coupling, cathode-bypass and rail-decoupling capacitors are held at their "
+    "DC voltages (short for the signal) and the small capacitors are open, so clipping does not depend on "
+    "frequency here — tone-network and bright-capacitor shaping, Miller and stray capacitance are ignored.",
+    "No blocking distortion: grid current does not charge the coupling capacitors, so the bias shift after a "
+    "burst of grid conduction, and its slow recovery, are not modelled; real stages driven hard clip earlier "
+    "and more asymmetrically than shown.",
+    "No power-supply sag: the supply and rails are held at their DC voltages; a real supply drops under "
+    "sustained drive.",
+    "Grid current follows an approximate model (onset at 0 V, 3/2-power law, no current division at low "
+    "plate voltage).",
+    "A steady sine of one frequency: no attack, recovery or intermodulation.",
+)
+
+
+def dbv(peak_v: float) -> float:
+    """Level of a sine with this peak (V) in dBV of its rms value: ``20·log10(peak/√2)``."""
+    return 20.0 * math.log10(peak_v / math.sqrt(2.0)) if peak_v > 0.0 else -math.inf
+
+
+@dataclass(frozen=True, slots=True)
+class Onset:
+    """Where one clipping mechanism sets in.
+
+    Attributes
+    ----------
+    mechanism : str
+        ``"grid conduction"`` or ``"cutoff"``.
+    input_v : float
+        Source peak at the onset, V (magnitude).
+    stage_input_v : float
+        Deviation of the stage's input node there, V (signed).
+    output_v : float
+        Deviation of the stage's output node there, V (signed).
+    """
+
+    mechanism: str
+    input_v: float
+    stage_input_v: float
+    output_v: float
+
+    @property
+    def input_dbv(self) -> float:
+        return dbv(self.input_v)
+
+
+@dataclass(frozen=True, slots=True)
+class HalfWaveLimit:
+    """One stage on one half-wave of the source.
+
+    Attributes
+    ----------
+    polarity : str
+        ``"positive"`` or ``"negative"`` (sign of the source EMF).
+    grid : Onset or None
+        Grid-conduction onset, None when not reached in the sweep.
+    cutoff : Onset or None
+        Cutoff onset, None when not reached.
+    thd_input_v : tuple[float | None, ...]
+        Source peak at which this half-wave alone reaches each of
+        :attr:`Headroom.thd_levels` of own THD, V (None: not reached).
+    swept_to_v : float
+        Largest source magnitude swept on this side, V.
+    """
+
+    polarity: str
+    grid: Onset | None
+    cutoff: Onset | None
+    thd_input_v: tuple[float | None, ...]
+    swept_to_v: float
+
+    @property
+    def first(self) -> Onset | None:
+        """The earlier of grid conduction and cutoff (None if neither)."""
+        found = [o for o in (self.grid, self.cutoff) if o is not None]
+        return min(found, key=lambda o: o.input_v) if found else None
+
+    @property
+    def mechanism(self) -> str:
+        first = self.first
+        return first.mechanism if first is not None else "none"
+
+
+@dataclass(frozen=True, slots=True)
+class StageHeadroom:
+    """Headroom of one stage.
+
+    Attributes
+    ----------
+    stage, kind : str
+        Stage name and configuration.
+    input_node, output_node : str
+    positive, negative : HalfWaveLimit
+        Per half-wave of the source.
+    thd_input_v : tuple[float | None, ...]
+        Source peak at which a whole sine reaches each of
+        :attr:`Headroom.thd_levels` of the stage's own THD, V.
+    swing_pos_v, swing_neg_v : float
+        Output swing available above and below the DC point (V, >= 0 and
+        <= 0): the output's excursion up to each half-wave's limit, or the
+        largest reached when a half-wave never reaches one.
+    margin_db : float
+        ``20·log10(clip input / stated level)``: headroom left at the stated
+        input level (negative: already clipping); ``inf`` when the stage
+        never clips in the sweep.
+    """
+
+    stage: str
+    kind: str
+    input_node: str
+    output_node: str
+    positive: HalfWaveLimit
+    negative: HalfWaveLimit
+    thd_input_v: tuple[float | None, ...]
+    swing_pos_v: float
+    swing_neg_v: float
+    margin_db: float
+
+    @property
+    def first(self) -> Onset | None:
+        """The stage's first clipping onset over both half-waves."""
+        found = [(h.first, h.polarity) for h in (self.positive, self.negative) if h.first is not None]
+        return min(found, key=lambda p: p[0].input_v)[0] if found else None
+
+    @property
+    def first_polarity(self) -> str:
+        first = self.first
+        if first is None:
+            return ""
+        return "positive" if self.positive.first is first else "negative"
+
+    @property
+    def clip_input_v(self) -> float | None:
+        """Source peak at the first clipping onset, V (None: never)."""
+        first = self.first
+        return None if first is None else first.input_v
+
+    @property
+    def clip_input_dbv(self) -> float | None:
+        v = self.clip_input_v
+        return None if v is None else dbv(v)
+
+    @property
+    def mechanism(self) -> str:
+        first = self.first
+        return "none" if first is None else first.mechanism
+
+    def half(self, polarity: str) -> HalfWaveLimit:
+        return {"positive": self.positive, "negative": self.negative}[polarity]
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Headroom:
+    """Large-signal headroom of a chain (compared by identity).
+
+    Attributes
+    ----------
+    level_v : float
+        The stated input level (source peak), V.
+    stages : tuple[StageHeadroom, ...]
+        In signal order.
+    first : StageHeadroom or None
+        The first stage to clip as the input rises.
+    summary : str
+        One sentence, e.g. "first to clip: stage V2, by grid conduction, at
+        38 mV peak at the input …".
+    thd_levels : tuple[float, ...]
+        THD thresholds (ratios) of the ``thd_input_v`` fields.
+    overall_thd_input_v : tuple[float | None, ...]
+        Source peak at which the chain output reaches each THD threshold, V.
+    cutoff_fraction : float
+        Cutoff criterion (fraction of quiescent plate current).
+    definitions : tuple[str, ...]
+        The criteria, in words, for the report.
+    limits : tuple[str, ...]
+        What the method leaves out (:data:`LIMITS`).
+    curves : TransferCurves
+    distortion : Distortion or None
+        Spectrum at ``level_v`` (None when not asked for).
+    elapsed_s : float
+        Wall time of the whole analysis, s.
+    """
+
+    level_v: float
+    stages: tuple[StageHeadroom, ...]
+    first: StageHeadroom | None
+    summary: str
+    thd_levels: tuple[float, ...]
+    overall_thd_input_v: tuple[float | None, ...]
+    cutoff_fraction: float
+    definitions: tuple[str, ...]
+    limits: tuple[str, ...]
+    curves: TransferCurves
+    distortion: Distortion | None
+    elapsed_s: float
+
+    def stage(self, name: str) -> StageHeadroom:
+        for s in self.stages:
+            if s.stage == name:
+                return s
+        raise KeyError(name)
+
+
+# ------------------------------------------------------------------ onsets
+def _side(curves: TransferCurves, polarity: str) -> np.ndarray:
+    """Point indices from the zero point outwards on one side."""
+    zero = curves.zero_index
+    if polarity == "positive":
+        return np.arange(zero, curves.input_v.size)
+    return np.arange(zero, -1, -1)
+
+
+def _refine(net: MidBandNetwork, quantity: Callable[[np.ndarray], float], v_a: float, x_a: np.ndarray,
+            v_b: float, x_b: np.ndarray) -> tuple[float, np.ndarray]:
+    """Source voltage between v_a and v_b where ``quantity`` changes sign, and its state."""
+    from scipy.optimize import brentq
+
+    def guess(v: float) -> np.ndarray:
+        return x_a + (x_b - x_a) * ((v - v_a) / (v_b - v_a))
+
+    def f(v: float) -> float:
+        return quantity(net.solve(v, guess(v)))
+
+    try:
+        root = brentq(f, v_a, v_b, xtol=1e-15, rtol=1e-10, maxiter=100)
+        return float(root), net.solve(root, guess(root))
+    except (DcConvergenceError, ValueError):
+        # sign change lost to solver tolerance or a failed solve: interpolate linearly
+        qa, qb = quantity(x_a), quantity(x_b)
+        t = qa / (qa - qb) if qa != qb else 1.0
+        v = v_a + t * (v_b - v_a)
+        return float(v), guess(v)
+
+
+def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageNodes, polarity: str, mechanism: str,
+           ) -> tuple[Onset | None, int]:
+    """The onset of one mechanism on one side, and the last sweep index before it."""
+    t = net.triode_index(stage.triode)
+    model = net.circuit.triodes[t].model
+    idx = _side(curves, polarity)
+    iq = curves.quiescent_ip_a[stage.triode]
+    threshold = curves.cutoff_fraction * iq
+    if mechanism == GRID_CONDUCTION:
+        # "active" when >= 0
+        values = curves.vgk_v[stage.triode][idx] - model.grid_onset_v
+
+        def quantity(x: np.ndarray) -> float:
+            return float(net.triodes(x[None, :])[0][0, t] - model.grid_onset_v)
+    else:
+        values = threshold - curves.ip_a[stage.triode][idx]
+
+        def quantity(x: np.ndarray) -> float:
+            return float(threshold - net.triodes(x[None, :])[1][0, t])
+    active = values >= 0.0
+    start = 0
+    if active[0]:
+        if idx.size < 2 or values[1] >= values[0]:
+            # already past the limit at rest, and driven further in on this side
+            return Onset(mechanism, 0.0, 0.0, 0.0), 0
+        # driven out of it on this side: look for a fresh onset once it has left
+        left = np.flatnonzero(~active)
+        if left.size == 0:
+            return None, int(idx.size - 1)
+        start = int(left[0])
+    hit = np.flatnonzero(active[start:]) + start
+    if hit.size == 0:
+        return None, int(idx.size - 1)
+    k = int(hit[0])
+    nodes = (stage.input, stage.output)
+    dc_v = net.node_voltages(net.x0[None, :], nodes)[0]
+    a, b = int(idx[k - 1]), int(idx[k])
+    v, x = _refine(net, quantity, float(curves.input_v[a]), np.asarray(curves.states[a]),
+                   float(curves.input_v[b]), np.asarray(curves.states[b]))
+    volts = net.node_voltages(x[None, :], nodes)[0] - dc_v
+    return Onset(mechanism, abs(v), float(volts[0]), float(volts[1])), k - 1
+
+
+def _thd_thresholds(curves: TransferCurves, stage: StageNodes, levels: np.ndarray, thd_levels, *,
+                    half: str | None) -> tuple[float | None, ...]:
+    if levels.size == 0:
+        return tuple(None for _ in thd_levels)
+    values = thd_versus_level(curves, stage.input, stage.output, levels, half=half)
+    return tuple(level_for_thd(levels, values, target) for target in thd_levels)
+
+
+def _half_wave(net: MidBandNetwork, curves: TransferCurves, stage: StageNodes, polarity: str,
+               thd_levels) -> tuple[HalfWaveLimit, float, float]:
+    """One half-wave's limits, and the output excursion (max, min) up to its limit."""
+    grid, k_grid = _onset(net, curves, stage, polarity, GRID_CONDUCTION)
+    cut, k_cut = _onset(net, curves, stage, polarity, CUTOFF)
+    idx = _side(curves, polarity)
+    levels = np.abs(curves.input_v[idx[1:]])
+    limit = HalfWaveLimit(polarity=polarity, grid=grid, cutoff=cut,
+                          thd_input_v=_thd_thresholds(curves, stage, levels, thd_levels, half=polarity),
+                          swept_to_v=float(levels[-1]) if levels.size else 0.0)
+    first = limit.first
+    y = curves.node_dv[stage.output][idx]
+    if first is None:
+        reach = y
+    else:
+        last = k_grid if first is grid else k_cut
+        reach = np.append(y[:last + 1], first.output_v)
+    return limit, float(max(reach.max(), 0.0)), float(min(reach.min(), 0.0))
+
+
+def _stage_headroom(net: MidBandNetwork, curves: TransferCurves, stage: StageNodes, level_v: float,
+                    thd_levels) -> StageHeadroom:
+    pos, hi_p, lo_p = _half_wave(net, curves, stage, "positive", thd_levels)
+    neg, hi_n, lo_n = _half_wave(net, curves, stage, "negative", thd_levels)
+    span = min(pos.swept_to_v, neg.swept_to_v)
+    idx = _side(curves, "positive")
+    levels = np.abs(curves.input_v[idx[1:]])
+    levels = levels[levels <= span]
+    found = [h.first.input_v for h in (pos, neg) if h.first is not None]
+    if not found:
+        margin = math.inf
+    else:
+        margin = 20.0 * math.log10(min(found) / level_v) if min(found) > 0.0 else -math.inf
+    return StageHeadroom(stage=stage.name, kind=stage.kind, input_node=stage.input, output_node=stage.output,
+                         positive=pos, negative=neg,
+                         thd_input_v=_thd_thresholds(curves, stage, levels, thd_levels, half=None),
+                         swing_pos_v=max(hi_p, hi_n), swing_neg_v=min(lo_p, lo_n), margin_db=margin)
+
+
+def _summary(first: StageHeadroom | None, level_v: float) -> str:
+    if first is None:
+        return "no stage clips within the sweep (neither grid conduction nor cutoff was reached)"
+    onset = first.first
+    if onset.input_v == 0.0:
+        return (f"first to clip: stage {first.stage}, by {onset.mechanism}, already at rest "
+                f"({first.first_polarity} half-wave: the DC operating point is past the limit)")
+    text = (f"first to clip: stage {first.stage}, by {onset.mechanism}, at {format_si(onset.input_v, 'V')} "
+            f"peak at the input ({onset.input_dbv:.1f} dBV; {first.first_polarity} half-wave; "
+            f"{format_si(abs(onset.stage_input_v), 'V')} peak at its own input {first.input_node})")
+    if first.margin_db >= 0.0:
+        text += f"; {first.margin_db:.1f} dB above the stated level of {format_si(level_v, 'V')} peak"
+    else:
+        text += f"; the stated level of {format_si(level_v, 'V')} peak is {-first.margin_db:.1f} dB past it"
+    return text
+
+
+def _definitions(cutoff_fraction: float, thd_levels) -> tuple[str, ...]:
+    levels = " and ".join(f"{100 * t:g} %" for t in thd_levels)
+    return (
+        "grid conduction: the grid-cathode voltage reaches the grid-current onset of the tube model "
+        "(0 V for the built-in types, where the grid draws about 3 µA and rising)",
+        f"cutoff: the plate current falls below {100 * cutoff_fraction:g} % of its quiescent value",
+        f"THD thresholds ({levels}): the distortion the stage adds itself, sqrt(r2² + … + r9²)/y1 with r "
+        "the stage output minus its actual input scaled by the gain at the fundamental (a null test); per "
+        "half-wave on the odd-symmetric extension of that half-wave",
+        "levels are source (EMF) peaks; dBV of the rms value of a sine with that peak",
+    )
+
+
+def headroom(circuit: Circuit, dc: DcSolution, *, level_v: float, f_ref_hz: float = 1000.0,
+             held_caps: Iterable[str] | None = None, thd_levels: tuple[float, ...] = (0.01, 0.05),
+             cutoff_fraction: float = DEFAULT_CUTOFF_FRACTION, max_input_v: float = 20.0,
+             overdrive: float = 4.0, points_per_decade: int = 40, spectrum: bool = True,
+             spectrum_points: int = 128, options: SolveOptions | None = None) -> Headroom:
+    """Where each stage clips, which one clips first, and how.
+
+    Sweeps the mid-band transfer curves (:func:`chain.headroom.transfer_curves`),
+    finds per stage and half-wave the grid-conduction and cutoff onsets and
+    the THD thresholds (definitions in the module docstring), the available
+    output swing and the margin at ``level_v``, and — with ``spectrum`` —
+    the harmonics at ``level_v`` (:func:`chain.headroom.distortion`).
+
+    Parameters
+    ----------
+    circuit : Circuit
+    dc : DcSolution
+        Its DC operating point.
+    level_v : float
+        The stated input level (source peak), V.
+    f_ref_hz : float
+        Mid-band reference frequency (decides which capacitors are held), Hz.
+    held_caps : Iterable[str], optional
+        Hold exactly these capacitors instead of the automatic choice.
+    thd_levels : tuple[float, ...]
+        THD thresholds, ratios (0.01 = 1 %).
+    cutoff_fraction : float
+        Cutoff criterion, fraction of the quiescent plate current.
+    max_input_v, overdrive, points_per_decade
+        Sweep range and density (see :func:`chain.headroom.transfer_curves`).
+    spectrum : bool
+        Also compute the spectrum at ``level_v``.
+    spectrum_points : int
+        Phase points per period of the spectrum (multiple of 4).
+    options : SolveOptions, optional
+        Solver settings (default: those of ``dc``).
+
+    Returns
+    -------
+    Headroom
+    """
+    if not (math.isfinite(level_v) and level_v > 0.0):
+        raise ValueError(f"level_v must be positive, got {level_v!r}")
+    if not (0.0 < cutoff_fraction < 1.0):
+        raise ValueError(f"cutoff_fraction must lie in (0, 1), got {cutoff_fraction!r}")
+    t0 = time.perf_counter()
+    net = build_network(circuit, dc, f_ref_hz=f_ref_hz, held_caps=held_caps, options=options)
+    curves = sweep(net, points_per_decade=points_per_decade, max_input_v=max_input_v, overdrive=overdrive,
+                   cutoff_fraction=cutoff_fraction)
+    thd_levels = tuple(float(t) for t in thd_levels)
+    rows = tuple(_stage_headroom(net, curves, s, level_v, thd_levels) for s in circuit.stages)
+    clipping = [r for r in rows if r.clip_input_v is not None]
+    first = min(clipping, key=lambda r: r.clip_input_v) if clipping else None
+    span = min(abs(float(curves.input_v[0])), float(curves.input_v[-1]))
+    levels = np.abs(curves.input_v[curves.zero_index + 1:])
+    levels = levels[levels <= span]
+    if levels.size:
+        overall = thd_versus_level(curves, None, circuit.output_node, levels)
+        overall_thd = tuple(level_for_thd(levels, overall, t) for t in thd_levels)
+    else:
+        overall_thd = tuple(None for _ in thd_levels)
+    spec = distortion_in(net, level_v=level_v, points=spectrum_points) if spectrum else None
+    return Headroom(level_v=float(level_v), stages=rows, first=first, summary=_summary(first, level_v),
+                    thd_levels=thd_levels, overall_thd_input_v=overall_thd,
+                    cutoff_fraction=float(cutoff_fraction), definitions=_definitions(cutoff_fraction, thd_levels),
+                    limits=LIMITS, curves=curves, distortion=spec, elapsed_s=time.perf_counter() - t0)

@@ -1,0 +1,170 @@
+"""Bode plot of a :class:`~chain.smallsignal.Response`: magnitude and phase.
+
+The plot only reads arrays: magnitude ``20·log10|h|`` (dB) and phase
+``angle(h)`` unwrapped along frequency (degrees) are the only numbers it
+computes.  Corners are drawn where the caller says they are.  matplotlib is
+imported inside the functions, and only :class:`matplotlib.figure.Figure`
+objects are used (no pyplot state).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Sequence
+
+import numpy as np
+
+__all__ = ["BodePlot", "bode", "save", "PALETTE"]
+
+#: trace colours, in order: dark enough for print, distinguishable in grey
+PALETTE = ("#1d3557", "#b5651d", "#2a7f62", "#7b2d5b", "#6b6b12", "#a23b2a", "#3d6f9e", "#555555")
+#: dash patterns, cycled with the colours so traces differ without colour too
+DASHES = ("-", (0, (6, 2)), (0, (2, 1.5)), (0, (7, 2, 1.5, 2)), (0, (3, 1, 1, 1, 1, 1)))
+CORNER_COLOUR = "#8a8a8a"
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class BodePlot:
+    """The figure and what is drawn on it."""
+
+    figure: object
+    #: (magnitude axes, phase axes)
+    axes: tuple
+    #: magnitude traces, one per node, in the order of ``nodes``
+    lines: tuple
+    #: phase traces, one per node, same order
+    phase_lines: tuple
+    nodes: tuple[str, ...]
+    #: vertical corner markers (magnitude and phase panels)
+    corner_lines: tuple = ()
+
+
+def bode(response, *, nodes: Sequence[str] | None = None,
+         corners: tuple[float | None, float | None] | None = None,
+         ax=None, title: str = "") -> BodePlot:
+    """Draw magnitude (dB) and phase (degrees) against log frequency (Hz).
+
+    Parameters
+    ----------
+    response
+        A :class:`chain.smallsignal.Response`.
+    nodes
+        Node names to trace (per volt of source EMF); default: the output
+        node only.  Pass stage output nodes for per-stage traces.
+    corners
+        ``(f_low_hz, f_high_hz)`` to mark, either may be None.
+    ax
+        Optional ``(magnitude_axes, phase_axes)`` pair to draw into; by
+        default a new two-panel :class:`~matplotlib.figure.Figure`.
+    title
+        Figure title.
+
+    Returns
+    -------
+    BodePlot
+    """
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import EngFormatter, MultipleLocator
+
+    circuit = response.ss.circuit
+    wanted = (circuit.output_node,) if nodes is None else tuple(nodes)
+    unknown = [n for n in wanted if n not in response.h]
+    if unknown:
+        raise KeyError(f"no such node(s) in the response: {', '.join(unknown)}")
+
+    if ax is None:
+        fig = Figure(figsize=(7.5, 5.6), layout="constrained")
+        mag_ax, ph_ax = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2))
+    else:
+        mag_ax, ph_ax = ax
+        fig = mag_ax.figure
+
+    f = np.asarray(response.f_hz)
+    labels = _labels(circuit, wanted)
+    mag_lines, ph_lines = [], []
+    others = 0
+    for k, node in enumerate(wanted):
+        h = np.asarray(response.h[node])
+        with np.errstate(divide="ignore"):
+            mag_db = 20.0 * np.log10(np.abs(h))
+        phase_deg = np.degrees(np.unwrap(np.angle(h)))
+        if node == circuit.output_node:
+            # the chain's output: first colour, solid, heavier
+            style = dict(color=PALETTE[0], linestyle=DASHES[0], linewidth=2.2, zorder=3)
+        else:
+            others += 1
+            style = dict(color=PALETTE[others % len(PALETTE)],
+                         linestyle=DASHES[others % len(DASHES)], linewidth=1.4)
+        (m_line,) = mag_ax.semilogx(f, mag_db, label=labels[k], **style)
+        (p_line,) = ph_ax.semilogx(f, phase_deg, label=labels[k], **style)
+        mag_lines.append(m_line)
+        ph_lines.append(p_line)
+
+    marks = _mark_corners(mag_ax, ph_ax, corners)
+
+    mag_ax.set_ylabel("Gain (dB, V/V)")
+    ph_ax.set_ylabel("Phase (°)")
+    ph_ax.set_xlabel("Frequency")
+    ph_ax.xaxis.set_major_formatter(EngFormatter(unit="Hz"))
+    ph_ax.yaxis.set_major_locator(MultipleLocator(90.0))
+    if f.size:
+        mag_ax.set_xlim(f[0], f[-1])
+    for a in (mag_ax, ph_ax):
+        a.grid(True, which="major", color="#c8c8c8", linewidth=0.7)
+        a.grid(True, which="minor", color="#e6e6e6", linewidth=0.4)
+        a.tick_params(labelsize=9)
+    mag_ax.legend(loc="best", fontsize=8, frameon=False)
+    if title:
+        mag_ax.set_title(title, fontsize=11, loc="left")
+    return BodePlot(fig, (mag_ax, ph_ax), tuple(mag_lines), tuple(ph_lines), wanted, tuple(marks))
+
+
+def save(figure, path: str | Path) -> Path:
+    """Write ``figure`` as PNG or SVG, chosen by the suffix of ``path``.
+
+    Raises
+    ------
+    ValueError
+        for any other suffix.
+    """
+    path = Path(path)
+    fmt = path.suffix.lower().lstrip(".")
+    if fmt not in ("png", "svg"):
+        raise ValueError(f"cannot save a plot as {path.suffix or 'no suffix'!r}: use .png or .svg")
+    metadata = {"Date": None} if fmt == "svg" else {"Software": None}
+    figure.savefig(path, format=fmt, dpi=200 if fmt == "png" else None, metadata=metadata)
+    return path
+
+
+def _labels(circuit, nodes: Sequence[str]) -> list[str]:
+    outs = {st.output: st.name for st in circuit.stages}
+    labels = []
+    for node in nodes:
+        if node == circuit.output_node:
+            labels.append(f"output ({node})")
+        elif node in outs:
+            labels.append(f"{outs[node]} out ({node})")
+        else:
+            labels.append(node)
+    return labels
+
+
+def _mark_corners(mag_ax, ph_ax, corners) -> list:
+    marks = []
+    if not corners:
+        return marks
+    for f_c, name in zip(corners, ("low", "high")):
+        if f_c is None:
+            continue
+        for a in (mag_ax, ph_ax):
+            marks.append(a.axvline(f_c, color=CORNER_COLOUR, linestyle=(0, (4, 3)), linewidth=1.0))
+        mag_ax.annotate(f"−3 dB {name}\n{_hz(f_c)}", xy=(f_c, 1.0), xycoords=("data", "axes fraction"),
+                        xytext=(3 if name == "low" else -3, -3), textcoords="offset points", va="top",
+                        ha="left" if name == "low" else "right", fontsize=8, color="#4a4a4a")
+    return marks
+
+
+def _hz(f: float) -> str:
+    """Short frequency text for a label (display only)."""
+    return f"{f / 1e3:.3g} kHz" if f >= 1e3 else f"{f:.3g} Hz"

@@ -1,0 +1,157 @@
+"""The method set every report renderer shares, and readings common to them.
+
+A renderer turns a report document (:func:`chain.report.data.report_data`)
+into text.  It has one method per section, named as in :data:`SECTIONS`;
+:meth:`Renderer.render` calls them in that order (or the chosen subset) and
+joins their output.  Renderers read the document only: no physics here.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Sequence
+
+import numpy as np
+
+__all__ = ["SECTIONS", "Renderer", "check_sections", "spot_frequencies", "spot_response",
+           "pd_rating", "triode_tubes", "corner_reference"]
+
+#: every section, in report order
+SECTIONS = ("header", "safety", "settings", "stages", "stage_details", "overall", "response", "rails",
+            "capacitors", "headroom", "diagnostics", "parts")
+
+
+def check_sections(sections: Sequence[str] | None) -> tuple[str, ...]:
+    """The sections to render, in report order; ``None`` means all.
+
+    Raises
+    ------
+    ValueError
+        an unknown section name (the message lists the known ones).
+    """
+    if sections is None:
+        return SECTIONS
+    if isinstance(sections, str):
+        raise TypeError("sections must be a sequence of names, e.g. ('stages',), not a string")
+    unknown = [s for s in sections if s not in SECTIONS]
+    if unknown:
+        raise ValueError(f"unknown report section(s) {unknown}; known: {', '.join(SECTIONS)}")
+    return tuple(s for s in SECTIONS if s in sections)
+
+
+class Renderer:
+    """Base of the text and Markdown renderers: one method per section,
+    each returning a list of lines (an empty list renders nothing)."""
+
+    #: text between two sections
+    separator = "\n"
+
+    def render(self, data: dict[str, Any], sections: Sequence[str] | None = None) -> str:
+        """The chosen ``sections`` of the report document ``data``, ending in a newline."""
+        blocks = []
+        for name in check_sections(sections):
+            lines = getattr(self, name)(data)
+            if lines:
+                blocks.append("\n".join(lines))
+        return self.separator.join(blocks) + "\n"
+
+    # the section methods, overridden by each renderer
+    def header(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def safety(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def settings(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def stages(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def stage_details(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def overall(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def response(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def rails(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def capacitors(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def headroom(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def diagnostics(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def parts(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+
+# --------------------------------------------------------------------------- shared readings
+
+
+def spot_frequencies(low_hz: float, high_hz: float) -> list[float]:
+    """The 1-2-5 series frequencies (Hz) inside ``[low_hz, high_hz]``."""
+    out = []
+    for decade in range(math.floor(math.log10(low_hz)) - 1, math.ceil(math.log10(high_hz)) + 1):
+        for m in (1, 2, 5):
+            f = float(f"{m}e{decade}")
+            if low_hz * (1 - 1e-12) <= f <= high_hz * (1 + 1e-12):
+                out.append(f)
+    return out
+
+
+def spot_response(data: dict[str, Any]) -> list[tuple[float, float | None, float | None]]:
+    """``(f_hz, magnitude_db, phase_deg)`` of the output at the 1-2-5 frequencies of the sweep.
+
+    Read from the sweep grid by linear interpolation against log frequency
+    (the phase unwrapped first); on a log grid of a few hundred points per
+    band this is within a few thousandths of a dB of the exact response.
+    """
+    r = data["response"]
+    f = np.asarray(r["f_hz"], dtype=float)
+    m = np.asarray([np.nan if v is None else v for v in r["magnitude_db"]], dtype=float)
+    p = np.asarray([np.nan if v is None else v for v in r["phase_deg"]], dtype=float)
+    ok = np.isfinite(m) & np.isfinite(p)
+    if f.size < 2 or ok.sum() < 2:
+        return []
+    lf = np.log10(f[ok])
+    unwrapped = np.degrees(np.unwrap(np.radians(p[ok])))
+    out = []
+    for fs in spot_frequencies(float(f[0]), float(f[-1])):
+        x = math.log10(fs)
+        mdb = float(np.interp(x, lf, m[ok]))
+        ph = float(np.interp(x, lf, unwrapped))
+        ph = (ph + 180.0) % 360.0 - 180.0
+        if ph == -180.0:
+            ph = 180.0
+        out.append((fs, mdb, ph))
+    return out
+
+
+def triode_tubes(data: dict[str, Any]) -> dict[str, dict[str, Any]]:
+    """Triode name → its ``tube`` record from the parts list."""
+    return {p["name"]: p["tube"] for p in data["parts"] if p["kind"] == "triode"}
+
+
+def pd_rating(data: dict[str, Any], triode: str) -> float | None:
+    """The plate-dissipation rating of ``triode`` (W), or None."""
+    tube = triode_tubes(data).get(triode)
+    return None if tube is None else tube["pd_max_w"]
+
+
+def corner_reference(data: dict[str, Any]) -> str:
+    """What the −3 dB corners are relative to, in words."""
+    from chain.report import fmt
+
+    ref = data["overall"]["corner_reference"]
+    level = f"{fmt.db(ref['gain_db'])} at {fmt.si(ref['f_hz'], 'Hz')}"
+    if ref["basis"] == "reference":
+        return f"the gain at the reference frequency, {level}; half power is 3.01 dB below it"
+    return f"the largest gain on the sweep, {level}; half power is 3.01 dB below it"

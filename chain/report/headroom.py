@@ -1,0 +1,167 @@
+"""The headroom part of a report: :class:`chain.headroom.Headroom` as data, and its lines.
+
+Levels are source (EMF) peaks in V, as in :mod:`chain.headroom`; dBV values
+are of the rms of a sine with that peak.  The wall time of the analysis is
+left out (reports are deterministic).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Callable
+
+from chain.report import fmt
+from chain.report.data import num
+
+__all__ = ["headroom_data", "first_clip", "text_lines", "markdown_lines"]
+
+
+def _onset(o) -> dict[str, Any] | None:
+    if o is None:
+        return None
+    return {"input_v": num(o.input_v), "stage_input_v": num(o.stage_input_v), "output_v": num(o.output_v)}
+
+
+def _half(h) -> dict[str, Any]:
+    return {
+        "mechanism": h.mechanism, "grid": _onset(h.grid), "cutoff": _onset(h.cutoff),
+        "thd_input_v": [num(v) for v in h.thd_input_v], "swept_to_v": num(h.swept_to_v),
+    }
+
+
+def _spectrum(s) -> dict[str, Any]:
+    return {"node": s.node, "harmonics_v": [num(v) for v in s.amplitudes_v], "thd": num(s.thd),
+            "mean_shift_v": num(s.mean_shift_v)}
+
+
+def _distortion(d) -> dict[str, Any] | None:
+    if d is None:
+        return None
+    return {
+        "level_v": num(d.level_v),
+        "overall_gain_db": num(d.overall_gain_db),
+        "overall": _spectrum(d.overall),
+        "stages": [{"stage": s.stage, "gain_db": num(s.gain_db), "small_signal_gain": num(s.small_signal_gain),
+                    "own_thd": num(s.own_thd), "own_harmonics_v": [num(v) for v in s.own_amplitudes_v],
+                    "output": _spectrum(s.output)} for s in d.stages],
+    }
+
+
+def headroom_data(headroom) -> dict[str, Any] | None:
+    """The ``headroom`` entry of a report document (None when not analysed).
+
+    Parameters
+    ----------
+    headroom : chain.headroom.Headroom or None
+    """
+    if headroom is None:
+        return None
+    first = headroom.first
+    stages = []
+    for s in headroom.stages:
+        margin = None if math.isinf(s.margin_db) and s.margin_db > 0 else num(s.margin_db)
+        stages.append({
+            "stage": s.stage, "kind": s.kind, "input_node": s.input_node, "output_node": s.output_node,
+            "clip_input_v": num(s.clip_input_v), "mechanism": s.mechanism, "polarity": s.first_polarity or None,
+            "margin_db": margin, "swing_pos_v": num(s.swing_pos_v), "swing_neg_v": num(s.swing_neg_v),
+            "thd_input_v": [num(v) for v in s.thd_input_v],
+            "positive": _half(s.positive), "negative": _half(s.negative),
+        })
+    return {
+        "level_v": num(headroom.level_v),
+        "first_stage": None if first is None else first.stage,
+        "first_clip_input_v": None if first is None else num(first.clip_input_v),
+        "first_mechanism": None if first is None else first.mechanism,
+        "first_polarity": None if first is None else first.first_polarity,
+        "summary": headroom.summary,
+        "thd_levels": [num(t) for t in headroom.thd_levels],
+        "overall_thd_input_v": [num(v) for v in headroom.overall_thd_input_v],
+        "cutoff_fraction": num(headroom.cutoff_fraction),
+        "stages": stages,
+        "distortion": _distortion(headroom.distortion),
+        "definitions": list(headroom.definitions),
+        "limits": list(headroom.limits),
+    }
+
+
+def first_clip(h: dict[str, Any] | None) -> tuple[str | None, float | None] | None:
+    """``(first stage to clip, its clip input level in V)`` of a document's
+    headroom entry; ``None`` when headroom was not analysed."""
+    if h is None:
+        return None
+    return h["first_stage"], h["first_clip_input_v"]
+
+
+def _dbv(peak_v: float | None) -> str:
+    if peak_v is None or peak_v <= 0:
+        return fmt.NONE
+    return f"{20.0 * math.log10(peak_v / math.sqrt(2.0)):.2f} dBV"
+
+
+def _level(v: float | None) -> str:
+    return "not reached" if v is None else f"{fmt.volts(v)} peak ({_dbv(v)})"
+
+
+def _thd_label(t: float) -> str:
+    return f"{fmt.plain(100.0 * t)} % THD"
+
+
+def _thd(x: float | None) -> str:
+    return fmt.NONE if x is None else f"{fmt.plain(100.0 * x)} %"
+
+
+def _margin(m: float | None) -> str:
+    return "never clips in the sweep" if m is None else fmt.db(m)
+
+
+def text_lines(h: dict[str, Any], kv: Callable[[str, str], str]) -> list[str]:
+    """The headroom facts, one a line (``kv(label, value)`` formats a line)."""
+    out = [
+        kv("stated input level", f"{fmt.volts(h['level_v'])} peak ({_dbv(h['level_v'])})"),
+        kv("first stage to clip", "none" if h["first_stage"] is None else
+           f"{h['first_stage']}, by {h['first_mechanism']}, {h['first_polarity']} half-wave"),
+        kv("first-clip input level", _level(h["first_clip_input_v"])),
+    ]
+    for t, v in zip(h["thd_levels"], h["overall_thd_input_v"]):
+        out.append(kv(f"output: input for {_thd_label(t)}", _level(v)))
+    for s in h["stages"]:
+        n = s["stage"]
+        where = "" if s["mechanism"] == "none" else f", {s['mechanism']}, {s['polarity']} half-wave"
+        out.append(kv(f"{n} clips at input", _level(s["clip_input_v"]) + where))
+        out.append(kv(f"{n} margin at stated level", _margin(s["margin_db"])))
+        out.append(kv(f"{n} output swing", f"+{fmt.volts(s['swing_pos_v'])} / {fmt.volts(s['swing_neg_v'])}"))
+        for t, v in zip(h["thd_levels"], s["thd_input_v"]):
+            out.append(kv(f"{n} input for {_thd_label(t)}", _level(v)))
+    d = h["distortion"]
+    if d is not None:
+        lvl = fmt.volts(d["level_v"])
+        out.append(kv(f"output THD at {lvl} peak", _thd(d["overall"]["thd"])))
+        for s in d["stages"]:
+            out.append(kv(f"{s['stage']} own THD at {lvl} peak", _thd(s["own_thd"])))
+    out.append(kv("summary", h["summary"]))
+    out += [f"definition: {x}" for x in h["definitions"]]
+    out += [f"limit: {x}" for x in h["limits"]]
+    return out
+
+
+def markdown_lines(h: dict[str, Any]) -> list[str]:
+    """The headroom facts as Markdown tables."""
+    from chain.report.markdown import _table
+
+    head = ["stage", "clips at input", "mechanism", "half-wave", "margin", "swing +", "swing −"]
+    head += [f"input for {_thd_label(t)}" for t in h["thd_levels"]]
+    rows = []
+    for s in h["stages"]:
+        rows.append([s["stage"], _level(s["clip_input_v"]), s["mechanism"], s["polarity"] or "—",
+                     _margin(s["margin_db"]), fmt.volts(s["swing_pos_v"]), fmt.volts(s["swing_neg_v"])]
+                    + [_level(v) for v in s["thd_input_v"]])
+    out = [f"Stated input level {fmt.volts(h['level_v'])} peak ({_dbv(h['level_v'])}).", "",
+           f"Summary: {h['summary']}.", ""]
+    out += _table(head, rows)
+    d = h["distortion"]
+    if d is not None:
+        out += ["", f"THD at {fmt.volts(d['level_v'])} peak: output {_thd(d['overall']['thd'])}; "
+                + "; ".join(f"{s['stage']} own {_thd(s['own_thd'])}" for s in d["stages"]) + "."]
+    out += [""] + [f"* definition: {x}" for x in h["definitions"]]
+    out += [f"* limit: {x}" for x in h["limits"]]
+    return out

@@ -1,0 +1,167 @@
+"""The Markdown report: the text report's content as headings and tables.
+
+Same facts, same number formatting and same order as
+:mod:`chain.report.text`; one table row per object, so a diff of two
+Markdown reports is as clean as one of text reports.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from chain.report import fmt
+from chain.report.base import Renderer, corner_reference, pd_rating, spot_response
+
+__all__ = ["MarkdownRenderer"]
+
+
+def _esc(text: str) -> str:
+    """Escape the characters that would break a table cell."""
+    return str(text).replace("\\", "\\\\").replace("|", "\\|")
+
+
+def _table(head: list[str], rows: list[list[str]], right: set[int] = frozenset()) -> list[str]:
+    align = ["---:" if i in right else "---" for i in range(len(head))]
+    out = ["| " + " | ".join(_esc(h) for h in head) + " |", "| " + " | ".join(align) + " |"]
+    out += ["| " + " | ".join(_esc(c) for c in row) + " |" for row in rows]
+    return out
+
+
+def _corner(value: float | None, edge: float, below: bool) -> str:
+    if value is not None:
+        return fmt.si(value, "Hz")
+    return f"below the band (under {fmt.si(edge, 'Hz')})" if below else f"above the band (over {fmt.si(edge, 'Hz')})"
+
+
+class MarkdownRenderer(Renderer):
+    """GitHub-flavoured Markdown (pipe tables)."""
+
+    separator = "\n\n"
+
+    def header(self, data: dict[str, Any]) -> list[str]:
+        n = data["netlist"]
+        title = f"chain report: {n['title']}" if n["title"] else "chain report"
+        return [f"# {_esc(title)}", ""] + _table(["", ""], [
+            ["netlist", f"`{n['path']}`"],
+            ["netlist sha256", f"`{n['sha256']}`"],
+            ["chain version", data["tool"]["version"]],
+            ["report format", data["schema"]],
+        ])
+
+    def safety(self, data: dict[str, Any]) -> list[str]:
+        return [f"> **{data['safety']}**"]
+
+    def settings(self, data: dict[str, Any]) -> list[str]:
+        s, o = data["settings"], data["solve_options"]
+        rows = [
+            ["reference frequency", fmt.si(s["reference_hz"], "Hz")],
+            ["band", f"{fmt.si(s['band_low_hz'], 'Hz')} to {fmt.si(s['band_high_hz'], 'Hz')}"],
+            ["sweep points", f"{s['points']}, log-spaced, plus the reference frequency"],
+            ["input level", f"{fmt.volts(s['level_v'])} peak"],
+            ["heater potential", fmt.volts(s["heater_v"])],
+        ]
+        units = {"tol_a": "A", "tol_v": "V", "max_step_v": "V", "gmin_s": "S", "cutoff_a": "A",
+                 "grid_current_a": "A"}
+        for key, value in o.items():
+            if key == "derating":
+                text = f"{fmt.pct(value)} of the rating"
+            elif key in units:
+                text = fmt.si(value, units[key])
+            else:
+                text = str(value)
+            rows.append([f"dc solve `{key}`", text])
+        rows.append(["dc solve iterations", str(data["dc_solve"]["iterations"])])
+        return ["## Settings", ""] + _table(["setting", "value"], rows)
+
+    def stages(self, data: dict[str, Any]) -> list[str]:
+        s = data["settings"]
+        out = [f"## Stages at {fmt.si(s['reference_hz'], 'Hz')}, {fmt.volts(s['level_v'])} peak input", ""]
+        out += _table(["stage", "configuration", "tube", "Vp", "Vk", "Ip", "gm", "rp", "mu"], [
+            [r["stage"], r["kind"], r["tube"], fmt.volts(r["vp_v"]), fmt.volts(r["vk_v"]), fmt.amps(r["ip_a"]),
+             fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"), fmt.plain(r["mu"])]
+            for r in data["stages"]], set(range(3, 9)))
+        out.append("")
+        out += _table(["stage", "gain V/V", "gain", "phase", "Zin", "Zout", "fed through", "coupling loss",
+                       "cumulative", "in (peak)", "out (peak)"], [
+            [r["stage"], fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
+             fmt.polar(r["zin_ohm"], "Ω"), fmt.polar(r["zout_ohm"], "Ω"), r["coupling"] or "—",
+             "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]), fmt.db(r["cumulative_db"]),
+             fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"])]
+            for r in data["stages"]], {1, 2, 3, 7, 8, 9, 10})
+        return out
+
+    def stage_details(self, data: dict[str, Any]) -> list[str]:
+        points = {p["triode"]: p for p in data["operating_points"]}
+        rows = []
+        for r in data["stages"]:
+            p = points.get(r["triode"], {})
+            pd, rating = p.get("pd_w"), pd_rating(data, r["triode"])
+            use = "—" if pd is None or not rating else fmt.pct(pd / rating)
+            rows.append([r["stage"], fmt.volts(p.get("vg_v")), fmt.amps(p.get("ig_a")), fmt.si(pd, "W"),
+                         "—" if not rating else fmt.si(rating, "W"), use])
+        return ["### Grid and dissipation", ""] + _table(
+            ["stage", "Vg", "Ig", "Pd", "Pd rating", "use of rating"], rows, {1, 2, 3, 4, 5})
+
+    def overall(self, data: dict[str, Any]) -> list[str]:
+        o, s = data["overall"], data["settings"]
+        rows = [
+            [f"gain at {fmt.si(o['f_ref_hz'], 'Hz')}", fmt.gain(o["gain"], o["gain_db"])],
+            ["low corner (−3 dB)", _corner(o["f_low_hz"], s["band_low_hz"], True)],
+            ["high corner (−3 dB)", _corner(o["f_high_hz"], s["band_high_hz"], False)],
+            ["corners relative to", corner_reference(data)],
+            ["input impedance (source load)", fmt.polar(o["zin_ohm"], "Ω")],
+            ["output impedance", fmt.polar(o["zout_ohm"], "Ω")],
+        ]
+        return [f"## Overall: source EMF to the output (node `{o['output_node']}`)", ""] + _table(
+            ["quantity", "value"], rows)
+
+    def response(self, data: dict[str, Any]) -> list[str]:
+        spots = spot_response(data)
+        if not spots:
+            return []
+        return ["### Response read from the sweep", ""] + _table(
+            ["frequency", "gain", "phase"], [[fmt.si(f, "Hz"), fmt.db(m), fmt.deg(p)] for f, m, p in spots],
+            {0, 1, 2})
+
+    def rails(self, data: dict[str, Any]) -> list[str]:
+        return ["## Supply and rails", ""] + _table(
+            ["rail", "voltage", "current"],
+            [[r["name"], fmt.volts(r["v"]), fmt.amps(r["i_a"])] for r in data["rails"]], {1, 2})
+
+    def capacitors(self, data: dict[str, Any]) -> list[str]:
+        rows = []
+        for c in data["capacitors"]:
+            rated = "none" if c["rated_v"] is None else fmt.volts(c["rated_v"])
+            use = "—" if c["fraction_of_rating"] is None else fmt.pct(c["fraction_of_rating"])
+            rows.append([f"`{c['name']}`", fmt.volts(c["v"]), rated, use])
+        return ["## Capacitors: DC voltage against rating", ""] + _table(
+            ["capacitor", "DC voltage", "rating", "use of rating"], rows, {1, 2, 3})
+
+    def headroom(self, data: dict[str, Any]) -> list[str]:
+        from chain.report.headroom import markdown_lines
+
+        if data["headroom"] is None:
+            return []
+        return ["## Headroom", ""] + markdown_lines(data["headroom"])
+
+    def diagnostics(self, data: dict[str, Any]) -> list[str]:
+        if not data["diagnostics"]:
+            return ["## Diagnostics", "", "none"]
+        rows = []
+        for d in data["diagnostics"]:
+            loc = d["location"]
+            where = "" if loc is None else f"{loc['path']}:{loc['line']}:{loc['column']}"
+            message = d["message"] + (f" (hint: {d['hint']})" if d["hint"] else "")
+            rows.append([d["severity"], d["code"], d["subject"], where, message])
+        return ["## Diagnostics", ""] + _table(["severity", "code", "subject", "where", "message"], rows)
+
+    def parts(self, data: dict[str, Any]) -> list[str]:
+        rows = []
+        for p in data["parts"]:
+            if p["kind"] == "triode":
+                value = p["tube"]["type"]
+            else:
+                value = fmt.si(p["value"], {"ohm": "Ω"}.get(p["unit"], p["unit"] or ""))
+            rated = "" if p["rated_v"] is None else fmt.volts(p["rated_v"])
+            rows.append([f"`{p['name']}`", p["kind"], value, rated, fmt.node_list(p["nodes"])])
+        return ["## Parts as analysed", ""] + _table(["part", "kind", "value", "rated", "nodes"], rows)

@@ -1,0 +1,88 @@
+"""The Bode plot draws exactly the response's arrays (dB and degrees only)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from chain.circuit import GROUND, Capacitor, Circuit, Resistor, StageNodes, Triode, VoltageSource
+from chain.dc.result import DcSolution, OperatingPoint
+from chain.plot.bode import bode, save
+from chain.smallsignal import linearize, response
+from chain.tubes import lookup
+
+
+@pytest.fixture(scope="module")
+def resp():
+    """One common-cathode stage, capacitively coupled in and out (invented values)."""
+    tube = lookup("12AX7")
+    circuit = Circuit(
+        title="bode test",
+        resistors=(Resistor("input.R", "src", "V1.in", 10e3), Resistor("V1.Rg", "V1.in", GROUND, 1e6),
+                   Resistor("V1.Rs", "V1.in", "V1.grid", 68e3), Resistor("V1.RL", "HT", "V1.plate", 100e3),
+                   Resistor("V1.Rk", "V1.cathode", GROUND, 1.5e3),
+                   Resistor("output.load", "output", GROUND, 1e6)),
+        capacitors=(Capacitor("V1.Ck", "V1.cathode", GROUND, 1e-6),
+                    Capacitor("couple.V1-output.C", "V1.plate", "output", 22e-9)),
+        inductors=(),
+        sources=(VoltageSource("supply.HT", "HT", GROUND, 300.0, "supply"),
+                 VoltageSource("sig", "src", GROUND, 0.0, "signal")),
+        triodes=(Triode("V1", "V1.plate", "V1.grid", "V1.cathode", tube),),
+        stages=(StageNodes("V1", "common-cathode", "12AX7", "V1.in", "V1.plate", "V1", "HT"),),
+        input_node="V1.in", output_node="output", rails=("HT",),
+        couplings={"V1->output": ("V1.plate", "output")},
+    )
+    op = OperatingPoint("V1", 180.0, 0.0, 1.4, 1e-3, 0.0, 0.18, 1.6e-3, 62.5e3, 100.0)
+    dc = DcSolution({"V1": op}, {}, {}, {}, 0, 0.0)
+    return response(linearize(circuit, dc), np.geomspace(10.0, 100e3, 200))
+
+
+def test_magnitude_and_phase_are_the_response_in_db_and_degrees(resp):
+    plot = bode(resp)
+    h = resp.h["output"]
+    assert plot.nodes == ("output",)
+    assert_allclose(plot.lines[0].get_xdata(), resp.f_hz)
+    assert_allclose(plot.lines[0].get_ydata(), 20 * np.log10(np.abs(h)), rtol=1e-12)
+    phase = plot.phase_lines[0].get_ydata()
+    # unwrapped degrees: the same angle modulo 360°, and continuous
+    assert_allclose(np.exp(1j * np.radians(phase)), h / np.abs(h), atol=1e-9)
+    assert np.all(np.abs(np.diff(phase)) < 90.0)
+    mag_ax, ph_ax = plot.axes
+    assert mag_ax.get_xscale() == "log" and ph_ax.get_xscale() == "log"
+    assert "dB" in mag_ax.get_ylabel() and "°" in ph_ax.get_ylabel()
+
+
+def test_stage_traces_and_corners(resp):
+    plot = bode(resp, nodes=["V1.plate", "output"], corners=(35.0, None), title="stage V1")
+    assert len(plot.lines) == 2 and len(plot.phase_lines) == 2
+    assert_allclose(plot.lines[0].get_ydata(), 20 * np.log10(np.abs(resp.h["V1.plate"])), rtol=1e-12)
+    assert len(plot.corner_lines) == 2  # one marker per panel
+    assert all(line.get_xdata()[0] == 35.0 for line in plot.corner_lines)
+    labels = [t.get_text() for t in plot.axes[0].get_legend().get_texts()]
+    assert labels == ["V1 out (V1.plate)", "output (output)"]
+    assert plot.axes[0].get_title(loc="left") == "stage V1"
+
+
+def test_unknown_node_is_an_error(resp):
+    with pytest.raises(KeyError):
+        bode(resp, nodes=["nowhere"])
+
+
+def test_draws_into_given_axes(resp):
+    from matplotlib.figure import Figure
+
+    fig = Figure()
+    axes = fig.subplots(2, 1)
+    plot = bode(resp, ax=tuple(axes))
+    assert plot.figure is fig and plot.axes[0] is axes[0]
+
+
+def test_save_png_and_svg(resp, tmp_path):
+    plot = bode(resp, corners=(35.0, 20e3))
+    png = save(plot.figure, tmp_path / "b.png")
+    svg = save(plot.figure, tmp_path / "b.svg")
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert b"<svg" in svg.read_bytes()[:2000]
+    with pytest.raises(ValueError):
+        save(plot.figure, tmp_path / "b.jpg")
