@@ -22,6 +22,10 @@ engine >= 50x faster than lcapy at 6 stages; roughly linear growth of the
 engine time with the stage count (the per-stage slope over 5..8 stages at
 most twice the slope over 1..4).
 
+BLAS threads: the script sets ``OPENBLAS_NUM_THREADS`` (and the OpenMP/MKL
+equivalents) to 1 unless they are already set; run with
+``OPENBLAS_NUM_THREADS=2`` to measure threaded BLAS.
+
 Run from the repository root::
 
     python benchmarks/bench_chain.py                 # 1..8 stages
@@ -32,6 +36,7 @@ from __future__ import annotations
 
 import argparse
 import multiprocessing as mp
+import os
 import platform
 import queue as queue_module
 import sys
@@ -39,7 +44,13 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-import numpy as np
+# One BLAS thread unless the caller says otherwise (set before numpy loads).
+# The engine solves many small systems; on a loaded 2-core machine a second
+# OpenBLAS thread makes the response step several times slower, not faster.
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+import numpy as np  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
@@ -195,7 +206,8 @@ def main(argv=None) -> int:
 
     f_hz = np.geomspace(10.0, 100e3, args.points)
     print(f"python {platform.python_version()}, numpy {np.__version__}, lcapy {lcapy.__version__}, "
-          f"sympy {sympy.__version__}; {mp.cpu_count()} CPUs; {args.points} points, "
+          f"sympy {sympy.__version__}; {mp.cpu_count()} CPUs, "
+          f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS')}; {args.points} points, "
           f"engine best of {args.repeats}, lcapy timeout {args.timeout:.0f} s")
     header = (f"{'stages':>6} {'nodes':>5} {'engine ms':>10} {'d/stage ms':>10} "
               f"{'lcapy solve s':>13} {'lcapy total s':>13} {'ratio':>8} {'max rel diff':>12}")
@@ -234,6 +246,24 @@ def main(argv=None) -> int:
         else:
             tail = f"{'skipped: > ' + format(args.timeout, '.0f') + ' s':>27}"
         print(f"{n:6d} {row.nodes:5d} {1e3 * row.engine_s:10.2f} {step:>10} {tail}", flush=True)
+
+    # per-stage closed forms (lcapy): one bypassed and one unbypassed stage,
+    # cold cache, symbolic and numeric-only
+    from chain.formulas import stage_formulas, stage_parts
+
+    circuit = circuits[max(circuits)]
+    dc = solve(circuit)
+    print()
+    for name in [s.name for s in circuit.stages][:2]:
+        parts = stage_parts(circuit, dc, name)
+        timings = []
+        for symbolic in (True, False):
+            t0 = time.perf_counter()
+            sf = stage_formulas(parts, symbolic=symbolic)
+            timings.append(time.perf_counter() - t0)
+        print(f"stage formulas {name} ({'bypassed' if parts.ck_f else 'unbypassed'}): "
+              f"symbolic {timings[0]:.2f} s, numeric only {timings[1]:.2f} s; "
+              f"gain = {sf.gain.midband_value:.4g} at mid-band")
 
     print()
     verdicts = []

@@ -18,7 +18,11 @@ The one entry point for the API is :func:`analyze`.
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__", "analyze", "diff"]
+#: the one-line safety reminder printed by every report and the CLI help
+SAFETY = ("Safety: tube amplifiers hold lethal voltages, also after switch-off; these numbers are model "
+          "estimates, not measurements. Work on live equipment only if qualified, under local electrical codes.")
+
+__all__ = ["__version__", "SAFETY", "analyze", "diff"]
 
 
 def analyze(source, **options):

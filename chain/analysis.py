@@ -10,7 +10,7 @@ Nothing here formats or prints; :meth:`Analysis.table` and
 from __future__ import annotations
 
 import hashlib
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -73,8 +73,11 @@ def sweep_frequencies(design: Design) -> np.ndarray:
 
 
 def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic, ...] = (), *,
-                   headroom: bool = True, options: SolveOptions = SolveOptions()) -> Analysis:
+                   headroom: bool = True, options: SolveOptions = SolveOptions(),
+                   level_v: float | None = None) -> Analysis:
     """Analyse an already built design (see :func:`analyze`)."""
+    if level_v is not None:
+        design = replace(design, settings=replace(design.settings, level_v=level_v))
     dc = solve(circuit, options)
     ss = linearize(circuit, dc)
     freq = response(ss, sweep_frequencies(design))
@@ -96,7 +99,7 @@ def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic,
 
 
 def analyze(source: str | Path | Design, *, headroom: bool = True,
-            options: SolveOptions = SolveOptions()) -> Analysis:
+            options: SolveOptions = SolveOptions(), level_v: float | None = None) -> Analysis:
     """Analyse a netlist.
 
     Parameters
@@ -107,6 +110,8 @@ def analyze(source: str | Path | Design, *, headroom: bool = True,
         Also run the large-signal headroom analysis (slower).
     options
         Numeric settings of the DC solve.
+    level_v
+        Input level, volts peak, in place of the netlist's ``set level``.
 
     Raises
     ------
@@ -123,4 +128,4 @@ def analyze(source: str | Path | Design, *, headroom: bool = True,
         circuit = build(design)
     else:
         design, circuit, warnings = load(source)
-    return analyze_design(design, circuit, warnings, headroom=headroom, options=options)
+    return analyze_design(design, circuit, warnings, headroom=headroom, options=options, level_v=level_v)

@@ -315,7 +315,12 @@ def _signal_order(design: Design, x: _Expander) -> list[str]:
         g.add_edge(c.src, c.dst, span=c.span, kind=c.kind)
     direct = nx.DiGraph([(c.src, c.dst) for c in design.couplings if c.kind == "direct"])
     for cycle in nx.simple_cycles(direct):
-        first = next(c for c in design.couplings if c.kind == "direct" and c.src == cycle[0])
+        # report at the loop's first line in the file, starting the loop there
+        # (simple_cycles' starting point is not stable across runs)
+        members = [c for c in design.couplings if c.kind == "direct" and c.src in cycle]
+        first = min(members, key=lambda c: c.span.line)
+        k = cycle.index(first.src)
+        cycle = cycle[k:] + cycle[:k]
         x.err("E315", "loop of direct couplings: " + " -> ".join(cycle + [cycle[0]]), first.span,
               "a direct coupling passes DC; a loop of them has no defined operating point")
     try:
@@ -323,7 +328,7 @@ def _signal_order(design: Design, x: _Expander) -> list[str]:
     except nx.NetworkXNoCycle:
         cycle = None
     if cycle and not x.problems:
-        first = g.edges[cycle[0][0], cycle[0][1]]["span"]
+        first = min((g.edges[u, v]["span"] for u, v, *_ in cycle), key=lambda sp: sp.line)
         x.err("E317", "the couplings form a loop: " + " -> ".join(e[0] for e in cycle) + f" -> {cycle[0][0]}",
               first, "write feedback as a network naming stage terminals, not as a coupling")
     start = design.source.into

@@ -17,13 +17,11 @@ import tempfile
 from pathlib import Path
 from typing import Sequence
 
-from chain import __version__
+from chain import SAFETY, __version__
 from chain.errors import ChainError, Diagnostic
 
 __all__ = ["main", "run"]
 
-SAFETY = ("Safety: tube amplifiers hold lethal voltages, also after switch-off; these numbers are model "
-          "estimates, not measurements. Work on live equipment only if qualified, under local electrical codes.")
 
 
 class UsageError(Exception):
@@ -122,6 +120,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 2
     except KeyboardInterrupt:
         return 130
+    except BrokenPipeError:  # the reader went away (`chain report … | head`)
+        sys.stdout = open(os.devnull, "w")
+        return 0
     except Exception as exc:  # an internal error: say so, never a bare traceback
         if args.traceback:
             raise
@@ -261,10 +262,103 @@ def _cmd_plot(args) -> int:
     return 0
 
 
+def _emit(text: str, output: str | None) -> None:
+    """Print ``text``, or write it atomically to ``output``."""
+    if output:
+        write_atomically(output, text if text.endswith("\n") else text + "\n")
+        print(f"wrote {output}")
+    else:
+        print(text)
+
+
+def _cmd_report(args) -> int:
+    from chain.analysis import analyze
+    from chain.report import render
+
+    plot_path = _figure_path(args.plot) if args.plot else None
+    analysis = analyze(args.file, headroom=not args.no_headroom)
+    text = render(analysis, fmt=args.format)
+    figure = analysis.plot().figure if plot_path else None
+    _emit(text, args.output)
+    if figure is not None:
+        _save_figure(figure, plot_path)
+        print(f"wrote {plot_path}")
+    return 0
+
+
+def _cmd_diff(args) -> int:
+    from chain.diff import diff, load_voicing, render_diff
+
+    plot_path = _figure_path(args.plot) if args.plot else None
+    a, b = load_voicing(args.a), load_voicing(args.b)
+    result = diff(a, b, tol_db=args.tolerance_db, tol_pct=args.tolerance_pct)
+    print(render_diff(result, fmt=args.format))
+    if plot_path:
+        from chain.plot.compare import overlay
+
+        plot = overlay([a, b], [Path(args.a).stem, Path(args.b).stem])
+        _save_figure(plot.figure, plot_path)
+        print(f"wrote {plot_path}")
+    return 1 if result.differs else 0
+
+
+def _cmd_compare(args) -> int:
+    from chain.diff import compare, load_voicing, render_compare
+
+    plot_path = _figure_path(args.plot) if args.plot else None
+    voicings = [load_voicing(f) for f in args.files]
+    labels = [Path(f).stem for f in args.files]
+    result = compare(voicings, labels=labels)
+    print(render_compare(result))
+    if plot_path:
+        from chain.plot.compare import overlay
+
+        plot = overlay(voicings, labels, diff_panel=len(voicings) == 2)
+        _save_figure(plot.figure, plot_path)
+        print(f"wrote {plot_path}")
+    return 1 if result.differs else 0
+
+
+def _cmd_headroom(args) -> int:
+    from chain.analysis import analyze
+    from chain.report import render
+    from chain.units import QuantityError, parse_quantity
+
+    level = None
+    if args.level is not None:
+        try:
+            level = parse_quantity(args.level, "V")
+        except QuantityError as exc:
+            raise UsageError(f"--level {args.level}: {exc.message}") from None
+        if not level > 0:
+            raise UsageError(f"--level must be positive, not {args.level}")
+    plot_path = _figure_path(args.plot) if args.plot else None
+    analysis = analyze(args.file, headroom=True, level_v=level)
+    print(render(analysis, fmt="text", sections=("header", "safety", "headroom")))
+    if plot_path:
+        from chain.plot.headroom import plot_harmonics, plot_transfer
+
+        h = analysis.headroom
+        target = Path(plot_path)
+        figures = [(target.with_name(f"{target.stem}-transfer{target.suffix}"),
+                    plot_transfer(h.curves, headroom=h, title=analysis.design.title).figure)]
+        if h.distortion is not None:
+            figures.append((target.with_name(f"{target.stem}-harmonics{target.suffix}"),
+                            plot_harmonics(h.distortion, title=analysis.design.title).figure))
+        for path, figure in figures:
+            _save_figure(figure, str(path))
+            print(f"wrote {path}")
+    return 0
+
+
 _COMMANDS = {
+    "headroom": _cmd_headroom,
     "check": _cmd_check,
     "bias": _cmd_bias,
     "plot": _cmd_plot,
+    "report": _cmd_report,
+    "diff": _cmd_diff,
+    "compare": _cmd_compare,
 }
 
 

@@ -14,8 +14,10 @@ functions that need them: importing this package loads neither.
   whole chain as one lcapy netlist, solved as an independent reference for
   :mod:`chain.smallsignal`.
 
-lcapy and sympy failures are raised as :class:`~chain.errors.FormulaError`
-carrying the generated netlist.
+Errors are :class:`~chain.errors.FormulaError`: E520 impossible stage parts,
+E521 a part the per-stage template cannot represent, E522 unknown stage or
+missing operating point, E530 lcapy/sympy failure (carrying the generated
+netlist), E531 unknown node.
 """
 
 from chain.formulas.flat import FlatSolution, flat_solve, flat_transfer

@@ -95,7 +95,7 @@ def flat_solve(circuit: "Circuit", dc: "DcSolution", nodes: Sequence[str]) -> Fl
     netlist, names = flat_model(circuit, dc)
     unknown = [n for n in nodes if n not in names]
     if unknown:
-        raise FormulaError(error("E511", f"not a node of the circuit: {', '.join(unknown)}"),
+        raise FormulaError(error("E531", f"not a node of the circuit: {', '.join(unknown)}"),
                            netlist=netlist)
     import lcapy
     import sympy
@@ -109,7 +109,7 @@ def flat_solve(circuit: "Circuit", dc: "DcSolution", nodes: Sequence[str]) -> Fl
             h[n] = sympy.Integer(0) if name == "0" else cct[name].V(s).sympy
         s_sym = s.sympy
     except Exception as exc:  # lcapy raises many kinds; report them all the same way
-        raise FormulaError(error("E510", f"lcapy could not solve the flat circuit: "
+        raise FormulaError(error("E530", f"lcapy could not solve the flat circuit: "
                                  f"{type(exc).__name__}: {exc}"), netlist=netlist) from exc
     return FlatSolution(netlist=netlist, node_names=dict(names), h=h, s=s_sym)
 

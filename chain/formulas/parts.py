@@ -102,7 +102,7 @@ class StageParts:
             problems.append(f"a {self.kind} stage needs rl_ohm (its output is the plate)")
         if problems:
             raise FormulaError(tuple(
-                error("E501", f"stage {self.name}: {p}", subject=self.name) for p in problems))
+                error("E520", f"stage {self.name}: {p}", subject=self.name) for p in problems))
 
 
 def _find(parts, name):
@@ -118,7 +118,7 @@ def _between(part, n1: str, n2: str) -> bool:
 
 def _misplaced(stage: str, part, where: str) -> FormulaError:
     return FormulaError(error(
-        "E502",
+        "E521",
         f"stage {stage}: part {part.name} ({part.a} -- {part.b}) is not {where}; "
         "the per-stage formulas cannot represent it",
         subject=stage))
@@ -169,13 +169,13 @@ def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
         st = circuit.stage(stage_name)
     except KeyError:
         known = ", ".join(s.name for s in circuit.stages) or "none"
-        raise FormulaError(error("E503", f"no stage named {stage_name!r} (stages: {known})",
+        raise FormulaError(error("E522", f"no stage named {stage_name!r} (stages: {known})",
                                  subject=stage_name)) from None
     tri = circuit.triode(st.triode)
     try:
         op = dc.points[st.triode]
     except KeyError:
-        raise FormulaError(error("E503", f"no DC operating point for triode {st.triode!r}",
+        raise FormulaError(error("E522", f"no DC operating point for triode {st.triode!r}",
                                  subject=stage_name)) from None
 
     plate, grid, cathode = tri.plate, tri.grid, tri.cathode
@@ -195,7 +195,7 @@ def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
             raise _misplaced(stage_name, rkc, f"between {cathode} and the bypass node")
         if ck is None or not _between(ck, kb, _GROUND):
             raise FormulaError(error(
-                "E502", f"stage {stage_name}: {rkc.name} has no bypass capacitor from "
+                "E521", f"stage {stage_name}: {rkc.name} has no bypass capacitor from "
                 f"{kb} to {_GROUND}", subject=stage_name))
     elif ck is not None and not _between(ck, cathode, _GROUND):
         raise _misplaced(stage_name, ck, f"between {cathode} and {_GROUND}")
@@ -214,7 +214,7 @@ def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
         raise _misplaced(stage_name, rg, f"between {top} and {_GROUND}")
     if st.kind != "common-grid" and rs is None and grid != st.input:
         raise FormulaError(error(
-            "E502", f"stage {stage_name}: input {st.input} is not the grid {grid} and there "
+            "E521", f"stage {stage_name}: input {st.input} is not the grid {grid} and there "
             "is no grid stopper between them", subject=stage_name))
 
     if rload_ohm is None:

@@ -31,6 +31,7 @@ from __future__ import annotations
 import functools
 import math
 from dataclasses import dataclass
+from types import MappingProxyType
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -148,7 +149,7 @@ class StageFormulas:
 
 def _fail(parts: StageParts, what: str, netlist: str, exc: Exception) -> FormulaError:
     return FormulaError(
-        error("E510", f"stage {parts.name}: lcapy/sympy could not solve the {what}: "
+        error("E530", f"stage {parts.name}: lcapy/sympy could not solve the {what}: "
               f"{type(exc).__name__}: {exc}", subject=parts.name,
               hint="the generated netlist is attached to the error (FormulaError.netlist)"),
         netlist=netlist)
@@ -254,15 +255,17 @@ def _strings(expr, s) -> tuple[str, str]:
     n, d = _display_part(num, s, mu), _display_part(den, s, mu)
     names = {sympy.Symbol(_MU1): r"\left(\mu + 1\right)"}
 
-    def txt(x, wrap):
+    def txt(x, side: str):
+        """``side`` "num": bracket a sum; "den": bracket a sum or a product."""
         t = sympy.sstr(x).replace(_MU1, "(mu + 1)")
-        return f"({t})" if wrap and (x.is_Add or (x.is_Mul and not wrap == "num")) else t
+        bracket = x.is_Add or (side == "den" and x.is_Mul)
+        return f"({t})" if bracket else t
 
     def tex(x):
         return sympy.latex(x, symbol_names=names)
 
     if d == 1:
-        return sign + txt(n, False), sign + tex(n)
+        return sign + txt(n, "num"), sign + tex(n)
     text = f"{sign}{txt(n, 'num')}/{txt(d, 'den')}"
     latex = f"{sign}\\frac{{{tex(n)}}}{{{tex(d)}}}"
     return text, latex
@@ -335,7 +338,7 @@ def _stage_formulas_cached(parts: StageParts, symbolic: bool, f_hz: float) -> St
                 symbols.update({x.name: x for x in expr.free_symbols if x != s})
     return StageFormulas(parts=parts, gain=built["gain"], zin=built["zin"], zout=built["zout"],
                          netlist=num_in, symbolic_netlist=symbolic_netlist,
-                         symbols=symbols, s=s)
+                         symbols=MappingProxyType(symbols), s=s)
 
 
 def stage_formulas(parts: StageParts, *, symbolic: bool = True, f_hz: float = 1000.0

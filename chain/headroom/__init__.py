@@ -2,8 +2,9 @@
 
 Everything here works on the quasi-static mid-band model of
 :mod:`chain.headroom.network` — coupling, bypass and rail-decoupling
-capacitors held at their DC voltages, small capacitors open, inductors
-shorted, triodes with their full plate- and grid-current model.
+capacitors held at their DC voltages, small capacitors open, those in
+between standing in as resistors of their reactance, inductors shorted,
+triodes with their full plate- and grid-current model.
 
 * :func:`transfer_curves` → :class:`TransferCurves` — every stage's input and
   output node, and the chain output, against the swept source voltage;

@@ -61,8 +61,10 @@ CUTOFF = "cutoff"
 #: what the quasi-static mid-band method leaves out (printed with every result)
 LIMITS = (
     "Quasi-static mid-band model: coupling, cathode-bypass and rail-decoupling capacitors are held at their "
-    "DC voltages (short for the signal) and the small capacitors are open, so clipping does not depend on "
-    "frequency here — tone-network and bright-capacitor shaping, Miller and stray capacitance are ignored.",
+    "DC voltages (short for the signal), small capacitors are open and those in between stand in as "
+    "resistors equal to their reactance at the reference frequency, so clipping does not depend on "
+    "frequency here — tone-network and bright-capacitor shaping, Miller and stray capacitance and the "
+    "phase shifts between stages are left out.",
     "No blocking distortion: grid current does not charge the coupling capacitors, so the bias shift after a "
     "burst of grid conduction, and its slow recovery, are not modelled; real stages driven hard clip earlier "
     "and more asymmetrically than shown.",
@@ -436,7 +438,8 @@ def headroom(circuit: Circuit, dc: DcSolution, *, level_v: float, f_ref_hz: floa
     f_ref_hz : float
         Mid-band reference frequency (decides which capacitors are held), Hz.
     held_caps : Iterable[str], optional
-        Hold exactly these capacitors instead of the automatic choice.
+        Short exactly these capacitors (all others open, no stand-ins)
+        instead of the automatic choice.
     thd_levels : tuple[float, ...]
         THD thresholds, ratios (0.01 = 1 %).
     cutoff_fraction : float

@@ -60,7 +60,7 @@ class TransferCurves:
     input_node, output_node : str
         Chain input (after the source impedance) and output node.
     treatment : CapacitorTreatment
-        Held and open capacitors.
+        Held, stand-in and open capacitors.
     stop : tuple[str, str]
         Why the negative and the positive sweep ended.
     cutoff_fraction : float
@@ -222,7 +222,8 @@ def transfer_curves(circuit: Circuit, dc: DcSolution, *, f_ref_hz: float = 1000.
     """Mid-band large-signal transfer curves of every stage and the chain.
 
     Quasi-static: coupling, bypass and rail-decoupling capacitors are held at
-    their DC voltages, the small capacitors are open, inductors shorted (see
+    their DC voltages, the small capacitors are open, those in between stand
+    in as resistors of their reactance, inductors are shorted (see
     :mod:`chain.headroom.network`); triodes follow their full model including
     grid current.  The source is swept as described in the module docstring.
 
@@ -234,7 +235,8 @@ def transfer_curves(circuit: Circuit, dc: DcSolution, *, f_ref_hz: float = 1000.
     f_ref_hz : float
         Mid-band reference frequency that decides which capacitors are held, Hz.
     held_caps : Iterable[str], optional
-        Hold exactly these capacitors instead of the automatic choice.
+        Short exactly these capacitors (all others open, no stand-ins)
+        instead of the automatic choice.
     start_v : float
         Smallest non-zero source magnitude, V.
     points_per_decade : int

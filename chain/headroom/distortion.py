@@ -299,7 +299,7 @@ def distortion(circuit: Circuit, dc: DcSolution, *, level_v: float, points: int 
     f_ref_hz : float
         Mid-band reference frequency, Hz.
     held_caps : Iterable[str], optional
-        Hold exactly these capacitors.
+        Short exactly these capacitors (all others open, no stand-ins).
     treatment : CapacitorTreatment, optional
         A ready capacitor treatment (overrides ``f_ref_hz``/``held_caps``).
     options : SolveOptions, optional

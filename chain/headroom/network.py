@@ -189,15 +189,21 @@ def mid_band_capacitors(circuit: Circuit, dc: DcSolution, *, f_ref_hz: float = 1
         omega_tau=MappingProxyType(omega_tau), band=(lo, hi), chosen_by_caller=held is not None)
 
 
-def mid_band_circuit(circuit: Circuit, treatment: CapacitorTreatment) -> Circuit:
+def mid_band_circuit(circuit: Circuit, treatment: CapacitorTreatment,
+                     node_v: Mapping[str, float] | None = None) -> Circuit:
     """The circuit with every stand-in capacitor split into resistor + capacitor.
 
-    A stand-in ``C`` between ``a`` and ``b`` becomes ``Resistor(C.name +
-    ".Xc", a, a')`` of ``1/(ωC)`` and ``Capacitor(C.name, a', b)`` with the
-    new node ``a' = C.name + ".Xc"``; stage and other node names are kept.
+    A stand-in ``C`` between ``a`` and ``b`` gets a new node ``C.name +
+    ".Xc"`` and the resistor ``C.name + ".Xc"`` of ``1/(ωC)``, on the side of
+    the end with the smaller DC voltage magnitude (from ``node_v``), so that
+    the new node sits near that voltage and its gmin leakage stays
+    negligible; the capacitor keeps its name and holds ``v(a) − v(b)``.
+    Stage and other node names are kept.
     """
     if not treatment.stand_in_ohm:
         return circuit
+    volts = dict(node_v or {})
+    volts[GROUND] = 0.0
     resistors = list(circuit.resistors)
     capacitors = []
     for c in circuit.capacitors:
@@ -206,8 +212,14 @@ def mid_band_circuit(circuit: Circuit, treatment: CapacitorTreatment) -> Circuit
             capacitors.append(c)
             continue
         node = f"{c.name}.Xc"
-        resistors.append(Resistor(f"{c.name}.Xc", c.a, node, ohms))
-        capacitors.append(replace(c, a=node))
+        if abs(volts.get(c.a, 0.0)) >= abs(volts.get(c.b, 0.0)):
+            # a —C— node —R— b
+            resistors.append(Resistor(f"{c.name}.Xc", node, c.b, ohms))
+            capacitors.append(replace(c, b=node))
+        else:
+            # a —R— node —C— b
+            resistors.append(Resistor(f"{c.name}.Xc", c.a, node, ohms))
+            capacitors.append(replace(c, a=node))
     return replace(circuit, resistors=tuple(resistors), capacitors=tuple(capacitors))
 
 
@@ -242,7 +254,7 @@ class MidBandNetwork:
     def __init__(self, circuit: Circuit, dc: DcSolution, treatment: CapacitorTreatment, *,
                  options: SolveOptions = SolveOptions()):
         self.source_circuit = circuit
-        circuit = mid_band_circuit(circuit, treatment)
+        circuit = mid_band_circuit(circuit, treatment, dc.node_v)
         self.circuit = circuit
         self.treatment = treatment
         self.options = options

@@ -29,6 +29,8 @@ from typing import Any
 
 import numpy as np
 
+from chain import SAFETY
+
 __all__ = [
     "SCHEMA",
     "SAFETY",
@@ -44,8 +46,6 @@ __all__ = [
 SCHEMA = "chain-report/1"
 
 #: the one-line safety reminder printed in every report (same wording as the command line's)
-SAFETY = ("Safety: tube amplifiers hold lethal voltages, also after switch-off; these numbers are model "
-          "estimates, not measurements. Work on live equipment only if qualified, under local electrical codes.")
 
 #: significant digits kept for every number of the document
 DIGITS = 12

@@ -103,7 +103,7 @@ def test_stage_parts_validation(changes, words):
     from dataclasses import asdict
     with pytest.raises(FormulaError, match=words) as info:
         StageParts(**{**asdict(CC), **changes})
-    assert all(d.code == "E501" for d in info.value.diagnostics)
+    assert all(d.code == "E520" for d in info.value.diagnostics)
 
 
 def test_flat_node_names_are_safe_and_distinct():

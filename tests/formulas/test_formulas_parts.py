@@ -76,7 +76,7 @@ def test_misplaced_part_is_refused(built):
     moved = tuple(replace(r, b="B1") if r.name == "V1.Rg" else r for r in circuit.resistors)
     with pytest.raises(FormulaError) as info:
         stage_parts(replace(circuit, resistors=moved), dc, "V1")
-    assert info.value.diagnostics[0].code == "E502"
+    assert info.value.diagnostics[0].code == "E521"
     assert "V1.Rg" in str(info.value)
 
 

@@ -147,5 +147,5 @@ def test_lcapy_failure_becomes_formula_error_with_netlist(monkeypatch):
     with pytest.raises(FormulaError) as info:
         stage_formulas(parts)
     assert info.value.netlist == broken
-    assert info.value.diagnostics[0].code == "E510"
+    assert info.value.diagnostics[0].code == "E530"
     assert "V9" in str(info.value)

@@ -71,7 +71,7 @@ CASES = [
     ("direct_loop", "couple V1 -> V2 cap 22n\n",
      "couple V1 -> V2 cap 22n\nstage V3 common-cathode 12AX7\n  plate 100k from B1\n  cathode 1k5\n"
      "stage V4 common-cathode 12AX7\n  plate 100k from B1\n  cathode 1k5\ncouple V3 -> V4 direct\ncouple V4 -> V3 direct\n",
-     "E315", 25, 8),
+     "E315", 24, 8),
     ("kind_not_analysed", "stage V2 common-cathode", "stage V2 cathodyne", "E208", 12, 7),
     ("rail_loop", "rail B1 from HT drop 10k decouple 22u", "rail B1 from B1 drop 10k decouple 22u", "E205", 4, 6),
     ("bad_tube_param", "title \"Corpus base\"", "title \"Corpus base\"\ntube T9 like 12AX7 mu 90 gain 3", "E111", 3, 26),
