@@ -80,7 +80,8 @@ def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic,
         design = replace(design, settings=replace(design.settings, level_v=level_v))
     dc = solve(circuit, options)
     ss = linearize(circuit, dc)
-    freq = response(ss, sweep_frequencies(design))
+    # per-stage impedances are tabulated at the reference frequency only
+    freq = response(ss, sweep_frequencies(design), stage_impedances=False)
     s = design.settings
     rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v)
     total = overall(freq, s.reference_hz)

@@ -17,8 +17,14 @@ import tempfile
 from pathlib import Path
 from typing import Sequence
 
-from chain import SAFETY, __version__
-from chain.errors import ChainError, Diagnostic
+# The matrices here are small (tens of nodes): BLAS threads only add overhead,
+# and on a busy two-core machine they made the response several times slower.
+# Set before numpy is first imported; a user's own setting wins.
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+from chain import SAFETY, __version__  # noqa: E402
+from chain.errors import ChainError, Diagnostic  # noqa: E402
 
 __all__ = ["main", "run"]
 
@@ -351,7 +357,26 @@ def _cmd_headroom(args) -> int:
     return 0
 
 
+def _cmd_formulas(args) -> int:
+    from chain.build import load
+    from chain.dc import solve
+    from chain.formulas import stage_formulas, stage_parts
+    from chain.report.summary import formulas_text
+
+    design, circuit, _ = load(args.file)
+    names = [s.name for s in circuit.stages]
+    if args.stage is not None and args.stage not in names:
+        raise UsageError(f"no stage '{args.stage}' in {args.file}; its stages are {', '.join(names)}")
+    dc = solve(circuit)
+    chosen = [args.stage] if args.stage else names
+    f_ref = design.settings.reference_hz
+    results = [stage_formulas(stage_parts(circuit, dc, n), f_hz=f_ref) for n in chosen]
+    print(formulas_text(design, results, latex=args.latex), end="")
+    return 0
+
+
 _COMMANDS = {
+    "formulas": _cmd_formulas,
     "headroom": _cmd_headroom,
     "check": _cmd_check,
     "bias": _cmd_bias,

@@ -50,3 +50,72 @@ def test_bad_netlist_writes_no_plot(tmp_path, capsys):
     assert main(["plot", str(bad), "-o", str(tmp_path / "x.png")]) == 2
     assert not (tmp_path / "x.png").exists()
     assert f"{bad}:1:16: error E103" in capsys.readouterr().err
+
+
+CLEAN = ROOT / "netlists" / "clean_two_stage.chain"
+BRIGHT = ROOT / "netlists" / "voicings" / "clean_bright.chain"
+DARK = ROOT / "netlists" / "voicings" / "clean_dark.chain"
+
+
+@pytest.mark.parametrize("fmt", ["text", "markdown", "json"])
+def test_report_formats_to_file(fmt, tmp_path, capsys):
+    out = tmp_path / f"r.{fmt}"
+    assert main(["report", str(CLEAN), "--format", fmt, "--output", str(out), "--no-headroom"]) == 0
+    text = out.read_text(encoding="utf-8")
+    assert "Kestrel clean channel" in text
+    if fmt == "json":
+        import json
+
+        assert json.loads(text)["schema"] == "chain-report/1"
+
+
+def test_report_into_missing_folder_is_a_usage_error(tmp_path, capsys):
+    assert main(["report", str(CLEAN), "--output", str(tmp_path / "no" / "r.txt"), "--no-headroom"]) == 2
+    assert "does not exist" in capsys.readouterr().err
+
+
+def test_diff_exit_status_follows_the_diff_tool(tmp_path, capsys):
+    # identical voicing written differently: exit 0, like diff(1)
+    rewritten = tmp_path / "same.chain"
+    rewritten.write_text("# same circuit, other layout\n" + CLEAN.read_text(encoding="utf-8").replace("  ", "   "),
+                         encoding="utf-8")
+    assert main(["diff", str(CLEAN), str(rewritten)]) == 0
+    assert main(["diff", str(BRIGHT), str(DARK), "--plot", str(tmp_path / "d.png")]) == 1
+    out = capsys.readouterr().out
+    assert "V1.Ck" in out
+    assert (tmp_path / "d.png").read_bytes().startswith(b"\x89PNG")
+    assert main(["diff", str(CLEAN), str(tmp_path / "missing.chain")]) == 2
+
+
+def test_compare_three_voicings(tmp_path, capsys):
+    assert main(["compare", str(CLEAN), str(BRIGHT), str(DARK), "--plot", str(tmp_path / "c.svg")]) == 1
+    out = capsys.readouterr().out
+    assert "clean_bright" in out and "clean_dark" in out
+    assert (tmp_path / "c.svg").exists()
+
+
+def test_headroom_command_names_the_first_stage_to_clip(tmp_path, capsys):
+    assert main(["headroom", str(CLEAN), "--level", "50mV", "--plot", str(tmp_path / "h.png")]) == 0
+    out = capsys.readouterr().out
+    assert "first to clip: stage" in out
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["h-harmonics.png", "h-transfer.png"]
+
+
+def test_headroom_bad_level(capsys):
+    assert main(["headroom", str(CLEAN), "--level", "5 V"]) == 2
+    assert "--level" in capsys.readouterr().err
+
+
+def test_formulas_for_one_stage_plain_and_latex(capsys):
+    assert main(["formulas", str(CLEAN), "V2"]) == 0
+    out = capsys.readouterr().out
+    assert "stage V2 (common-cathode)" in out and "stage V1" not in out
+    # bypassed common-cathode mid-band gain in its own symbols (M. Jones, "Valve Amplifiers", from memory)
+    assert "mid-band:  -R_L*mu/(R_L + r_p)" in out
+    assert main(["formulas", str(CLEAN), "--latex"]) == 0
+    assert "\\frac{R_{L} \\mu}{R_{L} + r_{p}}" in capsys.readouterr().out
+
+
+def test_formulas_unknown_stage(capsys):
+    assert main(["formulas", str(CLEAN), "V9"]) == 2
+    assert "no stage 'V9'" in capsys.readouterr().err

@@ -70,3 +70,51 @@ def bias_table(design: Design, circuit: Circuit, dc) -> str:
         for d in dc.diagnostics:
             lines.append(f"  {d.severity} {d.code}: {d.message}")
     return "\n".join(lines)
+
+
+def formulas_text(design: Design, results, *, latex: bool = False) -> str:
+    """The closed forms printed by ``chain formulas``.
+
+    ``results`` is a sequence of :class:`chain.formulas.StageFormulas` in
+    signal order.  Each quantity: its mid-band formula in the stage's own
+    symbols, its s-domain form (without interelectrode capacitances), the
+    mid-band number, and the full model's value at the reference frequency.
+    """
+    units = {"gain": "V/V", "zin": "Ω", "zout": "Ω"}
+    names = {"gain": "gain", "zin": "input impedance", "zout": "output impedance"}
+    lines = [f"{design.title or design.path} — stage formulas (small-signal, at each stage's operating point)", ""]
+    for res in results:
+        p = res.parts
+        lines.append(f"stage {p.name} ({p.kind})")
+        known = [("mu", f"{p.mu:.4g}"), ("r_p", format_si(p.rp_ohm, "Ω", 4))]
+        for label, value, unit in (("R_L", p.rl_ohm, "Ω"), ("R_k", p.rk_ohm, "Ω"), ("C_k", p.ck_f, "F"),
+                                   ("R_kc", p.rkc_ohm, "Ω"), ("R_g", p.rg_ohm, "Ω"), ("R_s", p.rs_ohm, "Ω"),
+                                   ("R_load", p.rload_ohm, "Ω")):
+            if value is not None:
+                known.append((label, format_si(value, unit, 4)))
+        lines.append("  with  " + ", ".join(f"{k} = {v}" for k, v in known))
+        for q in ("gain", "zin", "zout"):
+            f = res.formula(q)
+            mid = f.latex if latex else f.text
+            sform = f.s_latex if latex else f.s_text
+            lines.append(f"  {names[q]}")
+            lines.append(f"    mid-band:  {mid}")
+            lines.append(f"    s-domain:  {sform}")
+            mid_v = "open" if f.midband_value == float("inf") else \
+                f"{f.midband_value:.4g}" if q == "gain" else format_si(f.midband_value, "Ω", 4)
+            lines.append(f"    value:     {mid_v} {'V/V' if q == 'gain' else ''}".rstrip()
+                         + f" mid-band; {_complex(f.value, units[q])} at {format_si(f.f_hz, 'Hz')}"
+                         " (full model, interelectrode capacitances included)")
+        lines.append("")
+    return "\n".join(lines).rstrip() + "\n"
+
+
+def _complex(z: complex, unit: str) -> str:
+    import cmath
+    import math
+
+    if not cmath.isfinite(z):
+        return "open"
+    mag, ph = abs(z), math.degrees(cmath.phase(z))
+    shown = f"{mag:.4g} V/V" if unit == "V/V" else format_si(mag, unit, 4)
+    return f"{shown} ∠ {ph:.1f}°"

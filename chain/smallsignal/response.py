@@ -109,7 +109,7 @@ class Response:
 
 
 def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto",
-             output_impedances: bool = True) -> Response:
+             output_impedances: bool = True, stage_impedances: bool = True) -> Response:
     """Solve ``ss`` at every frequency of ``f_hz``.
 
     Parameters
@@ -146,7 +146,7 @@ def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto",
     source_side = [st for st in mna.stamps if st.kind == "V" or st.name.startswith("input.")]
     zin = _loaded_impedance(mna, ss.node_of[circuit.input_node], source_side, x, s)
     stage_zin = {}
-    for st in circuit.stages:
+    for st in circuit.stages if stage_impedances else ():
         own = stage_owns(st.name, st.triode)
         feeders = [e for e in mna.stamps if not own(e.name)]
         stage_zin[st.name] = _frozen(_loaded_impedance(mna, ss.node_of[st.input], feeders, x, s))
@@ -158,7 +158,7 @@ def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto",
                 if st.kind != "V" and (st.name == "output.load" or st.name.startswith("output.load."))]
         zout = _frozen(_port_impedance(mna, mna.index[ss.node_of[circuit.output_node]], load, s,
                                        method))
-        for st in circuit.stages:
+        for st in circuit.stages if stage_impedances else ():
             own = stage_owns(st.name, st.triode)
             node = mna.index[ss.node_of[st.output]]
             removed = [e for e in mna.stamps
