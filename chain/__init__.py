@@ -3,7 +3,7 @@
 House plan (imports flow one way; a module imports only rooms to its left)::
 
     errors, units → tubes → language → circuit → build → dc → smallsignal
-        → formulas → headroom → analysis → report | plot | diff → cli
+        → formulas → headroom → analysis → report | plot → changes → cli
 
 * ``language`` turns text into frozen :class:`~chain.language.Design` objects
   and knows nothing of analysis;
@@ -11,7 +11,7 @@ House plan (imports flow one way; a module imports only rooms to its left)::
 * ``dc`` solves the nonlinear operating point (Koren triode model);
 * ``smallsignal`` linearises each triode and computes the response numerically;
 * ``formulas`` is the only room that imports lcapy and sympy;
-* ``report``, ``plot`` and ``diff`` read results and compute no new physics.
+* ``report``, ``plot`` and ``changes`` (diff, compare) read results and compute no new physics.
 
 The one entry point for the API is :func:`analyze`.
 """
@@ -25,16 +25,17 @@ SAFETY = ("Safety: tube amplifiers hold lethal voltages, also after switch-off; 
 __all__ = ["__version__", "SAFETY", "analyze", "diff"]
 
 
-def analyze(source, **options):
-    """Analyse a netlist file (path) or an already parsed Design; see
-    :func:`chain.analysis.analyze`."""
+def analyze(source, *, headroom=True, options=None, level_v=None):
+    """Analyse a netlist file (path) or a parsed Design; returns an
+    :class:`~chain.analysis.Analysis`.  See :func:`chain.analysis.analyze`."""
     from chain.analysis import analyze as _analyze
+    from chain.dc import SolveOptions
 
-    return _analyze(source, **options)
+    return _analyze(source, headroom=headroom, options=options or SolveOptions(), level_v=level_v)
 
 
-def diff(a, b, **options):
-    """Compare two analyses; see :func:`chain.diff.diff`."""
-    from chain.diff import diff as _diff
+def diff(a, b, *, tol_db=0.05, tol_pct=0.5):
+    """What changed between two analyses (or JSON reports); see :func:`chain.changes.diff`."""
+    from chain.changes import diff as _diff
 
-    return _diff(a, b, **options)
+    return _diff(a, b, tol_db=tol_db, tol_pct=tol_pct)

@@ -90,7 +90,12 @@ def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic,
         from chain.headroom import headroom as run_headroom
 
         large = run_headroom(circuit, dc, level_v=s.level_v)
-    text = "\n".join(design.lines)
+    if design.lines:
+        text = "\n".join(design.lines)
+    else:  # made or changed in Python: hash its canonical text
+        from chain.language.writer import format_design
+
+        text = format_design(design)
     return Analysis(
         design=design, circuit=circuit, dc=dc, freq=freq, stages=rows, overall=total, headroom=large,
         diagnostics=tuple(warnings) + tuple(dc.diagnostics),

@@ -293,7 +293,7 @@ def _cmd_report(args) -> int:
 
 
 def _cmd_diff(args) -> int:
-    from chain.diff import diff, load_voicing, render_diff
+    from chain.changes import diff, load_voicing, render_diff
 
     plot_path = _figure_path(args.plot) if args.plot else None
     a, b = load_voicing(args.a), load_voicing(args.b)
@@ -309,7 +309,7 @@ def _cmd_diff(args) -> int:
 
 
 def _cmd_compare(args) -> int:
-    from chain.diff import compare, load_voicing, render_compare
+    from chain.changes import compare, load_voicing, render_compare
 
     plot_path = _figure_path(args.plot) if args.plot else None
     voicings = [load_voicing(f) for f in args.files]

@@ -21,7 +21,7 @@ RANKS = {
     "formulas": 7, "headroom": 7,
     "analysis": 8,
     "report": 9, "plot": 9,
-    "diff": 10,
+    "changes": 10,
     "cli": 11, "__main__": 12,
 }
 #: heavy third-party packages and the only rooms that may import them

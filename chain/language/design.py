@@ -269,7 +269,8 @@ class Design:
 
     def with_stage(self, name: str, **changes) -> "Design":
         """A new Design with stage ``name``'s fields replaced."""
-        stages = tuple(replace(s, **changes) if s.name == name else s for s in self.stages)
-        if stages == self.stages and not any(s.name == name for s in self.stages):
+        if not any(s.name == name for s in self.stages):
             raise KeyError(name)
-        return replace(self, stages=stages)
+        stages = tuple(replace(s, **changes) if s.name == name else s for s in self.stages)
+        # the result no longer matches the file's text: drop the text, mark the origin
+        return replace(self, stages=stages, lines=(), path=f"{self.path} (modified)")

@@ -2,7 +2,7 @@
 
 :func:`report_data` is the single place where an analysis becomes numbers in
 a fixed layout; the text, Markdown and JSON renderers all read its output,
-and :mod:`chain.diff` compares two such documents.  The layout is described
+and :mod:`chain.changes` compares two such documents.  The layout is described
 in ``docs/report-format.md`` and, formally, in ``chain/report/schema.json``.
 
 Conventions

@@ -1,4 +1,4 @@
-"""chain.diff: what a part change moved, on hand-made voicing pairs.
+"""chain.changes: what a part change moved, on hand-made voicing pairs.
 
 Each pair differs in one written part; the expected movements are checked
 against the diff and, where a textbook formula exists, against it:
@@ -21,7 +21,7 @@ import pytest
 from chain.analysis import analyze_design
 from chain.build import load_text
 from chain.dc import solve
-from chain.diff import (
+from chain.changes import (
     Change,
     CompareResult,
     DiffResult,

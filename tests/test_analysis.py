@@ -1,0 +1,61 @@
+"""The one entry point: chain.analyze → Analysis, and its delegates."""
+
+from dataclasses import replace
+from pathlib import Path
+
+import pytest
+
+import chain
+from chain.errors import LanguageError
+from chain.language import parse_file
+
+CLEAN = Path(__file__).parents[1] / "netlists" / "clean_two_stage.chain"
+
+
+@pytest.fixture(scope="module")
+def clean():
+    return chain.analyze(CLEAN, headroom=False)
+
+
+def test_analysis_holds_every_step(clean):
+    assert [r.stage for r in clean.stages] == ["V1", "V2"]
+    assert clean.headroom is None
+    assert set(clean.dc.points) == {"V1", "V2"}
+    assert clean.response() is clean.freq
+    assert clean.freq.f_hz[0] == pytest.approx(10.0) and clean.freq.f_hz[-1] == pytest.approx(40e3)
+    # the reference frequency is on the sweep grid exactly
+    assert 1000.0 in clean.freq.f_hz
+
+
+def test_table_is_the_stage_section_of_the_text_report(clean):
+    table = clean.table()
+    assert table.splitlines()[0].startswith("Stages at 1 kHz")
+    assert "V1" in table and "V2" in table
+
+
+def test_level_override_scales_the_signal_levels(clean):
+    louder = chain.analyze(CLEAN, headroom=False, level_v=0.2)
+    for a, b in zip(clean.stages, louder.stages):
+        assert b.level_out_v == pytest.approx(2 * a.level_out_v, rel=1e-12)
+        assert b.gain == a.gain
+
+
+def test_a_changed_design_gets_its_own_hash_and_diff(clean):
+    d = parse_file(CLEAN)
+    lean = d.with_stage("V1", cathode=replace(d.stage("V1").cathode, bypass_f=1e-6))
+    b = chain.analyze(lean, headroom=False)
+    assert b.netlist_sha256 != clean.netlist_sha256
+    assert chain.diff(clean, b).differs
+    assert not chain.diff(clean, chain.analyze(d, headroom=False)).differs
+
+
+def test_bad_design_raises_a_language_error(tmp_path):
+    bad = tmp_path / "bad.chain"
+    bad.write_text("stage V1 common-cathode 12AX7\n", encoding="utf-8")
+    with pytest.raises(LanguageError):
+        chain.analyze(bad)
+
+
+def test_with_stage_unknown_name():
+    with pytest.raises(KeyError):
+        parse_file(CLEAN).with_stage("V9", grid_leak_ohm=1e6)
