@@ -40,7 +40,7 @@ __all__ = ["build", "load", "load_text", "pot_fraction", "tube_model", "WIPER_OH
 WIPER_OHM = 0.1
 
 _RATING_KEYS = {"vp-max": "vp_max_v", "pd-max": "pd_max_w", "ik-max": "ik_max_a",
-                "vhk-max": "vhk_max_v", "rg-max": "rg_max_ohm"}
+                "vhk-max": "vhk_max_v", "rg-max": "rg_max_ohm", "vp0-max": "vp_cold_max_v"}
 _MODEL_KEYS = {"mu": "mu", "ex": "ex", "kg1": "kg1", "kp": "kp", "kvb": "kvb",
                "cgk": "cgk_f", "cgp": "cgp_f", "cpk": "cpk_f"}
 

@@ -11,7 +11,9 @@ W404  plate dissipation over the derated limit ``derating``·Pd(max)
 W405  plate voltage over the rated maximum — warning for the hot
       plate–cathode voltage; a note when only the cold-start plate voltage
       (tubes not yet conducting, so no drop in any load: the plate sits at
-      its no-load rail voltage) is over it
+      its no-load rail voltage) is over it and the tube's cold rating is
+      not known
+W411  cold-start plate voltage over the tube's cold (zero-current) rating
 W406  heater–cathode voltage |Vk − heater_v| over the rating (a
       direct-coupled cathode follower with its cathode near 200 V and the
       heaters at 0 V is the classic case)
@@ -135,6 +137,13 @@ def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: f
             out.append(warning(
                 "W405", f"{who} plate–cathode voltage {_v(p.vpk_v)} is over the rating of {_v(vp_max)}",
                 hint="lower the rail or raise the plate load", subject=subject))
+        elif cold_vpk is not None and cold_vpk > vp_max and _rating(r, "vp_cold_max_v") is not None:
+            if cold_vpk > r.vp_cold_max_v:
+                out.append(warning(
+                    "W411", f"{who} plate voltage at cold start (no plate current yet) is {_v(cold_vpk)}, over "
+                    f"the cold (zero-current) rating of {_v(r.vp_cold_max_v)}",
+                    hint="lower the supply, or delay the high voltage until the heaters are warm",
+                    subject=subject))
         elif cold_vpk is not None and cold_vpk > vp_max:
             out.append(Diagnostic(
                 "W405", "note",

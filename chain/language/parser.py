@@ -51,7 +51,7 @@ NETWORK_MEMBERS = {"part", "pot"}
 TUBE_KEYS = {
     "mu": None, "ex": None, "kg1": None, "kp": None, "kvb": None,
     "cgk": "F", "cgp": "F", "cpk": "F",
-    "vp-max": "V", "pd-max": "W", "ik-max": "A", "vhk-max": "V", "rg-max": "ohm",
+    "vp-max": "V", "pd-max": "W", "ik-max": "A", "vhk-max": "V", "rg-max": "ohm", "vp0-max": "V",
 }
 
 

@@ -42,7 +42,7 @@ def _tube_value(key: str, value: float) -> str:
         return _c(value)
     if key == "rg-max":
         return _r(value)
-    unit = {"vp-max": "V", "pd-max": "W", "ik-max": "A", "vhk-max": "V"}.get(key, "")
+    unit = {"vp-max": "V", "vp0-max": "V", "pd-max": "W", "ik-max": "A", "vhk-max": "V"}.get(key, "")
     return f"{_n(value)}{unit}"
 
 

@@ -57,6 +57,7 @@ _12AX7 = TriodeModel(
         ik_max_a=8e-3,  # from memory of Philips ECC83 data sheet
         vhk_max_v=180.0,  # from memory of Philips ECC83 data sheet
         rg_max_ohm=2.0e6,  # from memory of Philips ECC83 data sheet, cathode bias (uncertain)
+        vp_cold_max_v=550.0,  # from memory of Philips ECC83 data sheet (plate voltage without current)
         source="from memory of Philips ECC83 data sheet and RCA Receiving Tube Manual RC-30 (12AX7)",
     ),
     source=_FIT.format(
@@ -85,6 +86,7 @@ _12AT7 = TriodeModel(
         ik_max_a=15e-3,  # from memory of Philips ECC81 data sheet
         vhk_max_v=90.0,  # from memory of Philips ECC81 data sheet
         rg_max_ohm=1.0e6,  # from memory of Philips ECC81 data sheet, cathode bias (uncertain)
+        vp_cold_max_v=550.0,  # from memory of Philips ECC81 data sheet (plate voltage without current)
         source="from memory of Philips ECC81 data sheet and RCA Receiving Tube Manual RC-30 (12AT7)",
     ),
     source=_FIT.format(
@@ -113,6 +115,7 @@ _12AU7 = TriodeModel(
         ik_max_a=20e-3,  # from memory of Philips ECC82 data sheet
         vhk_max_v=180.0,  # from memory of Philips ECC82 data sheet
         rg_max_ohm=1.0e6,  # from memory of Philips ECC82 data sheet, cathode bias (uncertain)
+        vp_cold_max_v=550.0,  # from memory of Philips ECC82 data sheet (plate voltage without current)
         source="from memory of Philips ECC82 data sheet and RCA Receiving Tube Manual RC-30 (12AU7)",
     ),
     source=_FIT.format(

@@ -68,6 +68,10 @@ class Ratings:
         Maximum grid-circuit (grid-leak) resistance with cathode bias (ohm).
     source : str
         Where the numbers come from.
+    vp_cold_max_v : float or None
+        Maximum plate voltage with the tube cold, no plate current yet
+        (the supply voltage at switch-on), V.  Data sheets give it
+        separately from, and higher than, the running rating.
     """
 
     vp_max_v: float | None
@@ -76,9 +80,10 @@ class Ratings:
     vhk_max_v: float | None
     rg_max_ohm: float | None
     source: str
+    vp_cold_max_v: float | None = None
 
     def __post_init__(self) -> None:
-        for name in ("vp_max_v", "pd_max_w", "ik_max_a", "vhk_max_v", "rg_max_ohm"):
+        for name in ("vp_max_v", "pd_max_w", "ik_max_a", "vhk_max_v", "rg_max_ohm", "vp_cold_max_v"):
             value = getattr(self, name)
             if value is not None and not (math.isfinite(value) and value > 0):
                 raise ValueError(f"Ratings.{name} must be a positive finite number or None, got {value!r}")

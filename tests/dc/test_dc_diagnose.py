@@ -86,12 +86,33 @@ def test_w405_hot_plate_voltage_over_rating(kit):
     assert d.severity == "warning" and d.subject == "V1" and "300 V" in d.message
 
 
-def test_w405_cold_start_note(kit):
-    sol = solve(kit.single_stage(rail_v=350.0))
+def _without_cold_rating(circuit):
+    from dataclasses import replace
+
+    tri = circuit.triodes[0]
+    model = replace(tri.model, ratings=replace(tri.model.ratings, vp_cold_max_v=None))
+    return replace(circuit, triodes=(replace(tri, model=model),))
+
+
+def test_w405_cold_start_note_when_the_cold_rating_is_unknown(kit):
+    sol = solve(_without_cold_rating(kit.single_stage(rail_v=350.0)))
     # hot the plate sits near 230 V; cold (no current, no drop in RL) it sits at the 350 V rail
     assert sol.points["V1"].vpk_v < 300.0
     d = find(sol, "W405")
     assert d.severity == "note" and "cold" in d.message and "350 V" in d.message
+
+
+def test_cold_start_within_the_cold_rating_is_quiet(kit):
+    # 350 V cold is within the 12AX7's 550 V zero-current rating (from memory of the Philips ECC83 data sheet)
+    sol = solve(kit.single_stage(rail_v=350.0))
+    assert not [d for d in sol.diagnostics if d.code in ("W405", "W411")]
+
+
+def test_w411_cold_start_over_the_cold_rating(kit):
+    sol = solve(kit.single_stage(rail_v=600.0, rl=470e3, rk=820.0))
+    assert sol.points["V1"].vpk_v < 300.0
+    d = find(sol, "W411")
+    assert d.severity == "warning" and "600 V" in d.message and "550 V" in d.message
 
 
 def test_w406_heater_cathode(kit):
