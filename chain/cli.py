@@ -217,7 +217,7 @@ def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
     import numpy as np
 
     from chain.dc import plate_family, stage_lines
-    from chain.plot.bias import plot_characteristics, save_figure
+    from chain.plot.bias import plot_characteristics
 
     target = Path(plot_path)
     figures = []
@@ -233,20 +233,17 @@ def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
         figures.append((target.with_name(f"{target.stem}-{st.name}{target.suffix}"), plot))
     written = []
     for path, plot in figures:  # draw everything first, then write: nothing half-done
-        save_figure(plot, path)
+        _save_figure(plot, str(path))
         written.append(str(path))
     return written
 
 
 def _save_figure(figure, path: str) -> None:
-    """Render ``figure`` completely in memory, then write it atomically."""
-    import io
+    from chain.plot.files import save_figure
 
-    fmt = Path(path).suffix.lower().lstrip(".")
-    buf = io.BytesIO()
-    metadata = {"Date": None} if fmt == "svg" else {"Software": None}
-    figure.savefig(buf, format=fmt, dpi=200 if fmt == "png" else None, metadata=metadata)
-    write_atomically(path, buf.getvalue())
+    if not Path(path).parent.exists():
+        raise UsageError(f"cannot write {path}: folder {Path(path).parent} does not exist")
+    save_figure(figure, path)
 
 
 def _bode_nodes(analysis, with_stages: bool):

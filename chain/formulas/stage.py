@@ -41,7 +41,7 @@ from chain.formulas.netlist import SYMBOLS, stage_netlist
 from chain.formulas.parts import StageParts
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
-    import sympy
+    pass
 
 __all__ = ["Formula", "StageFormulas", "stage_formulas", "QUANTITIES"]
 

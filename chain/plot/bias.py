@@ -11,7 +11,6 @@ objects so callers restyle and tests read ``line.get_xdata()`` /
 from __future__ import annotations
 
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -19,7 +18,7 @@ import numpy as np
 from chain.dc.curves import BiasLine, LoadLine, PlateFamily
 from chain.dc.result import OperatingPoint
 
-__all__ = ["CharacteristicsPlot", "plot_characteristics", "save_figure", "PALETTE"]
+__all__ = ["CharacteristicsPlot", "plot_characteristics", "PALETTE"]
 
 #: colours of the drawing: curves run from a light to a dark slate blue with
 #: rising grid voltage; the load line is amber, the bias line teal, the
@@ -150,32 +149,3 @@ def _fmt_ohm(value: float) -> str:
     from chain.units import format_si
 
     return format_si(value, "Ω", 3)
-
-
-def save_figure(plot: CharacteristicsPlot, path: str | Path, *, dpi: int = 150) -> Path:
-    """Write the figure as PNG or SVG, chosen by the file suffix.
-
-    The file is written to a temporary name beside the target and renamed,
-    so a failed write leaves no half file.
-
-    Parameters
-    ----------
-    plot : CharacteristicsPlot
-    path : str or Path
-        Target file, ending in ``.png`` or ``.svg``.
-    dpi : int
-        Resolution for PNG, dots per inch.
-
-    Returns
-    -------
-    Path
-        The written file.
-    """
-    path = Path(path)
-    fmt = path.suffix.lower().lstrip(".")
-    if fmt not in ("png", "svg"):
-        raise ValueError(f"save_figure writes .png or .svg files, not {path.name!r}")
-    tmp = path.with_name(path.name + ".part")
-    plot.figure.savefig(tmp, format=fmt, dpi=dpi)
-    tmp.replace(path)
-    return path

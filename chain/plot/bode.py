@@ -10,12 +10,11 @@ objects are used (no pyplot state).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Sequence
 
 import numpy as np
 
-__all__ = ["BodePlot", "bode", "save", "PALETTE"]
+__all__ = ["BodePlot", "bode", "PALETTE"]
 
 #: trace colours, in order: dark enough for print, distinguishable in grey
 PALETTE = ("#1d3557", "#b5651d", "#2a7f62", "#7b2d5b", "#6b6b12", "#a23b2a", "#3d6f9e", "#555555")
@@ -118,23 +117,6 @@ def bode(response, *, nodes: Sequence[str] | None = None,
     if title:
         mag_ax.set_title(title, fontsize=11, loc="left")
     return BodePlot(fig, (mag_ax, ph_ax), tuple(mag_lines), tuple(ph_lines), wanted, tuple(marks))
-
-
-def save(figure, path: str | Path) -> Path:
-    """Write ``figure`` as PNG or SVG, chosen by the suffix of ``path``.
-
-    Raises
-    ------
-    ValueError
-        for any other suffix.
-    """
-    path = Path(path)
-    fmt = path.suffix.lower().lstrip(".")
-    if fmt not in ("png", "svg"):
-        raise ValueError(f"cannot save a plot as {path.suffix or 'no suffix'!r}: use .png or .svg")
-    metadata = {"Date": None} if fmt == "svg" else {"Software": None}
-    figure.savefig(path, format=fmt, dpi=200 if fmt == "png" else None, metadata=metadata)
-    return path
 
 
 def _labels(circuit, nodes: Sequence[str]) -> list[str]:

@@ -14,15 +14,13 @@ used (no pyplot state).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Mapping, Sequence
 
 import numpy as np
 
 from chain.plot.bode import DASHES, PALETTE
-from chain.plot.bode import save as _save
 
-__all__ = ["Curve", "OverlayPlot", "curve", "difference_db", "overlay", "save"]
+__all__ = ["Curve", "OverlayPlot", "curve", "difference_db", "overlay"]
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -195,10 +193,3 @@ def overlay(responses: Sequence, labels: Sequence[str] | None = None, *, diff_pa
     if title:
         mag_ax.set_title(title, fontsize=11, loc="left")
     return OverlayPlot(fig, tuple(axes), tuple(lines), tuple(ph_lines), tuple(d_lines), diff_ax)
-
-
-def save(plot, path: str | Path) -> Path:
-    """Write an :class:`OverlayPlot` (or a bare Figure) as PNG or SVG, by the
-    suffix of ``path`` (:func:`chain.plot.bode.save`)."""
-    figure = plot.figure if isinstance(plot, OverlayPlot) else plot
-    return _save(figure, path)

@@ -27,12 +27,11 @@ taller.  The legend gives each series' THD.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-__all__ = ["TransferPlot", "HarmonicsPlot", "plot_transfer", "plot_harmonics", "save", "COLOURS"]
+__all__ = ["TransferPlot", "HarmonicsPlot", "plot_transfer", "plot_harmonics", "COLOURS"]
 
 #: one colour per series, in signal order (a muted, colour-blind-friendly set)
 COLOURS = ("#3b6ea8", "#c8553d", "#4f9a5b", "#8a5fb0", "#d49a2a", "#2f8f8f", "#a0526d", "#5c5c5c")
@@ -261,30 +260,3 @@ def plot_harmonics(dist, *, stages: Sequence[str] | None = None, own: bool = Fal
     _style(ax)
     fig.legend(loc="outside lower center", ncol=min(len(series), 3), fontsize=8, frameon=False)
     return HarmonicsPlot(figure=fig, axes=ax, bars=bars, levels_db=levels, floor_db=float(floor_db))
-
-
-def save(plot: TransferPlot | HarmonicsPlot, path: str | Path, *, dpi: int = 150) -> Path:
-    """Write a headroom figure as PNG or SVG, chosen by the file suffix.
-
-    Written to a temporary name beside the target, then renamed.
-
-    Parameters
-    ----------
-    plot : TransferPlot or HarmonicsPlot
-    path : str or Path
-        Target file ending in ``.png`` or ``.svg``.
-    dpi : int
-        Resolution for PNG, dots per inch.
-
-    Returns
-    -------
-    Path
-    """
-    path = Path(path)
-    fmt = path.suffix.lower().lstrip(".")
-    if fmt not in ("png", "svg"):
-        raise ValueError(f"headroom figures are written as .png or .svg, not {path.name!r}")
-    tmp = path.with_name(path.name + ".part")
-    plot.figure.savefig(tmp, format=fmt, dpi=dpi)
-    tmp.replace(path)
-    return path

@@ -78,7 +78,8 @@ def test_textbook_load_line_also_draws(stage):
 
 @pytest.mark.parametrize("suffix, magic", [(".png", b"\x89PNG"), (".svg", b"<?xml")])
 def test_save_writes_png_and_svg(stage, tmp_path, suffix, magic):
-    from chain.plot.bias import plot_characteristics, save_figure
+    from chain.plot.bias import plot_characteristics
+    from chain.plot.files import save_figure
 
     family, load, bias, point = stage
     path = save_figure(plot_characteristics(family, load, point, bias=bias), tmp_path / f"bias{suffix}")
@@ -87,7 +88,8 @@ def test_save_writes_png_and_svg(stage, tmp_path, suffix, magic):
 
 
 def test_save_rejects_other_formats(stage, tmp_path):
-    from chain.plot.bias import plot_characteristics, save_figure
+    from chain.plot.bias import plot_characteristics
+    from chain.plot.files import save_figure
 
     family, load, _, point = stage
     with pytest.raises(ValueError, match="png"):

@@ -8,7 +8,8 @@ from numpy.testing import assert_allclose
 
 from chain.circuit import GROUND, Capacitor, Circuit, Resistor, StageNodes, Triode, VoltageSource
 from chain.dc.result import DcSolution, OperatingPoint
-from chain.plot.bode import bode, save
+from chain.plot.bode import bode
+from chain.plot.files import save_figure as save
 from chain.smallsignal import linearize, response
 from chain.tubes import lookup
 

@@ -14,7 +14,8 @@ import pytest
 
 from chain.analysis import analyze_design
 from chain.build import load_text
-from chain.plot.compare import Curve, curve, difference_db, overlay, save
+from chain.plot.compare import Curve, curve, difference_db, overlay
+from chain.plot.files import save_figure as save
 from chain.report import render
 
 NETLIST = """\

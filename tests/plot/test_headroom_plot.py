@@ -84,7 +84,8 @@ def test_harmonic_bars_carry_the_levels(result):
 
 @pytest.mark.parametrize("suffix, magic", [(".png", b"\x89PNG"), (".svg", b"<?xml")])
 def test_save_by_suffix(result, tmp_path, suffix, magic):
-    from chain.plot.headroom import plot_harmonics, plot_transfer, save
+    from chain.plot.files import save_figure as save
+    from chain.plot.headroom import plot_harmonics, plot_transfer
 
     for name, plot in (("transfer", plot_transfer(result.curves)), ("harmonics", plot_harmonics(result.distortion))):
         path = save(plot, tmp_path / f"{name}{suffix}", dpi=40)
@@ -93,7 +94,8 @@ def test_save_by_suffix(result, tmp_path, suffix, magic):
 
 
 def test_save_rejects_other_formats(result, tmp_path):
-    from chain.plot.headroom import plot_transfer, save
+    from chain.plot.files import save_figure as save
+    from chain.plot.headroom import plot_transfer
 
     with pytest.raises(ValueError, match="png"):
         save(plot_transfer(result.curves), tmp_path / "transfer.pdf")

@@ -1,0 +1,61 @@
+"""Writing figures: the one place that turns a matplotlib Figure into a file."""
+
+from __future__ import annotations
+
+import io
+import os
+import tempfile
+from pathlib import Path
+
+__all__ = ["FORMATS", "save_figure"]
+
+#: file suffixes a figure can be written as
+FORMATS = ("png", "svg")
+
+
+def save_figure(plot, path: str | Path, *, dpi: int = 200) -> Path:
+    """Write a figure as PNG or SVG, chosen by the suffix of ``path``.
+
+    The image is rendered completely in memory first, then written to a
+    temporary file beside the target and renamed over it, so a failure never
+    leaves a half-written file.  Metadata that would change from run to run
+    (dates, software versions) is left out.
+
+    Parameters
+    ----------
+    plot
+        A matplotlib ``Figure``, or any plot object of this package with a
+        ``figure`` attribute (BodePlot, CharacteristicsPlot, …).
+    path : str or Path
+        Target file ending in ``.png`` or ``.svg``.
+    dpi : int
+        Resolution of a PNG, dots per inch.
+
+    Returns
+    -------
+    Path
+        The written file.
+
+    Raises
+    ------
+    ValueError
+        for any other suffix.
+    """
+    figure = getattr(plot, "figure", plot)
+    path = Path(path)
+    fmt = path.suffix.lower().lstrip(".")
+    if fmt not in FORMATS:
+        raise ValueError(f"cannot save a plot as {path.suffix or 'no suffix'!r}: use .png or .svg")
+    buf = io.BytesIO()
+    metadata = {"Date": None} if fmt == "svg" else {"Software": None}
+    figure.savefig(buf, format=fmt, dpi=dpi if fmt == "png" else None, metadata=metadata)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(buf.getvalue())
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path
