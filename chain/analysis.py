@@ -18,7 +18,7 @@ import numpy as np
 from chain import __version__
 from chain.circuit import Circuit
 from chain.dc import DcSolution, SolveOptions, solve
-from chain.errors import Diagnostic
+from chain.errors import ChainError, Diagnostic
 from chain.language.design import Design
 from chain.smallsignal import OverallResult, Response, StageRow, linearize, overall, response, stage_table
 
@@ -78,6 +78,30 @@ def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic,
     """Analyse an already built design (see :func:`analyze`)."""
     if level_v is not None:
         design = replace(design, settings=replace(design.settings, level_v=level_v))
+    try:
+        return _analyze_steps(design, circuit, warnings, headroom=headroom, options=options)
+    except ChainError as exc:
+        # give every message about a stage or part the netlist line it came from
+        exc.diagnostics = locate(exc.diagnostics, circuit, design)
+        raise
+
+
+def locate(diagnostics, circuit: Circuit, design: Design) -> tuple[Diagnostic, ...]:
+    """Diagnostics about a stage or part (``subject``) without a place get the
+    span of the netlist line that made it (from ``circuit.origins``)."""
+    out = []
+    for d in diagnostics:
+        span = circuit.origins.get(d.subject) if d.subject and d.span is None else None
+        if span is not None and span.line > 0:
+            if not span.text and span.line <= len(design.lines):
+                span = replace(span, text=design.lines[span.line - 1])
+            d = replace(d, span=span)
+        out.append(d)
+    return tuple(out)
+
+
+def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool,
+                   options: SolveOptions) -> Analysis:
     dc = solve(circuit, options)
     ss = linearize(circuit, dc)
     # per-stage impedances are tabulated at the reference frequency only
@@ -98,7 +122,7 @@ def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic,
         text = format_design(design)
     return Analysis(
         design=design, circuit=circuit, dc=dc, freq=freq, stages=rows, overall=total, headroom=large,
-        diagnostics=tuple(warnings) + tuple(dc.diagnostics),
+        diagnostics=tuple(warnings) + locate(dc.diagnostics, circuit, design),
         netlist_sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
         options=options,
     )

@@ -59,3 +59,23 @@ def test_bad_design_raises_a_language_error(tmp_path):
 def test_with_stage_unknown_name():
     with pytest.raises(KeyError):
         parse_file(CLEAN).with_stage("V9", grid_leak_ohm=1e6)
+
+
+def test_operating_point_warnings_point_at_the_stage_line(tmp_path):
+    hot = tmp_path / "hot.chain"
+    hot.write_text("supply HT 450V\ninput into V1 resistance 10k\nstage V1 common-cathode 12AX7\n"
+                   "  plate 10k from HT\n  cathode 100\n  grid leak 1M\noutput V1 load 1M\n", encoding="utf-8")
+    a = chain.analyze(hot, headroom=False)
+    w403 = [d for d in a.diagnostics if d.code == "W403"]
+    assert w403 and (w403[0].span.path, w403[0].span.line, w403[0].span.column) == (str(hot), 3, 7)
+
+
+def test_dc_failure_is_located():
+    from chain.dc import SolveOptions
+    from chain.errors import DcConvergenceError
+
+    path = Path(__file__).parents[1] / "netlists" / "lead_four_stage.chain"
+    with pytest.raises(DcConvergenceError) as info:
+        chain.analyze(path, headroom=False, options=SolveOptions(max_iter=1, tol_v=1e-30, tol_a=1e-30))
+    located = [d for d in info.value.diagnostics if d.span is not None]
+    assert located and located[0].span.path == str(path)
