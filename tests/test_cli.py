@@ -78,3 +78,16 @@ def test_check_does_not_import_heavy_modules():
             "print('HEAVY=' + ','.join(heavy))") % str(DEMOS[0])
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=ROOT)
     assert out.stdout.strip().splitlines()[-1] == "HEAVY="
+
+
+def test_internal_error_says_so_and_exits_3(monkeypatch, capsys):
+    import chain.cli as cli
+
+    def broken(args):
+        raise ZeroDivisionError("boom")
+
+    monkeypatch.setitem(cli._COMMANDS, "check", broken)
+    assert main(["check", str(DEMOS[0])]) == 3
+    err = capsys.readouterr().err
+    assert "internal error (ZeroDivisionError: boom)" in err and "bug in chain" in err
+    assert "Traceback" not in err
