@@ -33,7 +33,7 @@ from chain.errors import Diagnostic, LanguageError, Span, error
 from chain.language.design import Design, Pot, Stage
 from chain.tubes import Ratings, TriodeModel, lookup
 
-__all__ = ["build", "load", "load_text", "pot_fraction", "tube_model", "WIPER_OHM"]
+__all__ = ["build", "load", "load_text", "part_names", "pot_fraction", "tube_model", "with_part", "WIPER_OHM"]
 
 #: smallest resistance either side of a pot's wiper, ohm (contact resistance;
 #: keeps a pot turned fully up or down from shorting two nodes together)
@@ -445,3 +445,84 @@ def _loaded(design: Design):
 
     warnings = check(design)
     return design, build(design), warnings
+
+
+#: stage part suffix → (Stage field, Cathode field or None)
+_STAGE_PARTS = {"RL": ("plate_load_ohm", None), "Rg": ("grid_leak_ohm", None), "Rs": ("grid_stopper_ohm", None),
+                "Rk": ("cathode", "r_ohm"), "Ck": ("cathode", "bypass_f"), "Rkc": ("cathode", "bypass_series_ohm")}
+
+
+def part_names(design: Design) -> tuple[str, ...]:
+    """Every part name :func:`with_part` accepts, in a stable order."""
+    names = [f"supply.{s.name}" for s in design.supplies]
+    for r in design.rails:
+        names.append(f"rail.{r.name}.R")
+        if r.decouple_f is not None:
+            names.append(f"rail.{r.name}.C")
+    for s in design.stages:
+        for suffix, (field, sub) in _STAGE_PARTS.items():
+            holder = s.cathode if sub else s
+            if holder is not None and getattr(holder, sub or field) is not None:
+                names.append(f"{s.name}.{suffix}")
+    names += [f"couple.{c.src}-{c.dst}.C" for c in design.couplings if c.kind == "cap"]
+    names += [f"{n.name}.{p.name}" for n in design.networks for p in n.parts]
+    if design.output is not None:
+        names.append("output.load")
+    return tuple(names)
+
+
+def with_part(design: Design, part: str, value: float) -> Design:
+    """A new Design with one part's value changed (SI units).
+
+    ``part`` is named as in the circuit and the reports: ``V1.Ck``,
+    ``V2.RL``, ``rail.B2.R``, ``rail.B2.C``, ``supply.HT`` (volts),
+    ``couple.V1-V2.C``, ``tone.slope`` (a network part: every attached copy
+    of the network changes), ``output.load``.  For a pot (``tone.treble``)
+    the value is the knob setting 0–10.
+
+    Raises
+    ------
+    KeyError
+        for a name the design has no part of; the message lists the closest.
+    """
+    import difflib
+
+
+    head, _, tail = part.partition(".")
+    stage_names = {s.name for s in design.stages}
+    if head in stage_names and tail in _STAGE_PARTS:
+        field, sub = _STAGE_PARTS[tail]
+        stage = design.stage(head)
+        if sub is None:
+            if getattr(stage, field) is not None:
+                return design.with_stage(head, **{field: value})
+        elif stage.cathode is not None and getattr(stage.cathode, sub) is not None:
+            return design.with_stage(head, cathode=replace(stage.cathode, **{sub: value}))
+    elif head == "supply" and any(s.name == tail for s in design.supplies):
+        return _edited(design, supplies=tuple(replace(s, volts=value) if s.name == tail else s
+                                              for s in design.supplies))
+    elif head == "rail" and tail[-2:] in (".R", ".C") and any(r.name == tail[:-2] for r in design.rails):
+        key = "drop_ohm" if tail.endswith(".R") else "decouple_f"
+        return _edited(design, rails=tuple(replace(r, **{key: value}) if r.name == tail[:-2] else r
+                                           for r in design.rails))
+    elif head == "couple":
+        couplings = tuple(replace(c, cap_f=value) if c.kind == "cap" and f"{c.src}-{c.dst}.C" == tail else c
+                          for c in design.couplings)
+        if couplings != design.couplings:
+            return _edited(design, couplings=couplings)
+    elif part == "output.load" and design.output is not None:
+        return _edited(design, output=replace(design.output, load_ohm=value))
+    elif any(n.name == head for n in design.networks):
+        net = design.network(head)
+        if any(p.name == tail for p in net.parts):
+            parts = tuple((replace(p, position=value / 10.0) if isinstance(p, Pot) else replace(p, value=value))
+                          if p.name == tail else p for p in net.parts)
+            return _edited(design, networks=tuple(replace(n, parts=parts) if n.name == head else n
+                                                  for n in design.networks))
+    close = difflib.get_close_matches(part, part_names(design), n=3, cutoff=0.5)
+    raise KeyError(f"no part '{part}' in the design" + (f"; did you mean {', '.join(close)}?" if close else ""))
+
+
+def _edited(design: Design, **changes) -> Design:
+    """The design with ``changes``; its text no longer matches, so it is dropped."""
+    return replace(design, lines=(), path=f"{design.path} (modified)", **changes)

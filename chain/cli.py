@@ -101,6 +101,9 @@ def _parser() -> argparse.ArgumentParser:
                         description="Tabulate the key numbers of several netlists side by side; exit 1 "
                                     "if they differ.")
     cm.add_argument("files", nargs="+", metavar="FILE")
+    cm.add_argument("--vary", metavar="PART=V1,V2,…",
+                    help="analyse one netlist with one part set to each value in turn, e.g. "
+                         "V1.Ck=680n,2u2,22u or tone.treble=2,5,8 (a pot takes knob settings 0-10)")
     cm.add_argument("--plot", metavar="PATH", help="overlay all responses, .png or .svg")
     return p
 
@@ -305,12 +308,44 @@ def _cmd_diff(args) -> int:
     return 1 if result.differs else 0
 
 
+def _varied(path: str, spec: str):
+    """Analyses of one netlist with one part stepped through values (``PART=V1,V2,…``)."""
+    from chain.analysis import analyze_design
+    from chain.build import build, load, with_part
+    from chain.units import QuantityError, parse_quantity
+
+    part, eq, values = spec.partition("=")
+    if not eq or not part or not values:
+        raise UsageError(f"--vary wants PART=V1,V2,…, not '{spec}'")
+    design, _, warnings = load(path)
+    numbers = []
+    for text in values.split(","):
+        try:
+            numbers.append(parse_quantity(text.strip()))
+        except QuantityError as exc:
+            raise UsageError(f"--vary {part}: bad value '{text}': {exc.message}") from None
+    voicings, labels = [], []
+    for text, value in zip(values.split(","), numbers):
+        try:
+            varied = with_part(design, part, value)
+        except KeyError as exc:
+            raise UsageError(f"--vary: {exc.args[0]}") from None
+        voicings.append(analyze_design(varied, build(varied), warnings))
+        labels.append(f"{part}={text.strip()}")
+    return voicings, labels
+
+
 def _cmd_compare(args) -> int:
     from chain.changes import compare, load_voicing, render_compare
 
     plot_path = _figure_path(args.plot) if args.plot else None
-    voicings = [load_voicing(f) for f in args.files]
-    labels = [Path(f).stem for f in args.files]
+    if args.vary:
+        if len(args.files) != 1:
+            raise UsageError("--vary takes exactly one netlist")
+        voicings, labels = _varied(args.files[0], args.vary)
+    else:
+        voicings = [load_voicing(f) for f in args.files]
+        labels = [Path(f).stem for f in args.files]
     result = compare(voicings, labels=labels)
     print(render_compare(result))
     if plot_path:

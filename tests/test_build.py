@@ -119,3 +119,25 @@ def test_user_tube_overrides_a_builtin():
 def test_build_is_deterministic():
     d = load_text(BASE)[0]
     assert build(d) == build(d)
+
+
+def test_with_part_changes_exactly_one_value():
+    from chain.build import part_names, with_part
+
+    d = load_text(BASE + "network vol\n  pot level V1.plate -- w -- gnd 1M linear at 5\n  resistor r w -- gnd 1M\n")[0]
+    assert "V1.Ck" in part_names(d) and "vol.level" in part_names(d)
+    c = build(with_part(d, "V1.Ck", 47e-6))
+    assert parts(c)["V1.Ck"].farads == 47e-6
+    assert parts(c)["V1.Rk"].ohms == 1500.0
+    # a pot takes a knob setting: 10 puts the wiper at the 'a' end (minimum resistance a–w)
+    c = build(with_part(d, "vol.level", 10))
+    assert parts(c)["vol.level.a"].ohms == WIPER_OHM
+    assert parts(build(with_part(d, "rail.B1.R", 22e3)))["rail.B1.R"].ohms == 22e3
+    assert parts(build(with_part(d, "output.load", 470e3)))["output.load"].ohms == 470e3
+
+
+def test_with_part_unknown_name_suggests():
+    from chain.build import with_part
+
+    with pytest.raises(KeyError, match="did you mean V1.Ck"):
+        with_part(load_text(BASE)[0], "V1.Cx", 1e-6)

@@ -119,3 +119,21 @@ def test_formulas_for_one_stage_plain_and_latex(capsys):
 def test_formulas_unknown_stage(capsys):
     assert main(["formulas", str(CLEAN), "V9"]) == 2
     assert "no stage 'V9'" in capsys.readouterr().err
+
+
+def test_compare_varies_one_part(tmp_path, capsys):
+    # bigger cathode bypass: the low corner falls, the operating point stays (common practice)
+    assert main(["compare", str(CLEAN), "--vary", "V1.Ck=680n,22u", "--plot", str(tmp_path / "v.png")]) == 1
+    out = capsys.readouterr().out
+    assert "V1.Ck=680n" in out and "V1.Ck=22u" in out
+    low = next(line for line in out.splitlines() if line.startswith("overall low corner"))
+    assert low.rstrip().endswith("*")
+    ip = next(line for line in out.splitlines() if line.startswith("V1 Ip"))
+    assert not ip.rstrip().endswith("*")
+
+
+@pytest.mark.parametrize("spec, message", [("V1.Cx=1u", "no part 'V1.Cx'"), ("V1.Ck", "PART=V1,V2"),
+                                           ("V1.Ck=1x", "bad value '1x'")])
+def test_compare_vary_errors(spec, message, capsys):
+    assert main(["compare", str(CLEAN), "--vary", spec]) == 2
+    assert message in capsys.readouterr().err
