@@ -115,15 +115,20 @@ class TextRenderer(Renderer):
         w2 = [6, 8, 9, 7, 10, 10, 10, 9, 9, 9]
         lines.append(_row(["stage", "gain V/V", "gain", "phase", "|Zin|", "|Zout|", "coupling", "total",
                            "in pk", "out pk"], w2, set(range(1, 10))))
+        clipped = _clipped_stages(data)
         for r in data["stages"]:
+            mark = " *" if r["stage"] in clipped else ""
             lines.append(_row([
                 r["stage"], fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
                 fmt.si(fmt.mag(r["zin_ohm"]), "Ω"), fmt.si(fmt.mag(r["zout_ohm"]), "Ω"),
                 "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]),
                 fmt.db(r["cumulative_db"]), fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"]),
-            ], w2, set(range(1, 10))))
+            ], w2, set(range(1, 10))) + mark)
         lines.append("(coupling: the loss of the network feeding the stage; total: gain from the source "
                      "EMF to the stage output)")
+        if clipped:
+            lines.append("(* the stated input level is past this stage's clipping point: its levels are "
+                         "small-signal extrapolations; see Headroom)")
         return lines
 
     def stage_details(self, data: dict[str, Any]) -> list[str]:
@@ -244,3 +249,11 @@ class TextRenderer(Renderer):
                 nodes += f"  (rated {fmt.volts(p['rated_v'])})"
             lines.append(_row([p["name"], p["kind"], value, nodes], w))
         return lines
+
+
+def _clipped_stages(data: dict[str, Any]) -> set[str]:
+    """Stages whose headroom margin at the stated level is negative (none without headroom)."""
+    h = data.get("headroom")
+    if not h:
+        return set()
+    return {row["stage"] for row in h.get("stages", ()) if row.get("margin_db") is not None and row["margin_db"] < 0}
