@@ -42,7 +42,7 @@ from typing import Iterable, Mapping
 import numpy as np
 
 from chain.circuit import GROUND, Circuit, Resistor
-from chain.dc import DcSolution, NetworkSystem, SolveOptions, compile_network
+from chain.dc import DcSolution, SolveOptions, compile_network
 from chain.errors import DcConvergenceError
 
 __all__ = ["CapacitorTreatment", "seen_resistances", "mid_band_capacitors", "mid_band_circuit", "MidBandNetwork"]
@@ -89,20 +89,6 @@ class CapacitorTreatment:
         return tuple(n for n in self.held if n not in self.stand_in_ohm)
 
 
-def _jacobian(system: NetworkSystem, x: np.ndarray) -> np.ndarray:
-    """Jacobian of the network residual by central differences (A/V, V/A)."""
-    b = system.rhs(0.0)
-    jac = np.empty((system.size, system.size))
-    for j in range(system.size):
-        h = 1e-6 * max(1.0, abs(float(x[j])))
-        xp = x.copy()
-        xm = x.copy()
-        xp[j] += h
-        xm[j] -= h
-        jac[:, j] = (system.residual(xp, b) - system.residual(xm, b)) / (2.0 * h)
-    return jac
-
-
 def seen_resistances(circuit: Circuit, dc: DcSolution) -> dict[str, float]:
     """Small-signal resistance seen by each capacitor, ohm.
 
@@ -116,7 +102,7 @@ def seen_resistances(circuit: Circuit, dc: DcSolution) -> dict[str, float]:
     options = dc.options
     system = compile_network(circuit, gmin_s=options.gmin_s)
     x, _, _ = system.solve_vector(0.0, system.vector_from_voltages(dc.node_v, 0.0), options=options)
-    jac = _jacobian(system, x)
+    jac = system.jacobian(x)
     index = {name: i for i, name in enumerate(system.nodes)}
     rhs = np.zeros((system.size, len(circuit.capacitors)))
     for k, cap in enumerate(circuit.capacitors):
