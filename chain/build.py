@@ -74,7 +74,8 @@ def tube_model(design: Design, name: str) -> TriodeModel:
     t = defs[name]
     params = dict(t.params)
     if t.base is not None:
-        base = tube_model(design, t.base) if t.base in defs else lookup(t.base)
+        # "tube 12AX7 like 12AX7 mu 95" changes the built-in type of that name
+        base = tube_model(design, t.base) if t.base in defs and t.base != t.name else lookup(t.base)
     else:
         template = lookup("12AX7")
         none_ratings = Ratings(**{f.name: (None if f.name != "source" else "netlist")

@@ -141,3 +141,8 @@ def test_with_part_unknown_name_suggests():
 
     with pytest.raises(KeyError, match="did you mean V1.Ck"):
         with_part(load_text(BASE)[0], "V1.Cx", 1e-6)
+
+
+def test_tube_like_itself_changes_the_builtin_of_that_name():
+    c = load_text("tube 12AX7 like 12AX7 mu 95\n" + BASE)[1]
+    assert {t.model.mu for t in c.triodes} == {95.0}

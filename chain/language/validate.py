@@ -186,7 +186,15 @@ class _Checker:
 
     def check_tubes(self) -> set[str]:
         known = set(LIBRARY) | {t.name for t in self.d.tubes}
+        bases = {t.name: t.base for t in self.d.tubes}
         for t in self.d.tubes:
+            # follow the 'like' chain; "tube X like X" changes the built-in X and ends it
+            seen, cur = {t.name}, t.base
+            while cur in bases and cur not in seen:
+                seen.add(cur)
+                cur = None if bases[cur] == cur else bases[cur]
+            if t.base != t.name and cur in seen:
+                self.err("E223", f"tube '{t.name}' is defined 'like' itself through a loop of definitions", t.span)
             if t.base is not None:
                 try:
                     lookup(t.base)
