@@ -5,14 +5,14 @@ severity, a message, an optional location (:class:`Span`) and an optional
 hint.  Errors carry a tuple of diagnostics so that all problems of a file are
 reported at once, not only the last one found.
 
-Codes
------
+Codes (every one is listed in ``docs/diagnostics.md``)
+-------------------------------------------------------
 ``E1xx``  syntax (language/parser)
-``E2xx``  names and references (language/validate)
-``E3xx``  topology and values (language/validate)
-``E4xx``  DC solve
-``E5xx``  small-signal / formulas
-``W4xx``  operating-point warnings (ratings, cutoff, grid current)
+``E2xx``  names and references (language/validate); ``W2xx`` their warnings
+``E3xx``  values (language/validate) and topology (build)
+``E4xx``  DC solve; ``W4xx`` operating-point warnings (ratings, cutoff, grid current)
+``E5xx``  small-signal (E50x) and formulas (E52x, E53x)
+``E6xx``  reports read back
 """
 
 from __future__ import annotations
