@@ -95,7 +95,9 @@ def first_clip(h: dict[str, Any] | None) -> tuple[str | None, float | None] | No
 def _dbv(peak_v: float | None) -> str:
     if peak_v is None or peak_v <= 0:
         return fmt.NONE
-    return f"{20.0 * math.log10(peak_v / math.sqrt(2.0)):.2f} dBV"
+    from chain.headroom.clipping import dbv
+
+    return f"{dbv(peak_v):.2f} dBV"
 
 
 def _level(v: float | None) -> str:
