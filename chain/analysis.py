@@ -20,7 +20,17 @@ from chain.circuit import Circuit
 from chain.dc import DcSolution, SolveOptions, solve
 from chain.errors import ChainError, Diagnostic
 from chain.language.design import Design
-from chain.smallsignal import OverallResult, Response, StageRow, linearize, overall, response, stage_table
+from chain.smallsignal import (
+    CouplingRow,
+    OverallResult,
+    Response,
+    StageRow,
+    coupling_table,
+    linearize,
+    overall,
+    response,
+    stage_table,
+)
 
 __all__ = ["Analysis", "analyze", "analyze_design", "sweep_frequencies"]
 
@@ -36,6 +46,8 @@ class Analysis:
     freq: Response
     #: per-stage figures at the reference frequency, in signal order
     stages: tuple[StageRow, ...]
+    #: every coupling's transfer at the reference frequency, in netlist order
+    couplings: tuple[CouplingRow, ...]
     overall: OverallResult
     #: large-signal results (:class:`chain.headroom.Headroom`), or None when skipped
     headroom: object | None
@@ -108,6 +120,7 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
     freq = response(ss, sweep_frequencies(design), stage_impedances=False)
     s = design.settings
     rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v)
+    links = coupling_table(circuit, freq, s.reference_hz)
     total = overall(freq, s.reference_hz)
     large = None
     if headroom:
@@ -121,7 +134,8 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
 
         text = format_design(design)
     return Analysis(
-        design=design, circuit=circuit, dc=dc, freq=freq, stages=rows, overall=total, headroom=large,
+        design=design, circuit=circuit, dc=dc, freq=freq, stages=rows, couplings=links, overall=total,
+        headroom=large,
         diagnostics=tuple(warnings) + locate(dc.diagnostics, circuit, design),
         netlist_sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
         options=options,

@@ -460,6 +460,19 @@ def _overall_effects(da, db, tol_db, tol_pct) -> list[Change]:
     return [c for c in out if c is not None]
 
 
+def _output_coupling_effects(da, db, tol_db) -> list[Change]:
+    """Couplings that feed no stage (a tone network into the output): the stage
+    rows do not show them, so their transfer is compared here by name."""
+    def unfed(doc):
+        feeding = {r["coupling"] for r in doc["stages"]}
+        return {c["name"]: c for c in doc.get("couplings", ()) if c["name"] not in feeding}
+
+    ca, cb = unfed(da), unfed(db)
+    out = [_db_change("coupling", name, "transfer", ca[name]["loss_db"], cb[name]["loss_db"], tol_db)
+           for name in ca if name in cb]
+    return [c for c in out if c is not None]
+
+
 def _rail_effects(da, db, tol_pct) -> list[Change]:
     rb = {r["name"]: r for r in db["rails"]}
     out = []
@@ -608,6 +621,7 @@ def diff(a, b, *, tol_db: float = 0.05, tol_pct: float = 0.5) -> DiffResult:
         if r["stage"] in mapping:
             effects += _stage_effects(r, rows_b[mapping[r["stage"]]], mapping, tol_db, tol_pct)
     effects += _overall_effects(da, db, tol_db, tol_pct)
+    effects += _output_coupling_effects(da, db, tol_db)
     effects += _rail_effects(da, db, tol_pct)
     effects += _headroom_effects(da, db, mapping, tol_db)
     resp = _response_effect(da, db, tol_db)
@@ -801,7 +815,8 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
     Rows: overall gain (dB), low and high corner (Hz), input and output
     impedance magnitude (ohm), the first-clip input level (V, when headroom
     was analysed), then per stage (matched by name, in order of first
-    appearance) its loaded gain (dB) and plate current (A).  A row *differs*
+    appearance) its loaded gain (dB) and plate current (A); per coupling its
+    transfer at the reference frequency (dB).  A row *differs*
     when its spread exceeds ``tol_db`` (dB rows) or ``tol_pct`` percent
     (the others), or a value is missing on some voicings only.
 
@@ -839,6 +854,14 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
     for s in stage_names:
         add(s, "gain", "dB", [ix[s]["gain_db"] if s in ix else None for ix in index])
         add(s, "Ip", "A", [ix[s]["ip_a"] if s in ix else None for ix in index])
+    coupling_names: list[str] = []
+    for d in docs:
+        for c in d.get("couplings", ()):
+            if c["name"] not in coupling_names:
+                coupling_names.append(c["name"])
+    by_name = [{c["name"]: c for c in d.get("couplings", ())} for d in docs]
+    for name in coupling_names:
+        add(name, "transfer", "dB", [ix[name]["loss_db"] if name in ix else None for ix in by_name])
     return CompareResult(labels=names, sides=tuple(_side(d) for d in docs), rows=tuple(rows),
                          tol_db=float(tol_db), tol_pct=float(tol_pct))
 

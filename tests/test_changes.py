@@ -332,3 +332,20 @@ def test_compare_of_identical_voicings_does_not_differ(base):
     result = compare([base, analyse(REWRITTEN)])
     assert not result.differs
     assert all(cmath.isfinite(v) for r in result.rows for v in r.values if v is not None)
+
+
+def test_a_tone_knob_shows_as_the_output_network_transfer():
+    """Turning a pot in the network into the output moves that network's transfer
+    and nothing at DC (common practice: a passive network carries no DC here)."""
+    from pathlib import Path
+
+    from chain.analysis import analyze_design
+    from chain.build import build, load, with_part
+    from chain.changes import diff
+
+    design, _, _ = load(Path(__file__).parents[1] / "netlists" / "lead_four_stage.chain")
+    low, high = (with_part(design, "tone.treble", k) for k in (2, 8))
+    result = diff(analyze_design(low, build(low), headroom=False), analyze_design(high, build(high), headroom=False))
+    tone = [c for c in result.effects if c.kind == "coupling" and c.subject == "tone"]
+    assert tone and tone[0].quantity == "transfer" and tone[0].new > tone[0].old
+    assert not [c for c in result.effects if c.kind == "operating point"]

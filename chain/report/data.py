@@ -229,6 +229,11 @@ def _stages(analysis) -> list[dict[str, Any]]:
     return out
 
 
+def _couplings(analysis) -> list[dict[str, Any]]:
+    return [{"name": c.name, "from_node": c.from_node, "to_node": c.to_node, "ratio": cx(c.ratio),
+             "loss_db": num(c.loss_db), "phase_deg": _deg(c.ratio)} for c in analysis.couplings]
+
+
 def _response_arrays(analysis) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     f = np.asarray(analysis.freq.f_hz, dtype=float)
     h = np.asarray(analysis.freq.output)
@@ -282,7 +287,7 @@ def report_data(analysis) -> dict[str, Any]:
         Keys, in order: ``schema``, ``tool``, ``netlist``, ``settings``,
         ``solve_options``, ``dc_solve``, ``safety``, ``parts``,
         ``operating_points``, ``rails``, ``capacitors``, ``stages``,
-        ``overall``, ``response``, ``headroom``, ``diagnostics``; see
+        ``couplings``, ``overall``, ``response``, ``headroom``, ``diagnostics``; see
         ``docs/report-format.md``.  Only plain ``dict``, ``list``, ``str``,
         ``int``, ``float``, ``bool`` and ``None`` values.
     """
@@ -303,6 +308,7 @@ def report_data(analysis) -> dict[str, Any]:
         "rails": _rails(analysis.dc),
         "capacitors": _capacitors(analysis.dc),
         "stages": _stages(analysis),
+        "couplings": _couplings(analysis),
         "overall": _overall(analysis),
         "response": _response(analysis, f, mag_db, phase),
         "headroom": headroom_data(analysis.headroom),

@@ -20,7 +20,7 @@ SECTION_KEYS = {
     "header": ("schema", "tool", "netlist"),
     "safety": ("safety",),
     "settings": ("settings", "solve_options", "dc_solve"),
-    "stages": ("stages",),
+    "stages": ("stages", "couplings"),
     "stage_details": ("operating_points",),
     "overall": ("overall",),
     "response": ("response",),

@@ -88,6 +88,12 @@ class MarkdownRenderer(Renderer):
              "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]), fmt.db(r["cumulative_db"]),
              fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"])]
             for r in data["stages"]], {1, 2, 3, 7, 8, 9, 10})
+        couplings = data.get("couplings") or []
+        if couplings:
+            out += ["", "### Couplings", ""]
+            out += _table(["coupling", "from", "to", "transfer", "phase"], [
+                [c["name"], c["from_node"], c["to_node"], fmt.db(c["loss_db"]), fmt.deg(c["phase_deg"])]
+                for c in couplings], {3, 4})
         return out
 
     def stage_details(self, data: dict[str, Any]) -> list[str]:

@@ -129,6 +129,15 @@ class TextRenderer(Renderer):
         if clipped:
             lines.append("(* the stated input level is past this stage's clipping point: its levels are "
                          "small-signal extrapolations; see Headroom)")
+        couplings = data.get("couplings") or []
+        if couplings:
+            lines.append("")
+            w3 = [16, 16, 16, 10, 8]
+            lines.append(_row(["coupling", "from", "to", "transfer", "phase"], w3, {3, 4}))
+            for c in couplings:
+                lines.append(_row([c["name"], c["from_node"], c["to_node"], fmt.db(c["loss_db"]),
+                                   fmt.deg(c["phase_deg"])], w3, {3, 4}))
+            lines.append("(transfer: voltage at the far end over the near end, everything connected)")
         return lines
 
     def stage_details(self, data: dict[str, Any]) -> list[str]:

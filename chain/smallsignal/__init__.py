@@ -17,7 +17,7 @@ from chain.smallsignal.model import (
     linearize,
 )
 from chain.smallsignal.response import Response, gain_at, response, stage_owns, transfer_function
-from chain.smallsignal.table import OverallResult, StageRow, db, overall, stage_table
+from chain.smallsignal.table import CouplingRow, OverallResult, StageRow, coupling_table, db, overall, stage_table
 
 __all__ = [
     "SmallSignalCircuit",
@@ -32,6 +32,8 @@ __all__ = [
     "corners",
     "response_corners",
     "StageRow",
+    "CouplingRow",
+    "coupling_table",
     "OverallResult",
     "stage_table",
     "overall",

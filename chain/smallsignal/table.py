@@ -12,7 +12,7 @@ from chain.dc.result import DcSolution
 from chain.smallsignal.corners import response_corners
 from chain.smallsignal.response import Response, response
 
-__all__ = ["StageRow", "OverallResult", "stage_table", "overall", "db"]
+__all__ = ["StageRow", "OverallResult", "CouplingRow", "stage_table", "coupling_table", "overall", "db"]
 
 
 def db(ratio: complex | float) -> float:
@@ -79,6 +79,40 @@ class OverallResult:
     @property
     def phase_deg(self) -> float:
         return math.degrees(np.angle(self.gain))
+
+
+@dataclass(frozen=True, slots=True)
+class CouplingRow:
+    """One coupling network (or coupling capacitor) at the reference frequency."""
+
+    #: the coupling's name in ``Circuit.couplings`` (a network instance, or "V1->V2")
+    name: str
+    from_node: str
+    to_node: str
+    #: H(to_node)/H(from_node) with everything connected, V/V (complex), and its dB
+    ratio: complex
+    loss_db: float
+
+    @property
+    def phase_deg(self) -> float:
+        return math.degrees(np.angle(self.ratio))
+
+
+def coupling_table(circuit: Circuit, resp: Response, f_ref_hz: float) -> tuple[CouplingRow, ...]:
+    """Every coupling's transfer at ``f_ref_hz``, in the order of the netlist.
+
+    The ratio of the voltage at the coupling's far end to the voltage at its
+    near end, with the whole chain connected (so the load of what follows and
+    the source impedance of what drives it are included).  Includes the
+    network into the output, which no stage row shows.
+    """
+    at = response(resp.ss, [f_ref_hz], output_impedances=False, stage_impedances=False)
+    rows = []
+    for name, (frm, to) in circuit.couplings.items():
+        h_from = complex(at.h[frm][0])
+        ratio = complex(at.h[to][0]) / h_from if h_from != 0 else complex("nan")
+        rows.append(CouplingRow(name, frm, to, ratio, db(ratio)))
+    return tuple(rows)
 
 
 def stage_table(circuit: Circuit, dc: DcSolution, resp: Response, f_ref_hz: float,

@@ -17,7 +17,8 @@ DEMOS = tuple(sorted(p.stem for p in (ROOT / "netlists").glob("*.chain")))
 
 #: the documented top-level keys, in order (docs/report-format.md)
 TOP_KEYS = ["schema", "tool", "netlist", "settings", "solve_options", "dc_solve", "safety", "parts",
-            "operating_points", "rails", "capacitors", "stages", "overall", "response", "headroom", "diagnostics"]
+            "operating_points", "rails", "capacitors", "stages", "couplings", "overall", "response", "headroom",
+            "diagnostics"]
 
 #: relative agreement of a number after the 12-significant-digit rounding of the document
 RTOL = 1e-11
@@ -127,4 +128,4 @@ def test_load_report_round_trip_and_errors(demos, tmp_path):
 
 def test_partial_json_holds_the_chosen_sections_only(demos):
     data = json.loads(render(demos["clean_two_stage"], fmt="json", sections=("stages", "overall")))
-    assert list(data) == ["schema", "stages", "overall"]
+    assert list(data) == ["schema", "stages", "couplings", "overall"]
