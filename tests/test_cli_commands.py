@@ -137,3 +137,12 @@ def test_compare_varies_one_part(tmp_path, capsys):
 def test_compare_vary_errors(spec, message, capsys):
     assert main(["compare", str(CLEAN), "--vary", spec]) == 2
     assert message in capsys.readouterr().err
+
+
+def test_report_with_plot_writes_report_and_bode(tmp_path, capsys):
+    out = tmp_path / "r.md"
+    png = tmp_path / "r.png"
+    assert main(["report", str(CLEAN), "--format", "markdown", "--output", str(out), "--plot", str(png),
+                 "--no-headroom"]) == 0
+    assert out.read_text(encoding="utf-8").startswith("#")
+    assert png.read_bytes().startswith(b"\x89PNG")
