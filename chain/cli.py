@@ -70,6 +70,8 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("file", metavar="FILE")
     pl.add_argument("--output", "-o", metavar="PATH", help="PNG or SVG file (default: FILE with .png)")
     pl.add_argument("--stages", action="store_true", help="also draw every stage's output node")
+    pl.add_argument("--impedance", action="store_true",
+                    help="also draw |Zin| and |Zout| against frequency, to PATH with -impedance added")
 
     f = sub.add_parser("formulas", help="closed-form gain and impedances of each stage (symbolic)",
                        description="Print each stage's gain, input and output impedance as formulas in its "
@@ -262,9 +264,16 @@ def _cmd_plot(args) -> int:
 
     path = _figure_path(args.output or str(Path(args.file).with_suffix(".png")))
     analysis = analyze(args.file, headroom=False)
-    plot = analysis.plot(nodes=_bode_nodes(analysis, args.stages))
-    _save_figure(plot.figure, path)
-    print(f"wrote {path}")
+    figures = [(path, analysis.plot(nodes=_bode_nodes(analysis, args.stages)).figure)]
+    if args.impedance:
+        from chain.plot.bode import impedance
+
+        target = Path(path)
+        figures.append((str(target.with_name(f"{target.stem}-impedance{target.suffix}")),
+                        impedance(analysis.freq, title=analysis.design.title).figure))
+    for name, figure in figures:
+        _save_figure(figure, name)
+        print(f"wrote {name}")
     return 0
 
 

@@ -146,3 +146,8 @@ def test_report_with_plot_writes_report_and_bode(tmp_path, capsys):
                  "--no-headroom"]) == 0
     assert out.read_text(encoding="utf-8").startswith("#")
     assert png.read_bytes().startswith(b"\x89PNG")
+
+
+def test_plot_impedance_figure(tmp_path, capsys):
+    assert main(["plot", str(CLEAN), "-o", str(tmp_path / "c.svg"), "--impedance"]) == 0
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["c-impedance.svg", "c.svg"]

@@ -14,7 +14,7 @@ from typing import Sequence
 
 import numpy as np
 
-__all__ = ["BodePlot", "bode", "PALETTE"]
+__all__ = ["BodePlot", "ImpedancePlot", "bode", "impedance", "PALETTE"]
 
 #: trace colours, in order: dark enough for print, distinguishable in grey
 PALETTE = ("#1d3557", "#b5651d", "#2a7f62", "#7b2d5b", "#6b6b12", "#a23b2a", "#3d6f9e", "#555555")
@@ -150,3 +150,49 @@ def _mark_corners(mag_ax, ph_ax, corners) -> list:
 def _hz(f: float) -> str:
     """Short frequency text for a label (display only)."""
     return f"{f / 1e3:.3g} kHz" if f >= 1e3 else f"{f:.3g} Hz"
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class ImpedancePlot:
+    """The impedance figure and its traces (``lines``: |Zin|, then |Zout| when known)."""
+
+    figure: object
+    axes: object
+    lines: tuple
+
+
+def impedance(response, *, title: str = "") -> ImpedancePlot:
+    """|Zin| (the load the source sees) and |Zout| (source zeroed, load
+    removed) against frequency, both axes logarithmic, in ohms.
+
+    Parameters
+    ----------
+    response
+        A :class:`chain.smallsignal.Response`.
+    title
+        Figure title.
+    """
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import EngFormatter
+
+    fig = Figure(figsize=(7.5, 4.2), layout="constrained")
+    ax = fig.subplots()
+    f = np.asarray(response.f_hz)
+    lines = [ax.loglog(f, np.abs(response.zin_ohm), color=PALETTE[0], linewidth=2.0,
+                       label="input impedance |Zin| (load on the source)")[0]]
+    if response.zout_ohm is not None:
+        lines.append(ax.loglog(f, np.abs(response.zout_ohm), color=PALETTE[1], linestyle=DASHES[1],
+                               linewidth=1.8, label="output impedance |Zout|")[0])
+    ax.set_xlabel("Frequency")
+    ax.set_ylabel("Impedance (Ω)")
+    ax.xaxis.set_major_formatter(EngFormatter(unit="Hz"))
+    ax.yaxis.set_major_formatter(EngFormatter(unit="Ω"))
+    if f.size:
+        ax.set_xlim(f[0], f[-1])
+    ax.grid(True, which="major", color="#c8c8c8", linewidth=0.7)
+    ax.grid(True, which="minor", color="#e6e6e6", linewidth=0.4)
+    ax.tick_params(labelsize=9)
+    ax.legend(loc="best", fontsize=8, frameon=False)
+    if title:
+        ax.set_title(title, fontsize=11, loc="left")
+    return ImpedancePlot(fig, ax, tuple(lines))

@@ -255,11 +255,15 @@ def _overall(analysis) -> dict[str, Any]:
 
 
 def _response(analysis, f, mag_db, phase) -> dict[str, Any]:
+    zin = analysis.freq.zin_ohm
+    zout = analysis.freq.zout_ohm
     return {
         "node": analysis.circuit.output_node,
         "f_hz": [num(x) for x in f],
         "magnitude_db": [num(x) for x in mag_db],
         "phase_deg": [num(x) for x in phase],
+        "zin_ohm_mag": [num(abs(z)) for z in zin],
+        "zout_ohm_mag": None if zout is None else [num(abs(z)) for z in zout],
     }
 
 

@@ -87,3 +87,12 @@ def test_save_png_and_svg(resp, tmp_path):
     assert b"<svg" in svg.read_bytes()[:2000]
     with pytest.raises(ValueError):
         save(plot.figure, tmp_path / "b.jpg")
+
+
+def test_impedance_plot_draws_the_response_impedances(resp):
+    from chain.plot.bode import impedance
+
+    plot = impedance(resp, title="t")
+    assert np.allclose(plot.lines[0].get_ydata(), np.abs(resp.zin_ohm))
+    assert np.allclose(plot.lines[1].get_ydata(), np.abs(resp.zout_ohm))
+    assert plot.axes.get_ylabel() == "Impedance (Ω)"
