@@ -109,8 +109,7 @@ def coupling_table(circuit: Circuit, resp: Response, f_ref_hz: float) -> tuple[C
     at = response(resp.ss, [f_ref_hz], output_impedances=False, stage_impedances=False)
     rows = []
     for name, (frm, to) in circuit.couplings.items():
-        h_from = complex(at.h[frm][0])
-        ratio = complex(at.h[to][0]) / h_from if h_from != 0 else complex("nan")
+        ratio = _ratio(at, to, frm)
         rows.append(CouplingRow(name, frm, to, ratio, db(ratio)))
     return tuple(rows)
 
@@ -168,7 +167,7 @@ def _row(circuit: Circuit, dc: DcSolution, at: Response, st: StageNodes,
     op = dc.points[st.triode]
     h_in = complex(at.h[st.input][0])
     h_out = complex(at.h[st.output][0])
-    gain = h_out / h_in if h_in != 0 else complex("nan")
+    gain = _ratio(at, st.output, st.input)
     coupling, ratio = _feeding_coupling(circuit, at, st)
     return StageRow(
         stage=st.name, kind=st.kind, tube=st.tube,
@@ -187,7 +186,11 @@ def _feeding_coupling(circuit: Circuit, at: Response, st: StageNodes):
     node_of = at.ss.node_of
     for name, (frm, to) in circuit.couplings.items():
         if to == st.input or node_of.get(to) == node_of[st.input]:
-            h_from = complex(at.h[frm][0])
-            ratio = complex(at.h[to][0]) / h_from if h_from != 0 else complex("nan")
-            return name, ratio
+            return name, _ratio(at, to, frm)
     return None, None
+
+
+def _ratio(at: Response, num: str, den: str) -> complex:
+    """``H(num)/H(den)`` at the response's (single) frequency; NaN when ``H(den)`` is 0."""
+    h_den = complex(at.h[den][0])
+    return complex(at.h[num][0]) / h_den if h_den != 0 else complex("nan")
