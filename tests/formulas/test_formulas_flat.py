@@ -8,6 +8,8 @@ matters, over 20 log-spaced points from 10 Hz to 100 kHz.
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -61,7 +63,11 @@ def _solved(text):
     return circuit, dc, response(linearize(circuit, dc), F_HZ)
 
 
-@pytest.mark.parametrize("text", [ONE_STAGE, TWO_STAGE], ids=["one-stage", "two-stage"])
+#: the shipped two-stage demo: pickup, bright-capped volume network, two rails' worth of loading
+DEMO = (Path(__file__).parents[2] / "netlists" / "clean_two_stage.chain").read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("text", [ONE_STAGE, TWO_STAGE, DEMO], ids=["one-stage", "two-stage", "demo-clean"])
 def test_flat_lcapy_solve_agrees_with_engine(text):
     circuit, dc, resp = _solved(text)
     nodes = [circuit.output_node, circuit.input_node,
