@@ -63,7 +63,7 @@ def _solved(text):
     return circuit, dc, response(linearize(circuit, dc), F_HZ)
 
 
-#: the shipped two-stage demo: pickup, bright-capped volume network, two rails' worth of loading
+#: the shipped two-stage demo: pickup source, volume network with a bright capacitor, a dropped rail
 DEMO = (Path(__file__).parents[2] / "netlists" / "clean_two_stage.chain").read_text(encoding="utf-8")
 
 
