@@ -13,7 +13,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
-__all__ = ["SECTIONS", "Renderer", "check_sections", "spot_frequencies", "spot_response",
+__all__ = ["SECTIONS", "Renderer", "check_sections", "clipped_stages", "spot_frequencies", "spot_response",
            "pd_rating", "triode_tubes", "corner_reference"]
 
 #: every section, in report order
@@ -155,3 +155,11 @@ def corner_reference(data: dict[str, Any]) -> str:
     if ref["basis"] == "reference":
         return f"the gain at the reference frequency, {level}; half power is 3.01 dB below it"
     return f"the largest gain on the sweep, {level}; half power is 3.01 dB below it"
+
+
+def clipped_stages(data: dict[str, Any]) -> set[str]:
+    """Stages whose headroom margin at the stated level is negative (none without headroom)."""
+    h = data.get("headroom")
+    if not h:
+        return set()
+    return {row["stage"] for row in h.get("stages", ()) if row.get("margin_db") is not None and row["margin_db"] < 0}

@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from chain.report import fmt
-from chain.report.base import Renderer, corner_reference, pd_rating, spot_response
+from chain.report.base import Renderer, clipped_stages, corner_reference, pd_rating, spot_response
 
 __all__ = ["MarkdownRenderer"]
 
@@ -81,13 +81,17 @@ class MarkdownRenderer(Renderer):
              fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"), fmt.plain(r["mu"])]
             for r in data["stages"]], set(range(3, 9)))
         out.append("")
+        clipped = clipped_stages(data)
         out += _table(["stage", "gain V/V", "gain", "phase", "Zin", "Zout", "fed through", "coupling loss",
                        "cumulative", "in (peak)", "out (peak)"], [
             [r["stage"], fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
              fmt.polar(r["zin_ohm"], "Ω"), fmt.polar(r["zout_ohm"], "Ω"), r["coupling"] or "—",
              "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]), fmt.db(r["cumulative_db"]),
-             fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"])]
+             fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"]) + (" \\*" if r["stage"] in clipped else "")]
             for r in data["stages"]], {1, 2, 3, 7, 8, 9, 10})
+        if clipped:
+            out += ["", "\\* the stated input level is past this stage's clipping point: its levels are small-signal "
+                    "extrapolations (see Headroom)."]
         couplings = data.get("couplings") or []
         if couplings:
             out += ["", "### Couplings", ""]

@@ -18,7 +18,7 @@ from __future__ import annotations
 from typing import Any
 
 from chain.report import fmt
-from chain.report.base import Renderer, corner_reference, pd_rating, spot_response
+from chain.report.base import Renderer, clipped_stages, corner_reference, pd_rating, spot_response
 
 __all__ = ["TextRenderer"]
 
@@ -115,7 +115,7 @@ class TextRenderer(Renderer):
         w2 = [6, 8, 9, 7, 10, 10, 10, 9, 9, 9]
         lines.append(_row(["stage", "gain V/V", "gain", "phase", "|Zin|", "|Zout|", "coupling", "total",
                            "in pk", "out pk"], w2, set(range(1, 10))))
-        clipped = _clipped_stages(data)
+        clipped = clipped_stages(data)
         for r in data["stages"]:
             mark = " *" if r["stage"] in clipped else ""
             lines.append(_row([
@@ -259,10 +259,3 @@ class TextRenderer(Renderer):
             lines.append(_row([p["name"], p["kind"], value, nodes], w))
         return lines
 
-
-def _clipped_stages(data: dict[str, Any]) -> set[str]:
-    """Stages whose headroom margin at the stated level is negative (none without headroom)."""
-    h = data.get("headroom")
-    if not h:
-        return set()
-    return {row["stage"] for row in h.get("stages", ()) if row.get("margin_db") is not None and row["margin_db"] < 0}
