@@ -87,11 +87,11 @@ class MarkdownRenderer(Renderer):
             [r["stage"], fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
              fmt.polar(r["zin_ohm"], "Ω"), fmt.polar(r["zout_ohm"], "Ω"), r["coupling"] or "—",
              "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]), fmt.db(r["cumulative_db"]),
-             fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"]) + (" \\*" if r["stage"] in clipped else "")]
+             fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"]) + (" *" if r["stage"] in clipped else "")]
             for r in data["stages"]], {1, 2, 3, 7, 8, 9, 10})
         if clipped:
-            out += ["", "\\* the stated input level is past this stage's clipping point: its levels are small-signal "
-                    "extrapolations (see Headroom)."]
+            out += ["", "Levels marked * are small-signal extrapolations: the stated input level is past that "
+                    "stage's clipping point (see Headroom)."]
         couplings = data.get("couplings") or []
         if couplings:
             out += ["", "### Couplings", ""]
