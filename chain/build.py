@@ -123,6 +123,8 @@ class _Expander:
         self.nodes = _Nodes(rails | {GROUND})
         #: stage → terminal → node
         self.terminals: dict[str, dict[str, str]] = {}
+        #: network instance → port → the node it is attached to
+        self.instance_ports: dict[str, dict[str, str]] = {}
 
     def span(self, span: Span) -> Span:
         if span.line > 0 and not span.text and span.line <= len(self.d.lines):
@@ -201,6 +203,8 @@ class _Expander:
             head, tail = name.split(".", 1)
             if head in self.terminals:
                 return self.terminals[head][tail]
+            if tail in self.instance_ports.get(head, {}):
+                return self.instance_ports[head][tail]  # "vol.out": where that port is attached
             return name
         if instance is None:
             self.err("E211", f"unknown node '{name}'", span)
@@ -208,6 +212,7 @@ class _Expander:
         return f"{instance}.{name}"
 
     def network(self, net, instance: str, ports: dict[str, str]):
+        self.instance_ports[instance] = dict(ports)
         for p in net.parts:
             if isinstance(p, Pot):
                 a = self.resolve(p.a, instance, ports, p.span)

@@ -146,3 +146,15 @@ def test_with_part_unknown_name_suggests():
 def test_tube_like_itself_changes_the_builtin_of_that_name():
     c = load_text("tube 12AX7 like 12AX7 mu 95\n" + BASE)[1]
     assert {t.model.mu for t in c.triodes} == {95.0}
+
+
+def test_a_network_port_named_from_outside_is_the_node_it_is_attached_to():
+    text = BASE.replace("couple V1 -> V2 direct\noutput V2 load 1M\n", "") + """
+network pad: in -> out
+  resistor top in -- out 100k
+  resistor bottom out -- gnd 100k
+couple V1 -> V2 via pad
+output pad.out load 1M
+"""
+    c = load_text(text)[1]
+    assert c.output_node == "V2.in"
