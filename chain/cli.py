@@ -34,6 +34,19 @@ class UsageError(Exception):
     """A command-line mistake that argparse cannot see (exit 2)."""
 
 
+def _tolerance(text: str) -> float:
+    """argparse type: a finite, non-negative number."""
+    import math
+
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: '{text}'") from None
+    if not (math.isfinite(value) and value >= 0.0):
+        raise argparse.ArgumentTypeError(f"must be a finite number ≥ 0, not '{text}'")
+    return value
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="chain",
@@ -85,16 +98,17 @@ def _parser() -> argparse.ArgumentParser:
                                    "the first stage to clip, and the harmonic spectrum at the input level.")
     h.add_argument("file", metavar="FILE")
     h.add_argument("--level", metavar="VOLTS", help="input level, peak (e.g. 150mV); default: the netlist's")
-    h.add_argument("--plot", metavar="PATH", help="draw transfer curves and spectra to PATH (.png or .svg)")
+    h.add_argument("--plot", metavar="PATH", help="draw the transfer curves and the harmonic spectrum to "
+                   "PATH with -transfer and -harmonics added before the suffix (.png or .svg)")
 
     d = sub.add_parser("diff", help="what a part change moved: two netlists or two JSON reports",
                        description="Compare two voicings. Exit 0 when nothing differs beyond the tolerance, "
                                    "1 when something does, 2 on error.")
     d.add_argument("a", metavar="A")
     d.add_argument("b", metavar="B")
-    d.add_argument("--tolerance-db", type=float, default=0.05, metavar="DB",
+    d.add_argument("--tolerance-db", type=_tolerance, default=0.05, metavar="DB",
                    help="smallest gain change reported, dB (default 0.05)")
-    d.add_argument("--tolerance-pct", type=float, default=0.5, metavar="PCT",
+    d.add_argument("--tolerance-pct", type=_tolerance, default=0.5, metavar="PCT",
                    help="smallest impedance, current or voltage change reported, %% (default 0.5)")
     d.add_argument("--plot", metavar="PATH", help="overlay both responses with their difference, .png or .svg")
     d.add_argument("--format", choices=("text", "json"), default="text")
@@ -321,6 +335,8 @@ def _varied(path: str, spec: str):
     """Analyses of one netlist with one part stepped through values (``PART=V1,V2,…``)."""
     from chain.analysis import analyze_design
     from chain.build import build, load, with_part
+    from chain.errors import LanguageError
+    from chain.language.validate import check
     from chain.units import QuantityError, parse_quantity
 
     part, eq, values = spec.partition("=")
@@ -337,8 +353,12 @@ def _varied(path: str, spec: str):
     for text, value in zip(values.split(","), numbers):
         try:
             varied = with_part(design, part, value)
+            check(varied)
         except KeyError as exc:
             raise UsageError(f"--vary: {exc.args[0]}") from None
+        except LanguageError as exc:
+            first = next(d for d in exc.diagnostics if d.severity == "error")
+            raise UsageError(f"--vary {part}={text.strip()}: {first.message}") from None
         voicings.append(analyze_design(varied, build(varied), warnings))
         labels.append(f"{part}={text.strip()}")
     return voicings, labels
@@ -377,8 +397,11 @@ def _cmd_headroom(args) -> int:
             level = parse_quantity(args.level, "V")
         except QuantityError as exc:
             raise UsageError(f"--level {args.level}: {exc.message}") from None
-        if not level > 0:
-            raise UsageError(f"--level must be positive, not {args.level}")
+        from chain.language.validate import RANGES
+
+        low, high, _ = RANGES["level"]
+        if not low <= level <= high:
+            raise UsageError(f"--level {args.level} is outside the sensible range 1 µV to 100 V peak")
     plot_path = _figure_path(args.plot) if args.plot else None
     analysis = analyze(args.file, headroom=True, level_v=level)
     print(render(analysis, fmt="text", sections=("header", "safety", "headroom")))

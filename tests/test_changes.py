@@ -154,7 +154,8 @@ def test_coupling_cap_change_moves_only_the_low_corner(base):
     assert r.parts[0].owner == "coupling V1->V2"
     assert {c.kind for c in r.effects} <= {"corner", "response"}
     (low,) = by(r, "corner", quantity="low corner")
-    # first-order high-pass of the coupling cap into the grid leak, driven by V1's output impedance
+    # first-order high-pass of the coupling cap into the grid leak, driven by V1's output impedance:
+    # f = 1/(2π(Rg + Rsource)C) (single-pole RC corner, any circuit-theory text)
     r_source = abs(b.stages[0].zout_ohm)
     expected = 1 / (2 * math.pi * (RG_NEXT + r_source) * 22e-9)
     assert low.new == pytest.approx(expected, rel=0.01)

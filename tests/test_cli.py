@@ -91,3 +91,9 @@ def test_internal_error_says_so_and_exits_3(monkeypatch, capsys):
     err = capsys.readouterr().err
     assert "internal error (ZeroDivisionError: boom)" in err and "bug in chain" in err
     assert "Traceback" not in err
+
+
+def test_a_byte_order_mark_is_not_text(tmp_path, capsys):
+    path = tmp_path / "bom.chain"
+    path.write_bytes(b"\xef\xbb\xbf" + DEMOS[0].read_bytes())
+    assert main(["check", str(path)]) == 0

@@ -151,3 +151,16 @@ def test_report_with_plot_writes_report_and_bode(tmp_path, capsys):
 def test_plot_impedance_figure(tmp_path, capsys):
     assert main(["plot", str(CLEAN), "-o", str(tmp_path / "c.svg"), "--impedance"]) == 0
     assert sorted(p.name for p in tmp_path.iterdir()) == ["c-impedance.svg", "c.svg"]
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["diff", str(CLEAN), str(CLEAN), "--tolerance-db", "-1"], "must be a finite number"),
+    (["diff", str(CLEAN), str(CLEAN), "--tolerance-pct", "nan"], "must be a finite number"),
+    (["headroom", str(CLEAN), "--level", "1e-12"], "outside the sensible range"),
+    (["headroom", str(CLEAN), "--level", "1kV"], "outside the sensible range"),
+    (["compare", str(CLEAN), "--vary", "volume.level=5,12"], "position out of range"),
+    (["compare", str(CLEAN), "--vary", "V1.Rk=0,1k"], "must be positive"),
+])
+def test_out_of_range_options_exit_2(argv, message, capsys):
+    assert main(argv) == 2
+    assert message in capsys.readouterr().err

@@ -10,7 +10,7 @@ Each triode is its Thevenin small-signal equivalent between plate and
 cathode: a voltage-controlled voltage source ``-mu·vgk`` in series with the
 plate resistance ``rp`` (the standard linear triode model, e.g. M. Jones,
 "Valve Amplifiers", chapter 2, from memory), plus the interelectrode
-capacitances Cgk, Cgp and Cpk.  In lcapy's card form::
+capacitances Cgk, Cgp and Cpk.  In lcapy's netlist form::
 
     Eu pi k k g mu      # V(pi) - V(k) = mu·(V(k) - V(g)) = -mu·vgk
     Rp p pi r_p
@@ -61,17 +61,17 @@ def _number(x: float) -> str:
     return repr(float(x))
 
 
-class _Cards:
-    """Collects two-terminal cards, merging shorted nodes into one.
+class _Lines:
+    """Collects two-terminal netlist lines, merging shorted nodes into one.
 
     A short (``alias(a, b)``) renames node ``a`` to ``b`` everywhere; a
-    two-terminal card whose ends end up on the same node carries no current
+    two-terminal part whose ends end up on the same node carries no current
     and is dropped.
     """
 
     def __init__(self) -> None:
         self._alias: dict[str, str] = {}
-        self._cards: list[tuple[str, tuple[str, ...], str, str]] = []
+        self._lines: list[tuple[str, tuple[str, ...], str, str]] = []
 
     def short(self, a: str, b: str) -> None:
         a, b = self.node(a), self.node(b)
@@ -87,11 +87,11 @@ class _Cards:
         return n
 
     def add(self, name: str, nodes: tuple[str, ...], value: str, comment: str = "") -> None:
-        self._cards.append((name, nodes, value, comment))
+        self._lines.append((name, nodes, value, comment))
 
     def lines(self) -> list[str]:
         out = []
-        for name, nodes, value, comment in self._cards:
+        for name, nodes, value, comment in self._lines:
             resolved = tuple(self.node(n) for n in nodes)
             if len(resolved) == 2 and resolved[0] == resolved[1]:
                 continue
@@ -136,7 +136,7 @@ def stage_netlist(parts: StageParts, *, symbolic: bool = True, drive: str = "inp
     Returns
     -------
     str
-        One card per line, no trailing newline.
+        One part per line, no trailing newline.
     """
     if drive not in DRIVES:
         raise ValueError(f"drive must be one of {DRIVES}, got {drive!r}")
@@ -144,65 +144,65 @@ def stage_netlist(parts: StageParts, *, symbolic: bool = True, drive: str = "inp
     def val(field_name: str) -> str:
         return SYMBOLS[field_name] if symbolic else _number(getattr(parts, field_name))
 
-    cards = _Cards()
+    net = _Lines()
     grid_driven = parts.kind != "common-grid"
     inp = "in" if grid_driven else "k"
     out = "k" if parts.kind == "cathode-follower" else "p"
 
     # the triode: -mu·vgk behind rp, plate to cathode
-    cards.add("Eu", ("pi", "k", "k", "g"), val("mu"))
-    cards.add("Rp", ("p", "pi"), val("rp_ohm"))
+    net.add("Eu", ("pi", "k", "k", "g"), val("mu"))
+    net.add("Rp", ("p", "pi"), val("rp_ohm"))
 
     # plate load to the rail (AC ground); none: plate on the rail
     if parts.rl_ohm is not None:
-        cards.add("RL", ("p", _GROUND), val("rl_ohm"))
+        net.add("RL", ("p", _GROUND), val("rl_ohm"))
     else:
-        cards.short("p", _GROUND)
+        net.short("p", _GROUND)
 
     # cathode network
     if parts.rk_ohm is not None:
-        cards.add("Rk", ("k", _GROUND), val("rk_ohm"))
+        net.add("Rk", ("k", _GROUND), val("rk_ohm"))
     if parts.ck_f is not None:
         bottom = "kb" if parts.rkc_ohm is not None else "k"
         if parts.rkc_ohm is not None:
-            cards.add("Rkc", ("k", "kb"), val("rkc_ohm"))
+            net.add("Rkc", ("k", "kb"), val("rkc_ohm"))
         if midband:
-            cards.short(bottom, _GROUND)
+            net.short(bottom, _GROUND)
         else:
-            cards.add("Ck", (bottom, _GROUND), val("ck_f"))
+            net.add("Ck", (bottom, _GROUND), val("ck_f"))
     if parts.rk_ohm is None and parts.ck_f is None and grid_driven:
-        cards.short("k", _GROUND)
+        net.short("k", _GROUND)
 
     # grid side: stopper from the grid-leak top "in" to the grid pin, leak to
     # ground; a common-grid stage's grid returns to ground the same way (a
     # missing leak there is a grid tied to ground)
     if parts.rs_ohm is not None:
-        cards.add("Rs", ("in", "g"), val("rs_ohm"))
+        net.add("Rs", ("in", "g"), val("rs_ohm"))
     else:
-        cards.short("in", "g")
+        net.short("in", "g")
     if parts.rg_ohm is not None:
-        cards.add("Rg", ("in", _GROUND), val("rg_ohm"))
+        net.add("Rg", ("in", _GROUND), val("rg_ohm"))
     elif not grid_driven:
-        cards.short("in", _GROUND)
+        net.short("in", _GROUND)
 
     if interelectrode and not midband:
         for field_name, name, a, b in (("cgk_f", "Cgk", "g", "k"), ("cgp_f", "Cgp", "g", "p"),
                                        ("cpk_f", "Cpk", "p", "k")):
             if getattr(parts, field_name) is not None:
-                cards.add(name, (a, b), val(field_name))
+                net.add(name, (a, b), val(field_name))
 
     if drive == "input":
         if parts.rload_ohm is not None:
-            cards.add("Rload", (out, _GROUND), val("rload_ohm"))
-        cards.add("Vin", (inp, _GROUND), "s 1")
+            net.add("Rload", (out, _GROUND), val("rload_ohm"))
+        net.add("Vin", (inp, _GROUND), "s 1")
     else:
-        cards.short(inp, _GROUND)
-        cards.add("Vt", (out, _GROUND), "s 1")
+        net.short(inp, _GROUND)
+        net.add("Vt", (out, _GROUND), "s 1")
 
     head = [f"# stage {parts.name} ({parts.kind}) small-signal model; "
-            f"input {cards.node(inp)}, output {cards.node(out)}, drive {drive}"
+            f"input {net.node(inp)}, output {net.node(out)}, drive {drive}"
             + ("; mid-band" if midband else "")]
-    return "\n".join(head + cards.lines())
+    return "\n".join(head + net.lines())
 
 
 # ---------------------------------------------------------------------------
@@ -249,9 +249,9 @@ def flat_netlist(circuit: "Circuit", dc: "DcSolution") -> str:
     decoupling), and the signal source is a unit s-domain source, so the
     voltage of each node is its transfer function from the source EMF.
 
-    Component names are the card letter plus a serial number (lcapy reads
+    Component names are the part-kind letter plus a serial number (lcapy reads
     some name prefixes, such as ``RV``, as other part kinds); a ``#`` comment
-    above each card gives the circuit's own name.  Node names come from
+    above each part gives the circuit's own name.  Node names come from
     :func:`flat_node_names`.
 
     Parameters
@@ -272,16 +272,16 @@ def flat_model(circuit: "Circuit", dc: "DcSolution") -> tuple[str, dict[str, str
     ground and for every node a supply shorts to ground)."""
     mapping = flat_node_names(["gnd", *circuit.nodes(),
                                *(f"{t.name}.internal" for t in circuit.triodes)])
-    cards = _Cards()
+    parts = _Lines()
     serial = iter(range(1, 1 << 30))
 
     def add(letter: str, label: str, nodes: tuple[str, ...], value: str) -> None:
-        cards.add(f"{letter}{next(serial)}", tuple(mapping[n] for n in nodes), value, label)
+        parts.add(f"{letter}{next(serial)}", tuple(mapping[n] for n in nodes), value, label)
 
     # zero-ohm resistors and zero-henry inductors are shorts, zero farads open
     for r in circuit.resistors:
         if r.ohms == 0:
-            cards.short(mapping[r.a], mapping[r.b])
+            parts.short(mapping[r.a], mapping[r.b])
         else:
             add("R", r.name, (r.a, r.b), _number(r.ohms))
     for c in circuit.capacitors:
@@ -289,14 +289,14 @@ def flat_model(circuit: "Circuit", dc: "DcSolution") -> tuple[str, dict[str, str
             add("C", c.name, (c.a, c.b), _number(c.farads))
     for ind in circuit.inductors:
         if ind.henries == 0:
-            cards.short(mapping[ind.a], mapping[ind.b])
+            parts.short(mapping[ind.a], mapping[ind.b])
         else:
             add("L", ind.name, (ind.a, ind.b), _number(ind.henries))
     for src in circuit.sources:
         if src.role == "signal":
             add("V", f"{src.name} (signal, unit EMF)", (src.pos, src.neg), "s 1")
         else:
-            cards.short(mapping[src.pos], mapping[src.neg])
+            parts.short(mapping[src.pos], mapping[src.neg])
     for t in circuit.triodes:
         op = dc.points[t.name]
         internal = f"{t.name}.internal"
@@ -310,5 +310,5 @@ def flat_model(circuit: "Circuit", dc: "DcSolution") -> tuple[str, dict[str, str
                 add("C", f"{t.name}: {label}", (a, b), _number(value))
 
     head = f"# {circuit.title or 'chain'}: flat small-signal model (supplies shorted)"
-    nodes = {n: cards.node(lcapy_name) for n, lcapy_name in mapping.items()}
-    return "\n".join([head, *cards.lines()]), nodes
+    nodes = {n: parts.node(lcapy_name) for n, lcapy_name in mapping.items()}
+    return "\n".join([head, *parts.lines()]), nodes

@@ -221,7 +221,7 @@ def parse_file(path) -> Design:
     """
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        text = p.read_text(encoding="utf-8-sig")  # a byte-order mark (some editors write one) is not text
     except (OSError, UnicodeDecodeError) as exc:
         reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
         raise LanguageError(error("E100", f"cannot read netlist: {reason}", Span(str(path), 1, 1))) from None

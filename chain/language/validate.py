@@ -143,10 +143,9 @@ class _Checker:
 
     def check_settings(self):
         s = self.d.settings
-        nowhere = Span(self.d.path, 0, 0)
-        self.in_range("reference", s.reference_hz, nowhere)
-        self.in_range("level", s.level_v, nowhere)
-        self.in_range("heater", s.heater_v, nowhere, zero_ok=True)
+        self.in_range("reference", s.reference_hz, self._setting_span("reference"))
+        self.in_range("level", s.level_v, self._setting_span("level"))
+        self.in_range("heater", s.heater_v, self._setting_span("heater"), zero_ok=True)
         if not 0 < s.band_low_hz < s.band_high_hz:
             self.err("E303", f"the band must run from a lower to a higher frequency, not "
                      f"{_fmt(s.band_low_hz, 'Hz')} to {_fmt(s.band_high_hz, 'Hz')}", self._setting_span("band"))
@@ -155,11 +154,13 @@ class _Checker:
                      f"{_fmt(s.band_low_hz, 'Hz')} to {_fmt(s.band_high_hz, 'Hz')}", self._setting_span("reference"))
 
     def _setting_span(self, key: str) -> Span:
+        """The line of the ``set KEY`` in effect (the last one), or no place."""
+        found = Span(self.d.path, 0, 0)
         for i, line in enumerate(self.d.lines, start=1):
             words = line.split()
             if len(words) >= 2 and words[0] == "set" and words[1] == key:
-                return Span(self.d.path, i, 1, line)
-        return Span(self.d.path, 0, 0)
+                found = Span(self.d.path, i, 1, line)
+        return found
 
     def check_supplies(self, rail_names):
         d = self.d

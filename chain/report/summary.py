@@ -82,7 +82,9 @@ def formulas_text(design: Design, results, *, latex: bool = False) -> str:
     """
     units = {"gain": "V/V", "zin": "Ω", "zout": "Ω"}
     names = {"gain": "gain", "zin": "input impedance", "zout": "output impedance"}
-    lines = [f"{design.title or design.path} — stage formulas (small-signal, at each stage's operating point)", ""]
+    lines = [f"{design.title or design.path} — stage formulas (small-signal, at each stage's operating point)",
+             "each stage alone: what follows it is left out unless it is the output load "
+             "(`chain report` gives the gains with everything connected)", ""]
     for res in results:
         p = res.parts
         lines.append(f"stage {p.name} ({p.kind})")

@@ -11,7 +11,6 @@ from chain.dc import SolveOptions, solve, solve_network
 NETLISTS = sorted((Path(__file__).resolve().parents[2] / "netlists").glob("*.chain"))
 
 
-@pytest.mark.skipif(not NETLISTS, reason="no demo netlists")
 @pytest.mark.parametrize("path", NETLISTS, ids=lambda p: p.name)
 def test_demo_netlist_solves(kit, path):
     from chain.build import load

@@ -12,14 +12,14 @@ from chain.formulas.netlist import flat_node_names, stage_netlist
 from chain.formulas.parts import StageParts
 
 
-def _cards(text: str) -> dict[str, list[str]]:
-    """Card name -> its fields, comment lines dropped."""
+def _parts(text: str) -> dict[str, list[str]]:
+    """Part name -> its fields, comment lines dropped."""
     out = {}
     for line in text.splitlines():
         if line.startswith("#"):
             continue
         name, *rest = line.split()
-        assert name not in out, f"duplicate card {name}"
+        assert name not in out, f"duplicate part {name}"
         out[name] = rest
     return out
 
@@ -33,14 +33,14 @@ def test_triode_is_vcvs_behind_rp():
     # Thevenin triode model: V(pi) - V(k) = mu*(V(k) - V(g)) = -mu*vgk, rp from
     # pi to the plate (standard small-signal valve model, from memory of
     # M. Jones, "Valve Amplifiers")
-    cards = _cards(stage_netlist(CC))
-    assert cards["Eu"] == ["pi", "k", "k", "g", "mu"]
-    assert cards["Rp"] == ["p", "pi", "r_p"]
+    parts = _parts(stage_netlist(CC))
+    assert parts["Eu"] == ["pi", "k", "k", "g", "mu"]
+    assert parts["Rp"] == ["p", "pi", "r_p"]
 
 
 def test_symbolic_and_numeric_values():
-    sym = _cards(stage_netlist(CC, symbolic=True))
-    num = _cards(stage_netlist(CC, symbolic=False))
+    sym = _parts(stage_netlist(CC, symbolic=True))
+    num = _parts(stage_netlist(CC, symbolic=False))
     assert sym["RL"] == ["p", "0", "R_L"] and num["RL"] == ["p", "0", "100000.0"]
     assert sym["Ck"] == ["k", "0", "C_k"] and float(num["Ck"][2]) == 22e-6
     assert sym["Rs"] == ["in", "g", "R_s"] and sym["Rg"] == ["in", "0", "R_g"]
@@ -50,41 +50,41 @@ def test_symbolic_and_numeric_values():
 
 
 def test_midband_shorts_bypass_and_drops_interelectrode_caps():
-    cards = _cards(stage_netlist(CC, midband=True))
+    parts = _parts(stage_netlist(CC, midband=True))
     # a fully bypassed cathode is AC ground: Rk and Ck vanish, k becomes node 0
-    assert "Rk" not in cards and "Ck" not in cards
-    assert cards["Eu"] == ["pi", "0", "0", "g", "mu"]
-    assert not {"Cgk", "Cgp", "Cpk"} & cards.keys()
+    assert "Rk" not in parts and "Ck" not in parts
+    assert parts["Eu"] == ["pi", "0", "0", "g", "mu"]
+    assert not {"Cgk", "Cgp", "Cpk"} & parts.keys()
 
 
 def test_split_bypass_midband_keeps_series_resistor():
     split = StageParts("V2", "common-cathode", 100.0, 62.5e3, rl_ohm=100e3, rk_ohm=1.5e3,
                        ck_f=1e-6, rkc_ohm=470.0)
-    full = _cards(stage_netlist(split))
+    full = _parts(stage_netlist(split))
     assert full["Rkc"] == ["k", "kb", "R_kc"] and full["Ck"] == ["kb", "0", "C_k"]
-    mid = _cards(stage_netlist(split, midband=True))
+    mid = _parts(stage_netlist(split, midband=True))
     assert mid["Rkc"] == ["k", "0", "R_kc"] and mid["Rk"] == ["k", "0", "R_k"]
 
 
 def test_output_drive_shorts_input_and_removes_load():
-    cards = _cards(stage_netlist(CC, drive="output"))
-    assert "Vin" not in cards and "Rload" not in cards and "Rg" not in cards
-    assert cards["Rs"] == ["0", "g", "R_s"]
-    assert cards["Vt"] == ["p", "0", "s", "1"]
+    parts = _parts(stage_netlist(CC, drive="output"))
+    assert "Vin" not in parts and "Rload" not in parts and "Rg" not in parts
+    assert parts["Rs"] == ["0", "g", "R_s"]
+    assert parts["Vt"] == ["p", "0", "s", "1"]
 
 
 def test_follower_plate_on_rail_and_output_at_cathode():
     cf = StageParts("V3", "cathode-follower", 100.0, 62.5e3, rk_ohm=100e3, rg_ohm=1e6)
-    cards = _cards(stage_netlist(cf, drive="output"))
-    assert cards["Rp"] == ["0", "pi", "r_p"]
-    assert cards["Vt"] == ["k", "0", "s", "1"]
+    parts = _parts(stage_netlist(cf, drive="output"))
+    assert parts["Rp"] == ["0", "pi", "r_p"]
+    assert parts["Vt"] == ["k", "0", "s", "1"]
 
 
 def test_common_grid_driven_at_cathode_grid_grounded():
     cg = StageParts("V4", "common-grid", 100.0, 62.5e3, rl_ohm=100e3)
-    cards = _cards(stage_netlist(cg))
-    assert cards["Vin"] == ["k", "0", "s", "1"]
-    assert cards["Eu"] == ["pi", "k", "k", "0", "mu"]
+    parts = _parts(stage_netlist(cg))
+    assert parts["Vin"] == ["k", "0", "s", "1"]
+    assert parts["Eu"] == ["pi", "k", "k", "0", "mu"]
 
 
 def test_bad_drive_is_refused():

@@ -42,7 +42,9 @@ def test_every_demo_netlist(demo, name):
     assert hr.limits == LIMITS and any("blocking" in text for text in hr.limits)
     spec = hr.distortion
     assert spec is not None and len(spec.stages) == len(circuit.stages)
-    assert 0.0 <= spec.overall.thd < 10.0
+    # harmonics 2–9 of a clipped sine: a square wave gives 43 %, a half-wave rectified sine 44 %
+    # (Fourier series of those waveforms, any signals text); nothing here exceeds them much
+    assert 0.0 <= spec.overall.thd < 0.6
     assert len(spec.overall.relative_db) == 8
 
 

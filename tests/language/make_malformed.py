@@ -82,6 +82,7 @@ CASES = [
     ("unknown_terminal", "output V2 load 1M\n", "output V2 load 1M\nstray V2.anode 5p\n", "E209", 19, 7),
     ("band_reversed", "title \"Corpus base\"", "title \"Corpus base\"\nset band 20kHz 20Hz", "E303", 3, 1),
     ("tube_loop", "title \"Corpus base\"", "title \"Corpus base\"\ntube A like B\ntube B like A", "E223", 3, 6),
+    ("level_zero", "title \"Corpus base\"", "title \"Corpus base\"\nset level 0V", "E301", 3, 1),
     ("second_input", "input into V1 resistance 10k", "input into V1 resistance 10k\ninput into V1 ideal", "E113", 6, 12),
 ]
 

@@ -38,7 +38,15 @@ def _deviations(name, vpk, vgk, ip, gm, rp):
 
 @pytest.mark.parametrize("point", MAIN_POINTS, ids=[p[0] for p in MAIN_POINTS])
 def test_handbook_typical_operating_point(point):
-    # Tolerance: ±20 % on plate current, ±15 % on gm and rp.
+    """The model at each type's handbook typical point.
+
+    These points are the ones the library's parameters were fitted to
+    (docs/models.md), so this is a check that the fit and its transcription
+    hold, not an independent test of the model; the independent comparison
+    is :func:`test_handbook_second_operating_point` (12AY7 and 5751 have no
+    second point in the library yet).  Tolerance: ±20 % on plate current,
+    ±15 % on gm and rp.
+    """
     name, vpk, vgk, ip, gm, rp, source = point
     d_ip, d_gm, d_rp = _deviations(name, vpk, vgk, ip, gm, rp)
     print(f"{name} {vpk:g} V/{vgk:g} V ({source}): Ip {d_ip:+.1%}, gm {d_gm:+.1%}, rp {d_rp:+.1%}")

@@ -178,7 +178,7 @@ def test_plate_current_joins_zero_smoothly_at_zero_plate_voltage():
 
 
 def test_small_signal_mu_is_gm_times_rp_and_open_plate_when_off():
-    # Standard triode relation mu = gm·rp (any valve textbook).
+    # Standard triode relation mu = gm·rp (M. Jones, "Valve Amplifiers", from memory).
     model = lookup("12AU7")
     vpk = np.array([50.0, 150.0, 250.0, 300.0])
     vgk = np.array([-1.0, -4.0, -8.5, -12.0])
