@@ -258,7 +258,7 @@ def distortion_in(net: MidBandNetwork, *, level_v: float, points: int = 128) -> 
         x_in, y_out = waves[s.input], waves[s.output]
         own = own_harmonics(x_in, y_out)
         spec_in, spec_out = _spectrum(s.input, x_in), _spectrum(s.output, y_out)
-        gain_db = _db(np.float64(spec_out.fundamental_v) / np.float64(spec_in.fundamental_v))
+        gain_db = _db(spec_out.fundamental_v, spec_in.fundamental_v)
         stages.append(StageDistortion(stage=s.name, input=spec_in, output=spec_out, gain_db=gain_db,
                                       small_signal_gain=slope,
                                       own_amplitudes_v=tuple(float(v) for v in own)))
@@ -268,7 +268,7 @@ def distortion_in(net: MidBandNetwork, *, level_v: float, points: int = 128) -> 
     phase.setflags(write=False)
     return Distortion(level_v=float(level_v), points=points, phase_rad=phase,
                       waveforms_v=MappingProxyType(waves), stages=tuple(stages), overall=overall,
-                      overall_gain_db=_db(overall.fundamental_v / level_v),
+                      overall_gain_db=_db(overall.fundamental_v, level_v),
                       solves=net.solves - solves0)
 
 
@@ -389,7 +389,7 @@ def level_for_thd(levels_v: np.ndarray, thd_values: np.ndarray, target: float) -
     return float(np.exp(la + (np.log(target) - ta) * (lb - la) / (tb - ta)))
 
 
-def _db(ratio) -> float:
-    """``20·log10(ratio)``; −inf or NaN (not a crash) when there is no signal."""
+def _db(num_v, den_v) -> float:
+    """``20·log10(num/den)``; −inf or NaN (not a crash) when there is no signal."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        return float(20.0 * np.log10(np.float64(ratio)))
+        return float(20.0 * np.log10(np.float64(num_v) / np.float64(den_v)))
