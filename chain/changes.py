@@ -49,6 +49,8 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from chain.smallsignal.resample import on_log_grid
+
 from chain.report import SAFETY, SCHEMA, load_report, report_data
 from chain.report import fmt as _f
 from chain.report.data import OWNER_KINDS, num
@@ -501,14 +503,7 @@ def _response_effect(da, db, tol_db) -> Change | None:
     """
     fa, ma = _curve(da)
     fb, mb = _curve(db)
-    if fa.size == fb.size and np.array_equal(fa, fb):
-        mb_on_a = mb
-    else:
-        inside = (fa >= fb[0]) & (fa <= fb[-1])
-        mb_on_a = np.full_like(ma, np.nan)
-        ok = np.isfinite(mb)
-        if ok.sum() >= 2:
-            mb_on_a[inside] = np.interp(np.log10(fa[inside]), np.log10(fb[ok]), mb[ok])
+    mb_on_a = on_log_grid(fb, mb, fa)
     d = mb_on_a - ma
     valid = np.isfinite(d)
     if not valid.any():

@@ -105,14 +105,9 @@ def difference_db(a: Curve, b: Curve) -> np.ndarray:
     Same grid: point by point.  Otherwise ``b`` is interpolated linearly in
     dB against log10 frequency; NaN outside ``b``'s band.
     """
-    if a.f_hz.shape == b.f_hz.shape and np.array_equal(a.f_hz, b.f_hz):
-        return b.magnitude_db - a.magnitude_db
-    ok = np.isfinite(b.magnitude_db)
-    out = np.full(a.f_hz.shape, np.nan)
-    inside = (a.f_hz >= b.f_hz[ok][0]) & (a.f_hz <= b.f_hz[ok][-1]) if ok.sum() >= 2 else np.zeros_like(out, bool)
-    out[inside] = np.interp(np.log10(a.f_hz[inside]), np.log10(b.f_hz[ok]), b.magnitude_db[ok]) \
-        - a.magnitude_db[inside]
-    return out
+    from chain.smallsignal.resample import on_log_grid
+
+    return on_log_grid(b.f_hz, b.magnitude_db, a.f_hz) - a.magnitude_db
 
 
 def overlay(responses: Sequence, labels: Sequence[str] | None = None, *, diff_panel: bool = True,

@@ -13,6 +13,8 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from chain.smallsignal.resample import on_log_grid
+
 __all__ = ["SECTIONS", "Renderer", "check_sections", "clipped_stages", "spot_frequencies", "spot_response",
            "pd_rating", "triode_tubes", "corner_reference"]
 
@@ -121,13 +123,13 @@ def spot_response(data: dict[str, Any]) -> list[tuple[float, float | None, float
     ok = np.isfinite(m) & np.isfinite(p)
     if f.size < 2 or ok.sum() < 2:
         return []
-    lf = np.log10(f[ok])
+    spots = spot_frequencies(float(f[0]), float(f[-1]))
     unwrapped = np.degrees(np.unwrap(np.radians(p[ok])))
+    mags = on_log_grid(f[ok], m[ok], spots)
+    phases = on_log_grid(f[ok], unwrapped, spots)
     out = []
-    for fs in spot_frequencies(float(f[0]), float(f[-1])):
-        x = math.log10(fs)
-        mdb = float(np.interp(x, lf, m[ok]))
-        ph = float(np.interp(x, lf, unwrapped))
+    for fs, mdb, ph in zip(spots, mags, phases):
+        mdb, ph = float(mdb), float(ph)
         ph = (ph + 180.0) % 360.0 - 180.0
         if ph == -180.0:
             ph = 180.0
