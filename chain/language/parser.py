@@ -109,7 +109,12 @@ def _expected_names(exc) -> set[str]:
     return set(exc.expected or ())
 
 
-def _syntax_error(exc, body: str, span: Span) -> Diagnostic:
+#: the words that may start a line inside each kind of block
+BLOCK_WORDS = {"stage": ("plate", "cathode", "grid", "heater"),
+               "network": ("resistor", "capacitor", "inductor", "pot")}
+
+
+def _syntax_error(exc, body: str, span: Span, members: tuple[str, ...] | None = None) -> Diagnostic:
     """A located E10x diagnostic for lark's exception on the stripped line ``body``.
 
     The offending *word* (up to white space) is reported, and what was
@@ -141,6 +146,9 @@ def _syntax_error(exc, body: str, span: Span) -> Diagnostic:
         except UnexpectedInput:
             expected_names = _expected_names(exc)
     expected = sorted({words.get(name, name.lower()) for name in expected_names})
+    if members is not None and pos == 0:
+        # the first word of a line inside a block: only that block's members fit
+        expected = sorted(members)
     span = replace(span, column=indent + pos + 1)
     literal = [w for w in expected if not w.startswith(("a ", "an ", "end ", "text"))]
     hint = ""
@@ -169,6 +177,7 @@ def parse_syntax(text: str, source: str = "<string>") -> Design:
     lines = text.splitlines()
     statements: list[Statement] = []
     diagnostics: list[Diagnostic] = []
+    block = None  # "stage" or "network" while inside such a block
     for number, raw in enumerate(lines, start=1):
         body = strip_comment(raw)
         if not body.strip():
@@ -179,10 +188,14 @@ def parse_syntax(text: str, source: str = "<string>") -> Design:
             continue
         indent = len(body) - len(body.lstrip())
         span = Span(source, number, indent + 1, raw)
+        if indent == 0:
+            head = body.split()[0]
+            block = head if head in ("stage", "network") else None
         try:
             tree = _lark().parse(body.strip())
         except UnexpectedInput as exc:
-            diagnostics.append(_syntax_error(exc, body.strip(), span))
+            members = BLOCK_WORDS.get(block) if indent > 0 else None
+            diagnostics.append(_syntax_error(exc, body.strip(), span, members))
             head = body.split()[0]
             if indent == 0 and head in ("stage", "network"):
                 # keep the block open so its member lines are still checked

@@ -129,3 +129,12 @@ def test_layout_and_comments_do_not_change_the_design():
 def test_demo_round_trips_through_the_writer(path):
     d = parse_syntax(path.read_text(encoding="utf-8"), str(path))
     assert parse_syntax(format_design(d)) == d
+
+
+def test_a_misspelt_member_is_offered_only_the_words_of_its_block():
+    with pytest.raises(LanguageError) as info:
+        parse("stage V1 common-cathode 12AX7\n  cathod 1k5\nnetwork n\n  resistr r a -- b 1k\n")
+    first, second = info.value.diagnostics
+    assert first.message == "unexpected 'cathod': expected 'cathode', 'grid', 'heater', 'plate'"
+    assert second.message == "unexpected 'resistr': expected 'capacitor', 'inductor', 'pot', 'resistor'"
+    assert second.hint == "did you mean 'resistor'?"
