@@ -164,3 +164,12 @@ def test_plot_impedance_figure(tmp_path, capsys):
 def test_out_of_range_options_exit_2(argv, message, capsys):
     assert main(argv) == 2
     assert message in capsys.readouterr().err
+
+
+def test_tutorial_netlist_checks(tmp_path, capsys):
+    """The netlist printed in docs/tutorial.md is valid as printed."""
+    doc = (ROOT / "docs" / "tutorial.md").read_text(encoding="utf-8")
+    text = doc.split("`wren.chain`:\n\n```text\n", 1)[1].split("```", 1)[0]
+    path = tmp_path / "wren.chain"
+    path.write_text(text, encoding="utf-8")
+    assert main(["check", str(path)]) == 0
