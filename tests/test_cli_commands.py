@@ -173,3 +173,10 @@ def test_tutorial_netlist_checks(tmp_path, capsys):
     path = tmp_path / "wren.chain"
     path.write_text(text, encoding="utf-8")
     assert main(["check", str(path)]) == 0
+
+
+def test_diff_of_a_broken_json_report_is_located(tmp_path, capsys):
+    bad = tmp_path / "a.json"
+    bad.write_text('{"schema": "chain-report/1"\n  "x": 1}\n', encoding="utf-8")
+    assert main(["diff", str(bad), str(CLEAN)]) == 2
+    assert f"{bad}:2:3: error E601: not JSON" in capsys.readouterr().err

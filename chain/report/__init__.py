@@ -19,7 +19,7 @@ import json
 from pathlib import Path
 from typing import Any, Sequence
 
-from chain.errors import ChainError, Diagnostic
+from chain.errors import ChainError, Diagnostic, Span
 from chain.report.base import SECTIONS, Renderer
 from chain.report.data import SAFETY, SCHEMA, report_data
 from chain.report.jsonfmt import JsonRenderer
@@ -84,8 +84,8 @@ def render_data(data: dict[str, Any], *, fmt: str = "text", sections: Sequence[s
     return renderer.render(data, sections)
 
 
-def _bad(path: str, message: str) -> ReportFormatError:
-    return ReportFormatError(Diagnostic("E601", "error", f"{path}: {message}",
+def _bad(path: str, message: str, line: int = 1, column: int = 1) -> ReportFormatError:
+    return ReportFormatError(Diagnostic("E601", "error", message, Span(path, line, column),
                                         hint="give a netlist (.chain) or a report written by "
                                              "'chain report --format json'"))
 
@@ -114,7 +114,7 @@ def load_report(source: str | Path, *, text: str | None = None) -> dict[str, Any
     try:
         data = json.loads(text)
     except json.JSONDecodeError as exc:
-        raise _bad(name, f"not JSON (line {exc.lineno}, column {exc.colno}: {exc.msg})") from None
+        raise _bad(name, f"not JSON: {exc.msg}", exc.lineno, exc.colno) from None
     if not isinstance(data, dict) or "schema" not in data:
         raise _bad(name, "not a chain report (no 'schema' key)")
     if data["schema"] != SCHEMA:
