@@ -2,7 +2,7 @@
 
 House plan (imports flow one way; a module imports only rooms to its left)::
 
-    errors, units → tubes → language → circuit → build → dc → smallsignal
+    errors, units, fileio → tubes → language → circuit → build → dc → smallsignal
         → formulas → headroom → analysis → report | plot → changes → cli
 
 * ``language`` turns text into frozen :class:`~chain.language.Design` objects

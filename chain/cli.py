@@ -13,7 +13,6 @@ from __future__ import annotations
 import argparse
 import os
 import sys
-import tempfile
 from pathlib import Path
 from typing import Sequence
 
@@ -25,6 +24,7 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
 
 from chain import SAFETY, __version__  # noqa: E402
 from chain.errors import ChainError, Diagnostic  # noqa: E402
+from chain.fileio import write_atomically  # noqa: E402
 
 __all__ = ["main", "run"]
 
@@ -169,22 +169,12 @@ def _print_diagnostics(diagnostics: Sequence[Diagnostic]) -> None:
         print(f"{len(errors)} errors", file=sys.stderr)
 
 
-def write_atomically(path: str | os.PathLike, data: bytes | str) -> None:
-    """Write ``data`` to ``path`` through a temporary file in the same folder,
-    so that a failure never leaves a half-written file behind."""
-    target = Path(path)
-    if not target.parent.exists():
-        raise UsageError(f"cannot write {path}: folder {target.parent} does not exist")
-    raw = data.encode("utf-8") if isinstance(data, str) else data
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", dir=target.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(raw)
-        os.replace(tmp, target)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+def _writable(path: str) -> str:
+    """``path``, if its folder exists (a usage error otherwise)."""
+    folder = Path(path).parent
+    if not folder.exists():
+        raise UsageError(f"cannot write {path}: folder {folder} does not exist")
+    return path
 
 
 def _figure_path(path: str) -> str:
@@ -260,9 +250,7 @@ def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
 def _save_figure(figure, path: str) -> None:
     from chain.plot.files import save_figure
 
-    if not Path(path).parent.exists():
-        raise UsageError(f"cannot write {path}: folder {Path(path).parent} does not exist")
-    save_figure(figure, path)
+    save_figure(figure, _writable(path))
 
 
 def _bode_nodes(analysis, with_stages: bool):
@@ -294,7 +282,7 @@ def _cmd_plot(args) -> int:
 def _emit(text: str, output: str | None) -> None:
     """Print ``text``, or write it atomically to ``output``."""
     if output:
-        write_atomically(output, text if text.endswith("\n") else text + "\n")
+        write_atomically(_writable(output), text if text.endswith("\n") else text + "\n")
         print(f"wrote {output}")
     else:
         print(text)

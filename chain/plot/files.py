@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 import io
-import os
-import tempfile
 from pathlib import Path
+
+from chain.fileio import write_atomically
 
 __all__ = ["FORMATS", "save_figure"]
 
@@ -16,9 +16,9 @@ FORMATS = ("png", "svg")
 def save_figure(plot, path: str | Path, *, dpi: int = 200) -> Path:
     """Write a figure as PNG or SVG, chosen by the suffix of ``path``.
 
-    The image is rendered completely in memory first, then written to a
-    temporary file beside the target and renamed over it, so a failure never
-    leaves a half-written file.  Metadata that would change from run to run
+    The image is rendered completely in memory first, then written with
+    :func:`chain.fileio.write_atomically`, so a failure never leaves a
+    half-written file.  Metadata that would change from run to run
     (dates, software versions) is left out.
 
     Parameters
@@ -49,13 +49,5 @@ def save_figure(plot, path: str | Path, *, dpi: int = 200) -> Path:
     buf = io.BytesIO()
     metadata = {"Date": None} if fmt == "svg" else {"Software": None}
     figure.savefig(buf, format=fmt, dpi=dpi if fmt == "png" else None, metadata=metadata)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(buf.getvalue())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    write_atomically(path, buf.getvalue())
     return path
