@@ -75,9 +75,9 @@ network tone: in -> out
   resistor feed in -- a 47k
   capacitor bass_c a -- b 47n
   capacitor mid_c a -- m 22n
-  pot treble t -- out -- b 250k audio 10% at 6
-  pot bass b -- m -- m 500k audio 10% at 5
-  pot mid m -- gnd -- gnd 20k linear at 4
+  pot treble cw t wiper out ccw b 250k audio 10% at 6
+  rheostat bass m -- b 500k audio 10% at 5
+  rheostat mid m -- gnd 20k linear at 4
 """
 
 

@@ -66,10 +66,20 @@ def test_audio_taper_is_monotonic_and_linear_is_identity():
 
 
 def test_pot_splits_into_two_resistors_and_never_zero():
-    text = BASE + "network vol\n  pot level V1.plate -- w -- gnd 1M linear at 10\n  resistor r w -- gnd 1M\n"
+    text = BASE + "network vol\n  pot level cw V1.plate wiper w ccw gnd 1M linear at 10\n  resistor r w -- gnd 1M\n"
     p = parts(load_text(text)[1])
     assert p["vol.level.a"].ohms == WIPER_OHM
     assert math.isclose(p["vol.level.b"].ohms, 1e6)
+
+
+@pytest.mark.parametrize("knob,ohms", [(0, WIPER_OHM), (5, 0.1 * 1e6), (10, 1e6)])
+def test_a_rheostat_adds_resistance_as_the_knob_turns_up(knob, ohms):
+    # common practice: a bass or mid control wired as a variable resistor gives
+    # the full track at knob 10; a 10 % audio taper gives 10 % of it at mid-rotation
+    text = BASE + f"network t\n  rheostat bass V1.plate -- m 1M audio 10% at {knob}\n  resistor r m -- gnd 1M\n"
+    p = parts(load_text(text)[1])
+    assert "t.bass.a" not in p  # the wiper is tied to the knob-10 end: no part across it
+    assert math.isclose(p["t.bass.b"].ohms, ohms, rel_tol=1e-9)
 
 
 def test_network_attached_twice_gets_two_instances():
@@ -124,7 +134,7 @@ def test_build_is_deterministic():
 def test_with_part_changes_exactly_one_value():
     from chain.build import part_names, with_part
 
-    d = load_text(BASE + "network vol\n  pot level V1.plate -- w -- gnd 1M linear at 5\n  resistor r w -- gnd 1M\n")[0]
+    d = load_text(BASE + "network vol\n  pot level cw V1.plate wiper w ccw gnd 1M linear at 5\n  resistor r w -- gnd 1M\n")[0]
     assert "V1.Ck" in part_names(d) and "vol.level" in part_names(d)
     c = build(with_part(d, "V1.Ck", 47e-6))
     assert parts(c)["V1.Ck"].farads == 47e-6

@@ -147,7 +147,10 @@ class Part:
 @dataclass(frozen=True, slots=True)
 class Pot:
     """A potentiometer: ends ``a`` (the end the wiper reaches at full
-    rotation, knob 10) and ``b`` (knob 0), wiper ``wiper``.
+    rotation, knob 10: the ``cw`` end) and ``b`` (knob 0: the ``ccw`` end),
+    wiper ``wiper``.  A ``rheostat`` line (variable resistor) is a pot with
+    its wiper tied to the ``a`` end, so that the resistance ``a``–``b`` (the
+    wiper–``b`` section) rises with the knob.
 
     ``taper`` is ``"linear"`` or ``"audio"``; for audio, ``taper_mid`` is the
     fraction of resistance between wiper and ``b`` at mid-rotation (0.1 for

@@ -45,7 +45,7 @@ __all__ = ["parse_text", "parse_file", "parse_syntax"]
 TOP_LEVEL = {"title", "set_reference", "set_band", "set_level", "set_points", "set_heater", "supply",
              "rail", "tube", "stage", "network", "couple", "input", "output", "stray"}
 STAGE_MEMBERS = {"plate_load", "plate_on", "cathode", "grid", "heater"}
-NETWORK_MEMBERS = {"part", "pot"}
+NETWORK_MEMBERS = {"part", "pot", "rheostat", "pot_unlabelled"}
 
 #: units expected for each tube parameter key (None: a plain number)
 TUBE_KEYS = {
@@ -111,7 +111,7 @@ def _expected_names(exc) -> set[str]:
 
 #: the words that may start a line inside each kind of block
 BLOCK_WORDS = {"stage": ("plate", "cathode", "grid", "heater"),
-               "network": ("resistor", "capacitor", "inductor", "pot")}
+               "network": ("resistor", "capacitor", "inductor", "pot", "rheostat")}
 
 
 def _syntax_error(exc, body: str, span: Span, members: tuple[str, ...] | None = None) -> Diagnostic:
@@ -500,18 +500,62 @@ class _Builder:
         net["parts"].append(Part(kind, str(name), str(a), str(b), self.value(val, span, unit, kind), rated,
                                  self.at(name, span)))
 
-    def _pot(self, tree, span):
-        name, a, w, b, val, taper, position = tree.children
+    def _taper_position(self, taper, position, span) -> tuple[str, float, float]:
+        """``(taper, mid-rotation fraction, travel 0..1)``; ``log`` is the audio taper."""
+        kind = "linear" if taper.data == "linear" else "audio"
         mid = 0.5
-        if taper.data == "audio":
+        if kind == "audio":
             mid = self.percent(taper.children[0], span, "taper") if taper.children else 0.1
         if position.data == "knob":
             pos = self.value(position.children[0], span, None, "knob setting") / 10.0
         else:
             pos = self.value(position.children[0], span, None, "travel")
+        return kind, mid, pos
+
+    def _pot(self, tree, span):
+        name, *ends, val, taper, position = tree.children
+        nodes: dict[str, str] = {}
+        problems = []
+        for end in ends:
+            if end.data in nodes:
+                problems.append(error("E120", f"pot '{name}' names its {end.data} terminal twice",
+                                      self.at(end.children[0], span),
+                                      "name each terminal once: cw (the end at knob 10), wiper, ccw (the end at knob 0)"))
+            nodes[end.data] = str(end.children[0])
+        missing = [t for t in ("cw", "wiper", "ccw") if t not in nodes]
+        if missing:
+            problems.append(error("E120", f"pot '{name}' does not name its {' and '.join(missing)} terminal",
+                                  self.at(name, span),
+                                  "name each terminal once: cw (the end at knob 10), wiper, ccw (the end at knob 0)"))
+        if problems:
+            raise _LineErrors(problems)
+        kind, mid, pos = self._taper_position(taper, position, span)
         _, net = self.block
-        net["parts"].append(Pot(str(name), str(a), str(w), str(b), self.value(val, span, "ohm", "pot value"),
-                                taper.data, mid, pos, self.at(name, span)))
+        net["parts"].append(Pot(str(name), nodes["cw"], nodes["wiper"], nodes["ccw"],
+                                self.value(val, span, "ohm", "pot value"), kind, mid, pos, self.at(name, span)))
+
+    def _rheostat(self, tree, span):
+        name, a, b, val, taper, position = tree.children
+        kind, mid, pos = self._taper_position(taper, position, span)
+        _, net = self.block
+        # the wiper tied to the knob-10 end: the resistance a–b is the wiper–ccw section
+        net["parts"].append(Pot(str(name), str(a), str(a), str(b), self.value(val, span, "ohm", "rheostat value"),
+                                kind, mid, pos, self.at(name, span)))
+
+    def _pot_unlabelled(self, tree, span):
+        name, a, w, b, val, *_ = tree.children
+        a, w, b, name = str(a), str(w), str(b), str(name)
+        rest = " ".join(strip_comment(span.text).split()[7:])
+        if w == a or w == b:
+            other = b if w == a else a
+            hint = (f"a pot with its wiper tied to one end is a variable resistor: write "
+                    f"'rheostat {name} {w} -- {other} {rest}' (its resistance rises from 0 at knob 0 "
+                    f"to the full value at knob 10), or name the ends: 'pot {name} cw … wiper … ccw …'")
+        else:
+            hint = (f"write 'pot {name} cw {a} wiper {w} ccw {b} {rest}' if {a} is the end the wiper "
+                    f"reaches at knob 10 (cw: turned fully clockwise)")
+        raise _LineErrors([error("E121", f"pot '{name}': say which end is which", self.at(tree.children[0], span),
+                                 hint)])
 
     # -- result -----------------------------------------------------------------
     def design(self) -> Design:

@@ -133,6 +133,9 @@ def _part_line(p: Part | Pot) -> str:
         pct = p.taper_mid * 100
         mid = f"{_n(pct)}%" if float(_n(pct)) / 100.0 == p.taper_mid else _n(p.taper_mid)
         taper = "linear" if p.taper == "linear" else f"audio {mid}"
-        return f"pot {p.name} {p.a} -- {p.wiper} -- {p.b} {_r(p.value)} {taper} travel {_n(p.position)}"
+        tail = f"{_r(p.value)} {taper} travel {_n(p.position)}"
+        if p.wiper == p.a and p.a != p.b:
+            return f"rheostat {p.name} {p.a} -- {p.b} {tail}"
+        return f"pot {p.name} cw {p.a} wiper {p.wiper} ccw {p.b} {tail}"
     value = {"resistor": _r, "capacitor": _c, "inductor": _l}[p.kind](p.value)
     return f"{p.kind} {p.name} {p.a} -- {p.b} {value}{_rated(p.rated_v)}"

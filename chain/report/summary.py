@@ -26,9 +26,35 @@ def check_summary(design: Design, circuit: Circuit) -> str:
             "pickup": "pickup"}[src.kind]
     lines.append(f"  input:    {kind} into {src.into}")
     lines.append(f"  output:   node {circuit.output_node}, load {format_si(design.output.load_ohm, 'Ω')}")
-    lines.append(f"  parts:    {len(circuit.resistors)} resistors, {len(circuit.capacitors)} capacitors, "
-                 f"{len(circuit.inductors)} inductors, {len(circuit.triodes)} triodes")
+    pots, halves = _pot_counts(design)
+    counts = [(len(circuit.resistors) - halves, "resistor"), (pots, "pot"), (len(circuit.capacitors), "capacitor"),
+              (len(circuit.inductors), "inductor"), (len(circuit.triodes), "triode")]
+    lines.append("  parts:    " + ", ".join(_count(n, word) for n, word in counts if n or word != "pot"))
     return "\n".join(lines)
+
+
+def _count(n: int, word: str) -> str:
+    """``1 inductor``, ``2 inductors``."""
+    return f"{n} {word}" if n == 1 else f"{n} {word}s"
+
+
+def _pot_counts(design: Design) -> tuple[int, int]:
+    """Pots (and rheostats) in the circuit, and how many resistors they expand into.
+
+    A network attached with ``via`` is placed once per coupling; one without
+    ports once.  A pot is two resistors (either side of its wiper), a
+    rheostat (wiper tied to an end) one.
+    """
+    from chain.language.design import Pot
+
+    pots = halves = 0
+    for n in design.networks:
+        copies = sum(1 for c in design.couplings if c.kind == "network" and c.network == n.name) if n.ports else 1
+        for p in n.parts:
+            if isinstance(p, Pot):
+                pots += copies
+                halves += copies * (1 if p.wiper in (p.a, p.b) else 2)
+    return pots, halves
 
 
 def _v(value: float) -> str:

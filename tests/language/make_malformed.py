@@ -65,7 +65,7 @@ CASES = [
     ("dangling_node", "output V2 load 1M\n", "output V2 load 1M\nnetwork hang\n  resistor r1 V2.plate -- x 10k\n",
      "E312", 20, 12),
     ("pot_out_of_range", "output V2 load 1M\n",
-     "output V2 load 1M\nnetwork vol\n  pot level V2.plate -- w -- gnd 1M audio 10% at 12\n  resistor r w -- gnd 1M\n",
+     "output V2 load 1M\nnetwork vol\n  pot level cw V2.plate wiper w ccw gnd 1M audio 10% at 12\n  resistor r w -- gnd 1M\n",
      "E309", 20, 7),
     ("stage_fed_twice", "couple V1 -> V2 cap 22n\n", "couple V1 -> V2 direct\ncouple V2 -> V1 direct\n", "E219", 18, 8),
     ("direct_loop", "couple V1 -> V2 cap 22n\n",

@@ -61,8 +61,8 @@ def test_two_triode_kinds_parse(kind):
 
 def test_network_parts_and_pots():
     d = parse("network tone: in -> out\n  resistor slope in -- m 56k\n  capacitor c1 in -- t 470p rated 400V\n"
-              "  inductor l1 m -- gnd 1.5H\n  pot treble t -- out -- m 250k audio 10% at 6\n"
-              "  pot mid m -- gnd -- gnd 25k linear travel 0.25\n")
+              "  inductor l1 m -- gnd 1.5H\n  pot treble cw t wiper out ccw m 250k audio 10% at 6\n"
+              "  rheostat mid m -- gnd 25k linear travel 0.25\n")
     n = d.network("tone")
     assert n.ports == ("in", "out")
     r, c, l, treble, mid = n.parts
@@ -136,5 +136,33 @@ def test_a_misspelt_member_is_offered_only_the_words_of_its_block():
         parse("stage V1 common-cathode 12AX7\n  cathod 1k5\nnetwork n\n  resistr r a -- b 1k\n")
     first, second = info.value.diagnostics
     assert first.message == "unexpected 'cathod': expected 'cathode', 'grid', 'heater', 'plate'"
-    assert second.message == "unexpected 'resistr': expected 'capacitor', 'inductor', 'pot', 'resistor'"
+    assert second.message == "unexpected 'resistr': expected 'capacitor', 'inductor', 'pot', 'resistor', 'rheostat'"
     assert second.hint == "did you mean 'resistor'?"
+
+
+def test_a_pot_names_its_ends_in_any_order():
+    d = parse("network n\n  pot level ccw gnd cw top wiper out 1M log at 6\n")
+    level = d.network("n").parts[0]
+    assert (level.a, level.wiper, level.b, level.taper, level.taper_mid) == ("top", "out", "gnd", "audio", 0.1)
+
+
+def test_a_pot_must_name_each_end_once():
+    with pytest.raises(LanguageError) as info:
+        parse("network n\n  pot level cw top wiper out cw gnd 1M linear at 6\n")
+    codes = [d.code for d in info.value.diagnostics]
+    assert codes == ["E120", "E120"]  # cw twice, ccw missing
+    assert "ccw" in info.value.diagnostics[1].message
+
+
+def test_a_rheostat_is_a_pot_with_its_wiper_on_the_knob_10_end():
+    bass = parse("network n\n  rheostat bass m -- b 1M audio 10% at 4\n").network("n").parts[0]
+    assert (bass.a, bass.wiper, bass.b, bass.position) == ("m", "m", "b", 0.4)
+
+
+def test_the_unlabelled_pot_form_is_refused_with_the_line_to_write():
+    with pytest.raises(LanguageError) as info:
+        parse("network n\n  pot bass b -- m -- m 1M audio 10% at 4  # old\n  pot level top -- out -- gnd 1M audio at 6\n")
+    bass, level = info.value.diagnostics
+    assert (bass.code, bass.span.line, bass.span.column) == ("E121", 2, 7)
+    assert "'rheostat bass m -- b 1M audio 10% at 4'" in bass.hint
+    assert level.code == "E121" and "'pot level cw top wiper out ccw gnd 1M audio at 6'" in level.hint
