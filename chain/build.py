@@ -24,9 +24,12 @@ from chain.circuit import (
     Capacitor,
     Circuit,
     Inductor,
+    Owner,
     Resistor,
-    StageNodes,
+    Role,
+    StageRecord,
     Triode,
+    Unions,
     VoltageSource,
 )
 from chain.errors import Diagnostic, LanguageError, Span, error
@@ -143,55 +146,62 @@ class _Expander:
     # -- supplies ---------------------------------------------------------------
     def supplies(self):
         for s in self.d.supplies:
+            own = Owner("supply", s.name)
             if s.impedance_ohm > 0:
                 raw = f"{s.name}.raw"
-                self.add(VoltageSource(f"supply.{s.name}", raw, GROUND, s.volts, "supply"), s.span)
-                self.add(Resistor(f"supply.{s.name}.R", raw, s.name, s.impedance_ohm), s.span)
+                self.add(VoltageSource(f"supply.{s.name}", raw, GROUND, s.volts, Role.SUPPLY, own), s.span)
+                self.add(Resistor(f"supply.{s.name}.R", raw, s.name, s.impedance_ohm, own, Role.SUPPLY_IMPEDANCE),
+                         s.span)
             else:
-                self.add(VoltageSource(f"supply.{s.name}", s.name, GROUND, s.volts, "supply"), s.span)
+                self.add(VoltageSource(f"supply.{s.name}", s.name, GROUND, s.volts, Role.SUPPLY, own), s.span)
         for r in self.d.rails:
-            self.add(Resistor(f"rail.{r.name}.R", r.feed, r.name, r.drop_ohm), r.span)
+            own = Owner("rail", r.name)
+            self.add(Resistor(f"rail.{r.name}.R", r.feed, r.name, r.drop_ohm, own, Role.RAIL_DROP), r.span)
             if r.decouple_f is not None:
-                self.add(Capacitor(f"rail.{r.name}.C", r.name, GROUND, r.decouple_f, r.decouple_rated_v), r.span)
+                self.add(Capacitor(f"rail.{r.name}.C", r.name, GROUND, r.decouple_f, r.decouple_rated_v, own,
+                                   Role.RAIL_DECOUPLE), r.span)
 
     # -- stages -----------------------------------------------------------------
-    def stage(self, s: Stage) -> StageNodes:
+    def stage(self, s: Stage) -> StageRecord:
         n = s.name
         sp = s.spans
+        own = Owner("stage", n)
         plate = f"{n}.plate" if s.plate_load_ohm is not None else s.rail
         if s.plate_load_ohm is not None:
-            self.add(Resistor(f"{n}.RL", s.rail, plate, s.plate_load_ohm), sp.get("plate", s.span))
+            self.add(Resistor(f"{n}.RL", s.rail, plate, s.plate_load_ohm, own, Role.PLATE_LOAD), sp.get("plate", s.span))
         cathode = GROUND
         if s.cathode is not None:
             cathode = f"{n}.cathode"
             cs = sp.get("cathode", s.span)
-            self.add(Resistor(f"{n}.Rk", cathode, GROUND, s.cathode.r_ohm), cs)
+            self.add(Resistor(f"{n}.Rk", cathode, GROUND, s.cathode.r_ohm, own, Role.CATHODE_RESISTOR), cs)
             if s.cathode.bypass_f is not None:
                 top = cathode
                 if s.cathode.bypass_series_ohm is not None:
                     top = f"{n}.kb"
-                    self.add(Resistor(f"{n}.Rkc", cathode, top, s.cathode.bypass_series_ohm), cs)
-                self.add(Capacitor(f"{n}.Ck", top, GROUND, s.cathode.bypass_f, s.cathode.bypass_rated_v), cs)
+                    self.add(Resistor(f"{n}.Rkc", cathode, top, s.cathode.bypass_series_ohm, own,
+                                           Role.BYPASS_SERIES), cs)
+                self.add(Capacitor(f"{n}.Ck", top, GROUND, s.cathode.bypass_f, s.cathode.bypass_rated_v,
+                                         own, Role.BYPASS), cs)
         if s.grid_ground:
             grid = inp = GROUND
         else:
             inp = f"{n}.in"
             grid = f"{n}.grid" if s.grid_stopper_ohm is not None else inp
             if s.grid_stopper_ohm is not None:
-                self.add(Resistor(f"{n}.Rs", inp, grid, s.grid_stopper_ohm), sp.get("grid_stopper", s.span))
+                self.add(Resistor(f"{n}.Rs", inp, grid, s.grid_stopper_ohm, own, Role.GRID_STOPPER), sp.get("grid_stopper", s.span))
             if s.grid_leak_ohm is not None:
-                self.add(Resistor(f"{n}.Rg", inp, GROUND, s.grid_leak_ohm), sp.get("grid_leak", s.span))
+                self.add(Resistor(f"{n}.Rg", inp, GROUND, s.grid_leak_ohm, own, Role.GRID_LEAK), sp.get("grid_leak", s.span))
         heater = s.heater_v if s.heater_v is not None else self.d.settings.heater_v
         try:
             model = tube_model(self.d, s.tube)
         except KeyError:
             self.err("E206", f"unknown tube type '{s.tube}'", s.span)
             model = lookup("12AX7")
-        self.add(Triode(n, plate, grid, cathode, model, heater), s.span)
+        self.add(Triode(n, plate, grid, cathode, model, heater, own), s.span)
         self.terminals[n] = {"plate": plate, "grid": grid, "cathode": cathode, "in": inp}
         signal_in = cathode if s.kind == "common-grid" else inp
         signal_out = cathode if s.kind == "cathode-follower" else plate
-        return StageNodes(n, s.kind, model.name, signal_in, signal_out, n, s.rail)
+        return StageRecord(n, s.kind, model.name, (n,), {"in": signal_in}, {"out": signal_out}, s.rail)
 
     # -- networks ---------------------------------------------------------------
     def resolve(self, name: str, instance: str | None, ports: dict[str, str], span: Span) -> str:
@@ -213,6 +223,7 @@ class _Expander:
 
     def network(self, net, instance: str, ports: dict[str, str]):
         self.instance_ports[instance] = dict(ports)
+        own = Owner("network", instance)
         for p in net.parts:
             if isinstance(p, Pot):
                 a = self.resolve(p.a, instance, ports, p.span)
@@ -222,19 +233,20 @@ class _Expander:
                 # a pot wired as a variable resistor (wiper tied to one end)
                 # has no part across the tied section
                 if a != w:
-                    self.add(Resistor(f"{instance}.{p.name}.a", a, w, max(p.value * (1.0 - t), WIPER_OHM)), p.span)
+                    self.add(Resistor(f"{instance}.{p.name}.a", a, w, max(p.value * (1.0 - t), WIPER_OHM), own,
+                                      Role.POT_UPPER), p.span)
                 if w != b:
-                    self.add(Resistor(f"{instance}.{p.name}.b", w, b, max(p.value * t, WIPER_OHM)), p.span)
+                    self.add(Resistor(f"{instance}.{p.name}.b", w, b, max(p.value * t, WIPER_OHM), own, Role.POT_LOWER), p.span)
                 continue
             a = self.resolve(p.a, instance, ports, p.span)
             b = self.resolve(p.b, instance, ports, p.span)
             name = f"{instance}.{p.name}"
             if p.kind == "resistor":
-                self.add(Resistor(name, a, b, p.value), p.span)
+                self.add(Resistor(name, a, b, p.value, own, Role.NETWORK_PART), p.span)
             elif p.kind == "capacitor":
-                self.add(Capacitor(name, a, b, p.value, p.rated_v), p.span)
+                self.add(Capacitor(name, a, b, p.value, p.rated_v, own, Role.NETWORK_PART), p.span)
             else:
-                self.add(Inductor(name, a, b, p.value), p.span)
+                self.add(Inductor(name, a, b, p.value, own, Role.NETWORK_PART), p.span)
 
 
 def build(design: Design) -> Circuit:
@@ -262,7 +274,7 @@ def build(design: Design) -> Circuit:
             dst = stage_nodes[c.dst].input
         if c.kind == "cap":
             name = f"couple.{c.src}-{c.dst}.C"
-            x.add(Capacitor(name, src, dst, c.cap_f, c.rated_v), c.span)
+            x.add(Capacitor(name, src, dst, c.cap_f, c.rated_v, Owner("coupling", c.label), Role.COUPLING), c.span)
             couplings[c.label] = (src, dst)
         elif c.kind == "direct":
             x.nodes.join(src, dst)
@@ -279,16 +291,18 @@ def build(design: Design) -> Circuit:
     src = design.source
     first_in = stage_nodes[src.into].input
     emf = first_in if src.kind == "ideal" or (src.kind == "resistance" and src.r_ohm == 0) else "input.emf"
-    x.add(VoltageSource("input", emf, GROUND, 0.0, "signal"), src.span)
+    own = Owner("input", "input")
+    x.add(VoltageSource("input", emf, GROUND, 0.0, Role.SIGNAL, own), src.span)
     if src.kind == "resistance" and src.r_ohm > 0:
-        x.add(Resistor("input.R", emf, first_in, src.r_ohm), src.span)
+        x.add(Resistor("input.R", emf, first_in, src.r_ohm, own, Role.SOURCE_RESISTANCE), src.span)
     elif src.kind == "pickup":
-        x.add(Resistor("input.Rw", emf, "input.w", src.r_ohm), src.span)
-        x.add(Inductor("input.L", "input.w", first_in, src.l_h), src.span)
+        x.add(Resistor("input.Rw", emf, "input.w", src.r_ohm, own, Role.PICKUP_WINDING), src.span)
+        x.add(Inductor("input.L", "input.w", first_in, src.l_h, own, Role.PICKUP_INDUCTANCE), src.span)
         if src.c_f > 0:
-            x.add(Capacitor("input.C", first_in, GROUND, src.c_f), src.span)
+            x.add(Capacitor("input.C", first_in, GROUND, src.c_f, None, own, Role.PICKUP_CAPACITANCE), src.span)
         if src.cable_f > 0:
-            x.add(Capacitor("input.Ccable", first_in, GROUND, src.cable_f), src.span)
+            x.add(Capacitor("input.Ccable", first_in, GROUND, src.cable_f, None, own, Role.CABLE_CAPACITANCE),
+                  src.span)
 
     out = design.output
     if out.node is not None:
@@ -296,11 +310,12 @@ def build(design: Design) -> Circuit:
             output_node = stage_nodes[out.node].output
         else:
             output_node = x.resolve(out.node, None, {}, out.span)
-    x.add(Resistor("output.load", output_node, GROUND, out.load_ohm), out.span)
+    x.add(Resistor("output.load", output_node, GROUND, out.load_ohm, Owner("output", "output"), Role.LOAD), out.span)
     for st in design.strays:
         node = stage_nodes[st.node].output if st.node in stage_nodes else x.resolve(st.node, None, {}, st.span)
         if st.farads > 0:
-            x.add(Capacitor(f"stray.{st.node}", node, GROUND, st.farads), st.span)
+            x.add(Capacitor(f"stray.{st.node}", node, GROUND, st.farads, None, Owner("stray", st.node), Role.STRAY),
+                  st.span)
 
     if x.problems:
         raise LanguageError(x.problems)
@@ -356,7 +371,8 @@ def _renamed(design, x: _Expander, stages, input_node, output_node, couplings) -
     inds = tuple(replace(i, a=f(i.a), b=f(i.b)) for i in x.inds)
     srcs = tuple(replace(s, pos=f(s.pos), neg=f(s.neg)) for s in x.srcs)
     tris = tuple(replace(t, plate=f(t.plate), grid=f(t.grid), cathode=f(t.cathode)) for t in x.tris)
-    stage_nodes = tuple(replace(s, input=f(s.input), output=f(s.output), rail=f(s.rail)) for s in stages)
+    stage_nodes = tuple(replace(s, inputs={k: f(v) for k, v in s.inputs.items()},
+                                outputs={k: f(v) for k, v in s.outputs.items()}, rail=f(s.rail)) for s in stages)
     rails = tuple(s.name for s in design.supplies) + tuple(r.name for r in design.rails)
     return Circuit(
         title=design.title,

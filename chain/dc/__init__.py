@@ -9,16 +9,14 @@ held_caps=...)`` gives a reusable :class:`NetworkSystem` for repeated solves
 from chain.dc.curves import BiasLine, LoadLine, PlateFamily, bias_line, load_line, plate_family, stage_lines
 from chain.dc.diagnose import diagnose
 from chain.dc.result import CapacitorPoint, DcSolution, OperatingPoint, RailPoint, SolveOptions
-from chain.dc.solve import (
+from chain.dc.engine import (
     LoadLineCoefficients,
     NetworkState,
     NetworkSystem,
     compile_network,
-    dc_floating_nodes,
-    rail_feeds,
-    solve,
     solve_network,
 )
+from chain.dc.solve import solve
 
 __all__ = [
     "solve",
@@ -27,8 +25,6 @@ __all__ = [
     "NetworkSystem",
     "NetworkState",
     "LoadLineCoefficients",
-    "dc_floating_nodes",
-    "rail_feeds",
     "diagnose",
     "SolveOptions",
     "DcSolution",

@@ -19,7 +19,7 @@ import numpy as np
 
 from chain.circuit import Circuit
 from chain.dc.result import DcSolution
-from chain.dc.solve import compile_network
+from chain.dc.engine import compile_network
 from chain.tubes import TriodeModel, plate_current_and_derivatives
 
 __all__ = [

@@ -29,9 +29,9 @@ the report layer formats further.
 
 from __future__ import annotations
 
-from chain.circuit import Circuit, Triode
+from chain.circuit import Circuit, Owner, Role, Triode
+from chain.dc.engine import compile_network
 from chain.dc.result import DcSolution, OperatingPoint, SolveOptions
-from chain.dc.solve import compile_network, dc_floating_nodes, stage_label, stage_of_triode
 from chain.errors import Diagnostic, warning
 from chain.units import format_si
 
@@ -78,7 +78,7 @@ def diagnose(circuit: Circuit, solution: DcSolution, options: SolveOptions | Non
     """
     options = solution.options if options is None else options
     triodes = {t.name: t for t in circuit.triodes}
-    ordered = [s.triode for s in circuit.stages if s.triode in triodes]
+    ordered = [name for s in circuit.stages for name in s.triodes if name in triodes]
     ordered += [name for name in triodes if name not in ordered]
     cold = _cold_plate_voltages(circuit, options)
     out: list[Diagnostic] = []
@@ -103,8 +103,8 @@ def _cold_plate_voltages(circuit: Circuit, options: SolveOptions) -> dict[str, f
 
 def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: float | None,
                    options: SolveOptions) -> list[Diagnostic]:
-    subject = stage_of_triode(circuit, tri.name)
-    who = stage_label(circuit, subject)
+    subject = circuit.stage_of_triode(tri.name)
+    who = circuit.stage_label(subject)
     r = tri.model.ratings
     out: list[Diagnostic] = []
     if p.ip_a < options.cutoff_a:
@@ -167,7 +167,7 @@ def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: f
             hint="raise the cathode resistor or the plate load", subject=subject))
     rg_max = _rating(r, "rg_max_ohm")
     if rg_max is not None:
-        leak = next((res for res in circuit.resistors if res.name == f"{subject}.Rg"), None)
+        leak = _grid_leak(circuit, tri)
         if leak is not None and leak.ohms > rg_max:
             out.append(warning(
                 "W408", f"{who} grid leak {leak.name} = {_ohm(leak.ohms)} is over the rated maximum "
@@ -175,6 +175,12 @@ def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: f
                 hint="grid current and gas current through a large grid leak shift the bias; use a smaller one",
                 subject=subject))
     return out
+
+
+def _grid_leak(circuit: Circuit, tri: Triode):
+    """The grid leak of the stage that holds ``tri`` (the one touching its grid path), or None."""
+    leaks = circuit.parts(owner=Owner("stage", circuit.stage_of_triode(tri.name)), role=Role.GRID_LEAK)
+    return max(leaks, key=lambda r: r.ohms) if leaks else None
 
 
 def _capacitor_checks(circuit: Circuit, solution: DcSolution) -> list[Diagnostic]:
@@ -193,14 +199,14 @@ def _capacitor_checks(circuit: Circuit, solution: DcSolution) -> list[Diagnostic
 
 
 def _floating_checks(circuit: Circuit) -> list[Diagnostic]:
-    floating = set(dc_floating_nodes(circuit))
+    floating = set(circuit.dc_floating_nodes())
     out: list[Diagnostic] = []
     for tri in circuit.triodes:
         for pin, node in (("grid", tri.grid), ("cathode", tri.cathode), ("plate", tri.plate)):
             if node in floating:
-                subject = stage_of_triode(circuit, tri.name)
+                subject = circuit.stage_of_triode(tri.name)
                 out.append(warning(
-                    "W410", f"{stage_label(circuit, subject)} {pin} (node '{node}') has no DC path to ground; "
+                    "W410", f"{circuit.stage_label(subject)} {pin} (node '{node}') has no DC path to ground; "
                     f"only capacitors reach it, so the solved voltage rests on the solver's gmin alone",
                     hint="add a grid leak (grid), a cathode resistor (cathode) or a plate load (plate)",
                     subject=subject))

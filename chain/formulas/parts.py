@@ -13,6 +13,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from chain.circuit import GROUND as _GROUND
+from chain.circuit import Owner, Role
 from chain.errors import FormulaError, error
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
@@ -23,8 +25,6 @@ __all__ = ["KINDS", "StageParts", "stage_parts"]
 
 #: the stage configurations the per-stage template can represent
 KINDS = ("common-cathode", "cathode-follower", "common-grid")
-
-_GROUND = "gnd"
 
 
 @dataclass(frozen=True, slots=True)
@@ -105,11 +105,9 @@ class StageParts:
                 error("E520", f"stage {self.name}: {p}", subject=self.name) for p in problems))
 
 
-def _find(parts, name):
-    for p in parts:
-        if p.name == name:
-            return p
-    return None
+def _find(circuit, owner, role):
+    """The one element of ``owner`` with ``role`` (None when there is none)."""
+    return circuit.part(owner, role)
 
 
 def _between(part, n1: str, n2: str) -> bool:
@@ -135,8 +133,9 @@ def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
                 rload_ohm: float | None = None) -> StageParts:
     """Extract one stage's :class:`StageParts` from a built circuit.
 
-    Parts are found by the builder's names (``"<stage>.RL"``, ``".Rk"``,
-    ``".Rkc"``, ``".Ck"``, ``".Rg"``, ``".Rs"``); mu and rp come from the DC
+    Parts are found by their owner (the stage) and role (plate load,
+    cathode resistor, bypass series resistor, bypass, grid leak, grid
+    stopper); mu and rp come from the DC
     operating point of the stage's triode; interelectrode capacitances from
     the triode model.  Each part's terminals are checked against the
     template the formulas assume (plate load to the stage rail, cathode
@@ -179,16 +178,16 @@ def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
                                  subject=stage_name)) from None
 
     plate, grid, cathode = tri.plate, tri.grid, tri.cathode
-    res, caps = circuit.resistors, circuit.capacitors
+    own = Owner("stage", stage_name)
 
-    rl = _find(res, f"{stage_name}.RL")
+    rl = _find(circuit, own, Role.PLATE_LOAD)
     if rl is not None and not _between(rl, plate, st.rail):
         raise _misplaced(stage_name, rl, f"between {plate} and its rail {st.rail}")
-    rk = _find(res, f"{stage_name}.Rk")
+    rk = _find(circuit, own, Role.CATHODE_RESISTOR)
     if rk is not None and not _between(rk, cathode, _GROUND):
         raise _misplaced(stage_name, rk, f"between {cathode} and {_GROUND}")
-    rkc = _find(res, f"{stage_name}.Rkc")
-    ck = _find(caps, f"{stage_name}.Ck")
+    rkc = _find(circuit, own, Role.BYPASS_SERIES)
+    ck = _find(circuit, own, Role.BYPASS)
     if rkc is not None:
         kb = rkc.b if rkc.a == cathode else rkc.a
         if cathode not in (rkc.a, rkc.b) or kb == _GROUND:
@@ -200,8 +199,8 @@ def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
     elif ck is not None and not _between(ck, cathode, _GROUND):
         raise _misplaced(stage_name, ck, f"between {cathode} and {_GROUND}")
 
-    rs = _find(res, f"{stage_name}.Rs")
-    rg = _find(res, f"{stage_name}.Rg")
+    rs = _find(circuit, own, Role.GRID_STOPPER)
+    rg = _find(circuit, own, Role.GRID_LEAK)
     # the grid-leak top: the stage input, or for a common-grid stage the far
     # end of the stopper (or the grid itself)
     if st.kind == "common-grid":
@@ -218,7 +217,7 @@ def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
             "is no grid stopper between them", subject=stage_name))
 
     if rload_ohm is None:
-        load = _find(res, "output.load")
+        load = _find(circuit, Owner("output", "output"), Role.LOAD)
         if load is not None and _between(load, st.output, _GROUND):
             rload_ohm = load.ohms
 

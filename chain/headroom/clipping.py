@@ -35,7 +35,7 @@ from typing import Callable, Iterable
 
 import numpy as np
 
-from chain.circuit import Circuit, StageNodes
+from chain.circuit import Circuit, StageRecord
 from chain.dc import DcSolution, SolveOptions
 from chain.errors import DcConvergenceError
 from chain.headroom.curves import DEFAULT_CUTOFF_FRACTION, TransferCurves, build_network, sweep
@@ -295,7 +295,7 @@ def _refine(net: MidBandNetwork, quantity: Callable[[np.ndarray], float], v_a: f
         return float(v), guess(v)
 
 
-def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageNodes, polarity: str, mechanism: str,
+def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, polarity: str, mechanism: str,
            ) -> tuple[Onset | None, int]:
     """The onset of one mechanism on one side, and the last sweep index before it."""
     t = net.triode_index(stage.triode)
@@ -338,7 +338,7 @@ def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageNodes, polar
     return Onset(mechanism, abs(v), float(volts[0]), float(volts[1])), k - 1
 
 
-def _thd_thresholds(curves: TransferCurves, stage: StageNodes, levels: np.ndarray, thd_levels, *,
+def _thd_thresholds(curves: TransferCurves, stage: StageRecord, levels: np.ndarray, thd_levels, *,
                     half: str | None) -> tuple[float | None, ...]:
     if levels.size == 0:
         return tuple(None for _ in thd_levels)
@@ -346,7 +346,7 @@ def _thd_thresholds(curves: TransferCurves, stage: StageNodes, levels: np.ndarra
     return tuple(level_for_thd(levels, values, target) for target in thd_levels)
 
 
-def _half_wave(net: MidBandNetwork, curves: TransferCurves, stage: StageNodes, polarity: str,
+def _half_wave(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, polarity: str,
                thd_levels) -> tuple[HalfWaveLimit, float, float]:
     """One half-wave's limits, and the output excursion (max, min) up to its limit."""
     grid, k_grid = _onset(net, curves, stage, polarity, GRID_CONDUCTION)
@@ -366,7 +366,7 @@ def _half_wave(net: MidBandNetwork, curves: TransferCurves, stage: StageNodes, p
     return limit, float(max(reach.max(), 0.0)), float(min(reach.min(), 0.0))
 
 
-def _stage_headroom(net: MidBandNetwork, curves: TransferCurves, stage: StageNodes, level_v: float,
+def _stage_headroom(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, level_v: float,
                     thd_levels) -> StageHeadroom:
     pos, hi_p, lo_p = _half_wave(net, curves, stage, "positive", thd_levels)
     neg, hi_n, lo_n = _half_wave(net, curves, stage, "negative", thd_levels)

@@ -20,7 +20,7 @@ from typing import Iterable, Mapping
 
 import numpy as np
 
-from chain.circuit import Circuit, StageNodes
+from chain.circuit import Circuit, StageRecord
 from chain.dc import DcSolution, SolveOptions
 from chain.errors import DcConvergenceError
 from chain.headroom.network import CapacitorTreatment, MidBandNetwork, mid_band_capacitors
@@ -55,7 +55,7 @@ class TransferCurves:
         current (A) per point.
     quiescent_ip_a : Mapping[str, float]
         Per triode, the plate current at zero input, A.
-    stages : tuple[StageNodes, ...]
+    stages : tuple[StageRecord, ...]
         The stages, in signal order.
     input_node, output_node : str
         Chain input (after the source impedance) and output node.
@@ -80,7 +80,7 @@ class TransferCurves:
     ip_a: Mapping[str, np.ndarray]
     ig_a: Mapping[str, np.ndarray]
     quiescent_ip_a: Mapping[str, float]
-    stages: tuple[StageNodes, ...]
+    stages: tuple[StageRecord, ...]
     input_node: str
     output_node: str
     treatment: CapacitorTreatment
@@ -91,7 +91,7 @@ class TransferCurves:
     elapsed_s: float
     states: np.ndarray = field(repr=False)
 
-    def stage(self, name: str) -> StageNodes:
+    def stage(self, name: str) -> StageRecord:
         for s in self.stages:
             if s.name == name:
                 return s

@@ -46,7 +46,7 @@ from typing import Iterable, Mapping
 
 import numpy as np
 
-from chain.circuit import Circuit, StageNodes
+from chain.circuit import Circuit, StageRecord
 from chain.dc import DcSolution, SolveOptions
 from chain.headroom.curves import TransferCurves, build_network, watched_nodes
 from chain.headroom.harmonics import HIGHEST_HARMONIC, harmonic_amplitudes, relative_db, sine_phases, thd
@@ -205,7 +205,7 @@ def _spectrum(node: str, wave: np.ndarray) -> Spectrum:
     return Spectrum(node=node, amplitudes_v=tuple(float(v) for v in h), mean_shift_v=float(np.mean(wave)))
 
 
-def _slopes(net: MidBandNetwork, stages: tuple[StageNodes, ...], delta_v: float) -> list[float]:
+def _slopes(net: MidBandNetwork, stages: tuple[StageRecord, ...], delta_v: float) -> list[float]:
     """Small-signal gain dy/dx of each stage from two solves at ±delta_v (central difference)."""
     if not stages:
         return []

@@ -41,7 +41,7 @@ from typing import Iterable, Mapping
 
 import numpy as np
 
-from chain.circuit import GROUND, Circuit, Resistor
+from chain.circuit import GROUND, Circuit, Resistor, Role
 from chain.dc import DcSolution, SolveOptions, compile_network
 from chain.errors import DcConvergenceError
 
@@ -200,11 +200,11 @@ def mid_band_circuit(circuit: Circuit, treatment: CapacitorTreatment,
         node = f"{c.name}.Xc"
         if abs(volts.get(c.a, 0.0)) >= abs(volts.get(c.b, 0.0)):
             # a —C— node —R— b
-            resistors.append(Resistor(f"{c.name}.Xc", node, c.b, ohms))
+            resistors.append(Resistor(f"{c.name}.Xc", node, c.b, ohms, c.owner, Role.REACTANCE))
             capacitors.append(replace(c, b=node))
         else:
             # a —R— node —C— b
-            resistors.append(Resistor(f"{c.name}.Xc", c.a, node, ohms))
+            resistors.append(Resistor(f"{c.name}.Xc", c.a, node, ohms, c.owner, Role.REACTANCE))
             capacitors.append(replace(c, a=node))
     return replace(circuit, resistors=tuple(resistors), capacitors=tuple(capacitors))
 
@@ -258,7 +258,7 @@ class MidBandNetwork:
         self.quiescent_ip_a = self.triodes(self.x0[None, :])[1][0]
 
     def _col(self, node: str) -> int:
-        return len(self.system.nodes) if node == GROUND else self._index[node]
+        return -1 if node == GROUND else self._index[node]
 
     # ------------------------------------------------------------ solving
     def solve(self, signal_v: float, guess: np.ndarray | None) -> np.ndarray:
@@ -338,8 +338,7 @@ class MidBandNetwork:
         from chain.tubes import plate_current
 
         cols = self._pins[index]
-        n = len(self.system.nodes)
-        vp, vg, vk = (0.0 if c == n else float(x[c]) for c in cols)
+        vp, vg, vk = (0.0 if c < 0 else float(x[c]) for c in cols)
         return vg - vk, float(plate_current(self._models[index], vp - vk, vg - vk))
 
     def triode_index(self, name: str) -> int:

@@ -89,36 +89,10 @@ def _deg(value: complex) -> float | None:
 # --------------------------------------------------------------------------- parts
 
 
-def part_owner(name: str, stages: tuple[str, ...], networks: tuple[str, ...]) -> dict[str, str]:
-    """What a circuit part belongs to, from its name (the names :mod:`chain.build` gives).
-
-    Returns ``{"kind": k, "name": n}`` with ``k`` one of :data:`OWNER_KINDS`:
-    a stage's parts ``V1.RL`` and its triode ``V1`` → stage ``V1``; network
-    parts ``volume.block`` → network ``volume``; ``supply.HT(.R)`` → supply
-    ``HT``; ``rail.B1.R`` → rail ``B1``; ``couple.V1-V2.C`` → coupling
-    ``V1->V2``; ``input``/``input.*`` → input; ``output.load`` → output;
-    ``stray.<node>`` → stray ``<node>``.
-    """
-    head, _, rest = name.partition(".")
-    if head in stages:
-        return {"kind": "stage", "name": head}
-    if head in networks:
-        return {"kind": "network", "name": head}
-    if head in ("supply", "rail") and rest:
-        return {"kind": head, "name": rest.split(".")[0]}
-    if head == "couple" and rest:
-        return {"kind": "coupling", "name": rest.rsplit(".", 1)[0].replace("-", "->", 1)}
-    if head in ("input", "output"):
-        return {"kind": head, "name": head}
-    if head == "stray" and rest:
-        return {"kind": "stray", "name": rest}
-    return {"kind": "other", "name": head}
-
-
-def _network_instances(design) -> tuple[str, ...]:
-    names = [c.label for c in design.couplings if c.kind == "network"]
-    names += [n.name for n in design.networks if not n.ports]
-    return tuple(names)
+def part_owner(part) -> dict[str, str]:
+    """What a circuit element belongs to: ``{"kind": k, "name": n}``, from
+    its :class:`~chain.circuit.Owner` (``k`` one of :data:`OWNER_KINDS`)."""
+    return {"kind": part.owner.kind, "name": part.owner.name}
 
 
 def _part(name, kind, owner, nodes, value, unit, rated_v=None, tube=None) -> dict[str, Any]:
@@ -144,24 +118,18 @@ def _tube(triode) -> dict[str, Any]:
 
 def _parts(analysis) -> list[dict[str, Any]]:
     c = analysis.circuit
-    stages = tuple(s.name for s in c.stages) + tuple(t.name for t in c.triodes)
-    nets = _network_instances(analysis.design)
-
-    def owner(name: str) -> dict[str, str]:
-        return part_owner(name, stages, nets)
-
     out = []
     for p in c.resistors:
-        out.append(_part(p.name, "resistor", owner(p.name), (p.a, p.b), p.ohms, "ohm"))
+        out.append(_part(p.name, "resistor", part_owner(p), (p.a, p.b), p.ohms, "ohm"))
     for p in c.capacitors:
-        out.append(_part(p.name, "capacitor", owner(p.name), (p.a, p.b), p.farads, "F", p.rated_v))
+        out.append(_part(p.name, "capacitor", part_owner(p), (p.a, p.b), p.farads, "F", p.rated_v))
     for p in c.inductors:
-        out.append(_part(p.name, "inductor", owner(p.name), (p.a, p.b), p.henries, "H"))
+        out.append(_part(p.name, "inductor", part_owner(p), (p.a, p.b), p.henries, "H"))
     for p in c.sources:
         kind = "supply" if p.role == "supply" else "signal"
-        out.append(_part(p.name, kind, owner(p.name), (p.pos, p.neg), p.volts, "V"))
+        out.append(_part(p.name, kind, part_owner(p), (p.pos, p.neg), p.volts, "V"))
     for t in c.triodes:
-        out.append(_part(t.name, "triode", owner(t.name), (t.plate, t.grid, t.cathode), None, None,
+        out.append(_part(t.name, "triode", part_owner(t), (t.plate, t.grid, t.cathode), None, None,
                          tube=_tube(t)))
     return out
 
@@ -187,7 +155,7 @@ def _solve_options(options) -> dict[str, Any]:
 
 
 def _operating_points(analysis) -> list[dict[str, Any]]:
-    by_triode = {s.triode: s.name for s in analysis.circuit.stages}
+    by_triode = {t: s.name for s in analysis.circuit.stages for t in s.triodes}
     out = []
     for t in analysis.circuit.triodes:
         p = analysis.dc.points[t.name]

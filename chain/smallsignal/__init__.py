@@ -12,23 +12,20 @@ Frequencies are in Hz everywhere; impedances in ohm (complex).
 from chain.smallsignal.corners import corners, response_corners
 from chain.smallsignal.model import (
     SmallSignalCircuit,
-    Transconductance,
     TriodeSmallSignal,
     linearize,
 )
-from chain.smallsignal.response import Response, gain_at, response, stage_owns, transfer_function
+from chain.smallsignal.response import Response, gain_at, response, transfer_function
 from chain.smallsignal.table import CouplingRow, OverallResult, StageRow, coupling_table, db, overall, stage_table
 
 __all__ = [
     "SmallSignalCircuit",
-    "Transconductance",
     "TriodeSmallSignal",
     "linearize",
     "Response",
     "response",
     "transfer_function",
     "gain_at",
-    "stage_owns",
     "corners",
     "response_corners",
     "StageRow",

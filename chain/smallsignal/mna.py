@@ -35,7 +35,7 @@ from typing import Iterable
 
 import numpy as np
 
-from chain.circuit import GROUND
+from chain.circuit import GROUND, NO_OWNER, Owner, Role
 from chain.errors import AnalysisError, error
 from chain.smallsignal.model import SmallSignalCircuit
 
@@ -83,6 +83,9 @@ class Stamp:
     branch: int = -1
     cp: int = -1
     cn: int = -1
+    #: the element's owner and role in the circuit (see :mod:`chain.circuit`)
+    owner: Owner = NO_OWNER
+    role: Role = Role.OTHER
 
     def touches(self, i: int) -> bool:
         """True when current of this element enters or leaves node ``i``."""
@@ -128,26 +131,61 @@ class Mna:
         return Mna(self.nodes, self.index, g, c, kept, self.source)
 
 
+class _AcStamper:
+    """Turns the elements' ``stamp`` calls into index-form :class:`Stamp` s.
+
+    Conductances go to ``G``, capacitances to ``C``, each inductance gets a
+    branch current (numbered after the nodes, in stamping order) with ``−L``
+    on its diagonal in ``C``, the signal source the last branch.
+    """
+
+    def __init__(self, index: dict, n_nodes: int):
+        self.index = index
+        self.n = n_nodes
+        self.stamps: list[Stamp] = []
+        self.inductors = 0
+        self.source: tuple | None = None
+
+    def conductance(self, part, a, b, g_s):
+        self.stamps.append(Stamp(part.name, "R", self.index[a], self.index[b], g_s,
+                                 owner=part.owner, role=part.role))
+
+    def capacitance(self, part, a, b, c_f):
+        self.stamps.append(Stamp(part.name, "C", self.index[a], self.index[b], c_f,
+                                 owner=part.owner, role=part.role))
+
+    def inductance(self, part, a, b, l_h):
+        self.stamps.append(Stamp(part.name, "L", self.index[a], self.index[b], l_h,
+                                 branch=self.n + self.inductors, owner=part.owner, role=part.role))
+        self.inductors += 1
+
+    def transconductance(self, part, a, b, ctrl_pos, ctrl_neg, gm_s):
+        self.stamps.append(Stamp(part.name, "G", self.index[a], self.index[b], gm_s,
+                                 cp=self.index[ctrl_pos], cn=self.index[ctrl_neg],
+                                 owner=part.owner, role=part.role))
+
+    def voltage_source(self, part, pos, neg):
+        if self.source is not None:
+            raise ValueError("the small-signal network has one signal source")
+        self.source = (part, pos, neg)
+
+    def triode(self, part):
+        raise TypeError(f"triode {part.name} must be linearised before the small-signal solve")
+
+
 def assemble(ss: SmallSignalCircuit) -> Mna:
-    """Build ``G`` and ``C`` (see the module docstring) for ``ss``."""
+    """Build ``G`` and ``C`` (see the module docstring) for ``ss``: every
+    element of ``ss`` stamps itself (:meth:`chain.circuit.Resistor.stamp` …)."""
     nodes = ss.nodes
     index = {n: i for i, n in enumerate(nodes)}
     index[GROUND] = -1
-    n = len(nodes)
-    stamps: list[Stamp] = []
-    for r in ss.resistors:
-        stamps.append(Stamp(r.name, "R", index[r.a], index[r.b], 1.0 / r.ohms))
-    for cap in ss.capacitors:
-        stamps.append(Stamp(cap.name, "C", index[cap.a], index[cap.b], cap.farads))
-    for k, ind in enumerate(ss.inductors):
-        stamps.append(Stamp(ind.name, "L", index[ind.a], index[ind.b], ind.henries, branch=n + k))
-    for t in ss.transconductances:
-        stamps.append(Stamp(t.name, "G", index[t.a], index[t.b], t.gm_s,
-                            cp=index[t.ctrl_pos], cn=index[t.ctrl_neg]))
-    size = n + len(ss.inductors) + 1
-    src = Stamp(ss.source.name, "V", index[ss.source.pos], index[ss.source.neg], 1.0,
-                branch=size - 1)
-    stamps.append(src)
+    st = _AcStamper(index, len(nodes))
+    for el in ss.elements:
+        el.stamp(st)
+    size = len(nodes) + st.inductors + 1
+    part, pos, neg = st.source
+    src = Stamp(part.name, "V", index[pos], index[neg], 1.0, branch=size - 1, owner=part.owner, role=part.role)
+    stamps = st.stamps + [src]
     g, c = _matrices(size, stamps)
     return Mna(nodes, index, g, c, tuple(stamps), src)
 

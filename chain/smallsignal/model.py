@@ -39,36 +39,28 @@ no special treatment.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Mapping
 
-from chain.circuit import GROUND, Capacitor, Circuit, Inductor, Resistor, VoltageSource
+from chain.circuit import (
+    GROUND,
+    Capacitor,
+    Circuit,
+    Element,
+    Inductor,
+    Resistor,
+    Role,
+    Transconductance,
+    VoltageSource,
+)
 from chain.dc.result import DcSolution
 from chain.errors import AnalysisError, error
 
 __all__ = [
-    "Transconductance",
     "TriodeSmallSignal",
     "SmallSignalCircuit",
     "linearize",
 ]
-
-
-@dataclass(frozen=True, slots=True)
-class Transconductance:
-    """Voltage-controlled current source.
-
-    A current ``gm_s · (v(ctrl_pos) − v(ctrl_neg))`` (A) flows into the
-    element at node ``a`` and leaves it at node ``b`` (for a triode: into the
-    plate, out of the cathode, controlled by grid minus cathode).
-    """
-
-    name: str
-    a: str
-    b: str
-    ctrl_pos: str
-    ctrl_neg: str
-    gm_s: float
 
 
 @dataclass(frozen=True, slots=True)
@@ -118,6 +110,12 @@ class SmallSignalCircuit:
     triodes: tuple[TriodeSmallSignal, ...]
     #: names of the parts replaced by shorts (supplies, zero-ohm parts)
     shorted: tuple[str, ...] = ()
+
+    @property
+    def elements(self) -> tuple[Element, ...]:
+        """Every linear element in stamping order: resistors, capacitors,
+        inductors, transconductances, then the signal source."""
+        return (*self.resistors, *self.capacitors, *self.inductors, *self.transconductances, self.source)
 
     @property
     def input_node(self) -> str:
@@ -172,35 +170,27 @@ def linearize(circuit: Circuit, dc: DcSolution) -> SmallSignalCircuit:
     for r in circuit.resistors:
         if r.ohms == 0.0 or math.isinf(r.ohms) or m(r.a) == m(r.b):
             continue
-        resistors.append(Resistor(r.name, m(r.a), m(r.b), r.ohms))
+        resistors.append(replace(r, a=m(r.a), b=m(r.b)))
     capacitors: list[Capacitor] = []
     for c in circuit.capacitors:
         if c.farads == 0.0 or m(c.a) == m(c.b):
             continue
-        capacitors.append(Capacitor(c.name, m(c.a), m(c.b), c.farads, c.rated_v))
+        capacitors.append(replace(c, a=m(c.a), b=m(c.b)))
     inductors: list[Inductor] = []
     for ind in circuit.inductors:
         if ind.henries == 0.0 or m(ind.a) == m(ind.b):
             continue
-        inductors.append(Inductor(ind.name, m(ind.a), m(ind.b), ind.henries))
+        inductors.append(replace(ind, a=m(ind.a), b=m(ind.b)))
 
     triodes: list[TriodeSmallSignal] = []
     gms: list[Transconductance] = []
     for t in circuit.triodes:
         ts = _triode_small_signal(t, dc, m)
         triodes.append(ts)
-        if math.isfinite(ts.rp_ohm) and ts.plate != ts.cathode:
-            resistors.append(Resistor(f"{t.name}.rp", ts.plate, ts.cathode, ts.rp_ohm))
-        if ts.gm_s != 0.0 and ts.plate != ts.cathode and ts.grid != ts.cathode:
-            gms.append(Transconductance(f"{t.name}.gm", ts.plate, ts.cathode,
-                                        ts.grid, ts.cathode, ts.gm_s))
-        for label, a, b, f in (("Cgk", ts.grid, ts.cathode, ts.cgk_f),
-                               ("Cgp", ts.grid, ts.plate, ts.cgp_f),
-                               ("Cpk", ts.plate, ts.cathode, ts.cpk_f)):
-            if f > 0.0 and a != b:
-                capacitors.append(Capacitor(f"{t.name}.{label}", a, b, f))
+        for el in t.small_signal_elements(gm_s=ts.gm_s, rp_ohm=ts.rp_ohm, node=m):
+            {Resistor: resistors, Capacitor: capacitors, Transconductance: gms}[type(el)].append(el)
 
-    source = VoltageSource(signal.name, m(signal.pos), m(signal.neg), 1.0, "signal")
+    source = replace(signal, pos=m(signal.pos), neg=m(signal.neg), volts=1.0)
     if source.pos == source.neg:
         raise AnalysisError(error(
             "E501", f"signal source {signal.name!r} is shorted by a supply or a zero-ohm part",

@@ -8,27 +8,26 @@ Definitions (every quantity per volt of signal-source EMF, frequency in Hz):
 ``zin_ohm``
     The impedance the source network sees at ``circuit.input_node``:
     ``v(input) / i`` where ``i`` is the current flowing into the input node
-    from the source side — the signal source itself and the parts named
-    ``"input.*"`` — taken from the full solution.  Because the rest of the
+    from the source side — the signal source itself and the parts the
+    source owns (owner kind ``"input"``) — taken from the full solution.  Because the rest of the
     network holds no independent source this is exactly the load impedance
     (the pickup's load).
 ``zout_ohm``
     The driving-point impedance at ``circuit.output_node`` with the source
-    EMF zeroed (the source is a short, its own ``"input.*"`` impedance
-    stays) and the output load removed (the part named ``"output.load"``, or
-    the parts named ``"output.load.*"`` when the load has several).
+    EMF zeroed (the source is a short, its own impedance stays) and the
+    output load removed (every element with role :attr:`Role.LOAD`).
 ``stage_zin_ohm[stage]``
     ``v(stage.input) / i`` with everything connected, ``i`` being the
     current flowing into the stage input node through the parts that are
-    *not* the stage's own (own parts: names ``"<stage>.*"`` and the stage
-    triode's ``"<triode>.*"`` — its ``rp``, ``gm``, ``Cgk``, ``Cgp``,
-    ``Cpk``).  It therefore includes the stage's grid leak, grid stopper,
+    *not* the stage's own (own parts: owned by the stage — its load,
+    cathode and grid parts, its triodes and their ``rp``, ``gm``, ``Cgk``,
+    ``Cgp``, ``Cpk``).  It therefore includes the stage's grid leak, grid stopper,
     the Miller-multiplied ``Cgp`` and, for a common-grid stage, the cathode
     resistor, and it sees the real load of the stage.
 ``stage_zout_ohm[stage]``
     The driving-point impedance at ``stage.output`` with the source EMF
     zeroed and every part touching the output node removed unless it is the
-    stage's own or a rail part (``"rail.*"``): coupling capacitors, the next
+    stage's own or a rail's (owner kind ``"rail"``): coupling capacitors, the next
     stage's grid leak or interelectrode capacitances, the output load.  A
     part of another triode touching the node (its ``rp``, its ``gm`` current)
     is removed with it.  What remains upstream (the earlier stages, the
@@ -43,7 +42,7 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 from numpy.typing import ArrayLike
 
-from chain.circuit import GROUND
+from chain.circuit import GROUND, Owner, Role
 from chain.errors import AnalysisError, error
 from chain.smallsignal.mna import Mna, Stamp, assemble, current_into, solve, solve_entry
 from chain.smallsignal.model import SmallSignalCircuit
@@ -53,7 +52,6 @@ __all__ = [
     "response",
     "transfer_function",
     "gain_at",
-    "stage_owns",
 ]
 
 
@@ -143,46 +141,30 @@ def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto",
     h = {name: _frozen(zero if rep == GROUND else x[:, mna.index[rep]])
          for name, rep in ss.node_of.items()}
 
-    source_side = [st for st in mna.stamps if st.kind == "V" or st.name.startswith("input.")]
+    source_side = [st for st in mna.stamps if st.kind == "V" or st.owner.kind == "input"]
     zin = _loaded_impedance(mna, ss.node_of[circuit.input_node], source_side, x, s)
     stage_zin = {}
     for st in circuit.stages if stage_impedances else ():
-        own = stage_owns(st.name, st.triode)
-        feeders = [e for e in mna.stamps if not own(e.name)]
+        me = Owner("stage", st.name)
+        feeders = [e for e in mna.stamps if e.owner != me]
         stage_zin[st.name] = _frozen(_loaded_impedance(mna, ss.node_of[st.input], feeders, x, s))
 
     zout = None
     stage_zout = {}
     if output_impedances:
-        load = [st for st in mna.stamps
-                if st.kind != "V" and (st.name == "output.load" or st.name.startswith("output.load."))]
+        load = [st for st in mna.stamps if st.kind != "V" and st.role == Role.LOAD]
         zout = _frozen(_port_impedance(mna, mna.index[ss.node_of[circuit.output_node]], load, s,
                                        method))
         for st in circuit.stages if stage_impedances else ():
-            own = stage_owns(st.name, st.triode)
+            me = Owner("stage", st.name)
             node = mna.index[ss.node_of[st.output]]
             removed = [e for e in mna.stamps
-                       if e.kind != "V" and not own(e.name) and not e.name.startswith("rail.")
-                       and e.touches(node)]
+                       if e.kind != "V" and e.owner != me and e.owner.kind != "rail" and e.touches(node)]
             stage_zout[st.name] = _frozen(_port_impedance(mna, node, removed, s, method))
     return Response(
         f_hz=_frozen(f), h=h, zin_ohm=_frozen(zin), zout_ohm=zout,
         stage_zin_ohm=stage_zin, stage_zout_ohm=stage_zout, ss=ss, method=used,
     )
-
-
-def stage_owns(stage: str, triode: str) -> Callable[[str], bool]:
-    """Predicate: is a part of this name one of the stage's own parts?
-
-    Own parts are named ``"<stage>.*"`` or ``"<triode>.*"`` (the triode's
-    small-signal elements), or are the triode itself.
-    """
-    prefixes = (stage + ".", triode + ".")
-
-    def own(name: str) -> bool:
-        return name == triode or name.startswith(prefixes)
-
-    return own
 
 
 def transfer_function(ss: SmallSignalCircuit, node: str) -> Callable[[ArrayLike], np.ndarray]:

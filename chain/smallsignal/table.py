@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from chain.circuit import Circuit, StageNodes
+from chain.circuit import Circuit, StageRecord
 from chain.dc.result import DcSolution
 from chain.smallsignal.corners import response_corners
 from chain.smallsignal.response import Response, response
@@ -162,7 +162,7 @@ def overall(resp: Response, f_ref_hz: float) -> OverallResult:
     )
 
 
-def _row(circuit: Circuit, dc: DcSolution, at: Response, st: StageNodes,
+def _row(circuit: Circuit, dc: DcSolution, at: Response, st: StageRecord,
          level_v: float) -> StageRow:
     op = dc.points[st.triode]
     h_in = complex(at.h[st.input][0])
@@ -182,7 +182,7 @@ def _row(circuit: Circuit, dc: DcSolution, at: Response, st: StageNodes,
     )
 
 
-def _feeding_coupling(circuit: Circuit, at: Response, st: StageNodes):
+def _feeding_coupling(circuit: Circuit, at: Response, st: StageRecord):
     node_of = at.ss.node_of
     for name, (frm, to) in circuit.couplings.items():
         if to == st.input or node_of.get(to) == node_of[st.input]:

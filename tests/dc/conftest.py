@@ -14,7 +14,8 @@ from types import SimpleNamespace
 
 import pytest
 
-from chain.circuit import GROUND, Capacitor, Circuit, Inductor, Resistor, StageNodes, Triode, VoltageSource
+from owner_kit import with_owners
+from chain.circuit import GROUND, Capacitor, Circuit, Inductor, Resistor, StageRecord, Triode, VoltageSource
 from chain.tubes import grid_current, lookup, plate_current
 
 
@@ -75,7 +76,7 @@ def common_cathode(parts: Parts, name: str, *, rail_node: str, rl: float, rk: fl
     if drive is not None:
         parts.capacitors.append(Capacitor(f"{name}.Cc", drive, top, cc, cc_rated_v))
     parts.triodes.append(Triode(name, plate, grid, cathode, lookup(tube), heater_v))
-    parts.stages.append(StageNodes(name, "common-cathode", tube, top, plate, name, rail_node))
+    parts.stages.append(StageRecord(name, "common-cathode", tube, (name,), {"in": top}, {"out": plate}, rail_node))
     return plate
 
 
@@ -86,7 +87,7 @@ def cathode_follower(parts: Parts, name: str, *, rail_node: str, rk: float, grid
     parts.resistors.append(Resistor(f"{name}.Rs", grid_from, grid, rs))
     parts.resistors.append(Resistor(f"{name}.Rk", cathode, GROUND, rk))
     parts.triodes.append(Triode(name, rail_node, grid, cathode, lookup(tube), heater_v))
-    parts.stages.append(StageNodes(name, "cathode-follower", tube, grid_from, cathode, name, rail_node))
+    parts.stages.append(StageRecord(name, "cathode-follower", tube, (name,), {"in": grid_from}, {"out": cathode}, rail_node))
     return cathode
 
 
@@ -94,10 +95,10 @@ def make_circuit(parts: Parts, *, input_node: str = "in", output_node: str | Non
                  title: str = "test") -> Circuit:
     if output_node is None:
         output_node = parts.stages[-1].output if parts.stages else input_node
-    return Circuit(title=title, resistors=tuple(parts.resistors), capacitors=tuple(parts.capacitors),
+    return with_owners(Circuit(title=title, resistors=tuple(parts.resistors), capacitors=tuple(parts.capacitors),
                    inductors=tuple(parts.inductors), sources=tuple(parts.sources), triodes=tuple(parts.triodes),
                    stages=tuple(parts.stages), input_node=input_node, output_node=output_node,
-                   rails=tuple(parts.rails))
+                   rails=tuple(parts.rails)))
 
 
 def single_stage(*, rail_v: float = 300.0, rl: float = 100e3, rk: float = 1.5e3, rg: float = 1e6,

@@ -9,7 +9,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from chain.circuit import GROUND, Capacitor, Circuit, Resistor, StageNodes, Triode, VoltageSource
+from chain.circuit import GROUND, Capacitor, Circuit, Resistor, StageRecord, Triode, VoltageSource
 from chain.dc import load_line, plate_family, solve, stage_lines
 from chain.tubes import lookup
 
@@ -25,7 +25,7 @@ def stage():
         inductors=(),
         sources=(VoltageSource("supply.HT", "HT", GROUND, 300.0),),
         triodes=(Triode("V1", "V1.plate", "V1.grid", "V1.cathode", model),),
-        stages=(StageNodes("V1", "common-cathode", "12AX7", "V1.grid", "V1.plate", "V1", "HT"),),
+        stages=(StageRecord("V1", "common-cathode", "12AX7", ("V1",), {"in": "V1.grid"}, {"out": "V1.plate"}, "HT"),),
         input_node="V1.grid", output_node="V1.plate", rails=("HT",))
     sol = solve(circuit)
     family = plate_family(model, [0.0, -0.5, -1.0, -1.5, -2.0, -3.0], 320.0, n=120)

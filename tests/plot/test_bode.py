@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from chain.circuit import GROUND, Capacitor, Circuit, Resistor, StageNodes, Triode, VoltageSource
+from chain.circuit import GROUND, Capacitor, Circuit, Resistor, StageRecord, Triode, VoltageSource
 from chain.dc.result import DcSolution, OperatingPoint
 from chain.plot.bode import bode
 from chain.plot.files import save_figure as save
@@ -30,7 +30,7 @@ def resp():
         sources=(VoltageSource("supply.HT", "HT", GROUND, 300.0, "supply"),
                  VoltageSource("sig", "src", GROUND, 0.0, "signal")),
         triodes=(Triode("V1", "V1.plate", "V1.grid", "V1.cathode", tube),),
-        stages=(StageNodes("V1", "common-cathode", "12AX7", "V1.in", "V1.plate", "V1", "HT"),),
+        stages=(StageRecord("V1", "common-cathode", "12AX7", ("V1",), {"in": "V1.in"}, {"out": "V1.plate"}, "HT"),),
         input_node="V1.in", output_node="output", rails=("HT",),
         couplings={"V1->output": ("V1.plate", "output")},
     )

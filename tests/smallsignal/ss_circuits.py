@@ -9,7 +9,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
 
-from chain.circuit import GROUND, Capacitor, Circuit, Inductor, Resistor, StageNodes, Triode, VoltageSource
+from owner_kit import with_owners
+from chain.circuit import GROUND, Capacitor, Circuit, Inductor, Resistor, StageRecord, Triode, VoltageSource
 from chain.dc.result import DcSolution, OperatingPoint
 from chain.tubes import lookup
 
@@ -68,14 +69,14 @@ class Net:
         self.triodes.append(Triode(name, plate, grid, cathode, tube_model))
 
     def stage(self, name, kind, inp, out, rail):
-        self.stages.append(StageNodes(name, kind, "12AX7", inp, out, name, rail))
+        self.stages.append(StageRecord(name, kind, "12AX7", (name,), {"in": inp}, {"out": out}, rail))
 
     def circuit(self, input_node, output_node, title="test") -> Circuit:
-        return Circuit(title=title, resistors=tuple(self.resistors), capacitors=tuple(self.capacitors),
+        return with_owners(Circuit(title=title, resistors=tuple(self.resistors), capacitors=tuple(self.capacitors),
                        inductors=tuple(self.inductors), sources=tuple(self.sources),
                        triodes=tuple(self.triodes), stages=tuple(self.stages),
                        input_node=input_node, output_node=output_node, rails=tuple(self.rails),
-                       couplings=dict(self.couplings))
+                       couplings=dict(self.couplings)))
 
 
 def common_cathode(net: Net, name: str, *, rail: str, rl: float, rk: float, ck: float | None,
