@@ -24,7 +24,7 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
 
 from chain import SAFETY, __version__  # noqa: E402
 from chain.errors import ChainError, Diagnostic  # noqa: E402
-from chain.fileio import write_atomically  # noqa: E402
+from chain.fileio import OutputPathError, check_output, write_atomically  # noqa: E402
 
 __all__ = ["main", "run"]
 
@@ -68,7 +68,8 @@ def _parser() -> argparse.ArgumentParser:
                                    "dissipation, gm, rp and mu per stage, the rails and the diagnostics.")
     b.add_argument("file", metavar="FILE")
     b.add_argument("--plot", metavar="PATH", help="draw each stage's plate characteristics with its load line "
-                   "and operating point; PATH ends in .png or .svg (one file per stage: PATH with -STAGE added)")
+                   "and operating point; PATH ends in .png or .svg (several stages: one file per stage, "
+                   "PATH with -STAGE added)")
 
     r = sub.add_parser("report", help="the full analysis: stage table, response, corners, headroom",
                        description="Analyse the netlist and print the report.")
@@ -138,7 +139,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             raise
         _print_diagnostics(exc.diagnostics)
         return 2
-    except UsageError as exc:
+    except (UsageError, OutputPathError) as exc:
         if args.traceback:
             raise
         print(f"chain: error: {exc}", file=sys.stderr)
@@ -169,18 +170,36 @@ def _print_diagnostics(diagnostics: Sequence[Diagnostic]) -> None:
         print(f"{len(errors)} errors", file=sys.stderr)
 
 
-def _writable(path: str) -> str:
-    """``path``, if its folder exists (a usage error otherwise)."""
-    folder = Path(path).parent
-    if not folder.exists():
-        raise UsageError(f"cannot write {path}: folder {folder} does not exist")
+def _inputs(args) -> list[str]:
+    """The files a command reads (never to be overwritten by its output)."""
+    found = [getattr(args, "file", None), getattr(args, "a", None), getattr(args, "b", None)]
+    return [f for f in found + list(getattr(args, "files", None) or []) if f]
+
+
+def _writable(path: str, args=None) -> str:
+    """``path``, if it can be written and is not an input (a usage error otherwise).
+
+    Called for every output before the analysis runs, so that a bad path
+    costs no waiting and leaves nothing half-done.
+    """
+    check_output(path, inputs=_inputs(args) if args is not None else ())
     return path
 
 
-def _figure_path(path: str) -> str:
+def _figure_path(path: str, args=None) -> str:
     if Path(path).suffix.lower() not in (".png", ".svg"):
         raise UsageError(f"plot file must end in .png or .svg, not '{path}'")
-    return path
+    return _writable(path, args)
+
+
+def _figure_names(path: str, names: Sequence[str]) -> list[str]:
+    """Where the figures of one ``--plot PATH`` go: one figure is written to
+    PATH exactly; several are written to PATH with ``-NAME`` added before the
+    suffix, one per name (README, "Output files")."""
+    if len(names) == 1:
+        return [path]
+    target = Path(path)
+    return [str(target.with_name(f"{target.stem}-{name}{target.suffix}")) for name in names]
 
 
 # --------------------------------------------------------------------------- commands
@@ -209,8 +228,11 @@ def _cmd_bias(args) -> int:
     from chain.dc import solve
     from chain.report.summary import bias_table
 
+    plot_path = _figure_path(args.plot, args) if args.plot else None
     design, circuit, warnings = load(args.file)
-    plot_path = _figure_path(args.plot) if args.plot else None
+    if plot_path:
+        for name in _figure_names(plot_path, [st.name for st in circuit.stages]):
+            _writable(name, args)
     dc = solve(circuit)
     print(bias_table(design, circuit, dc))
     for w in warnings:
@@ -222,15 +244,16 @@ def _cmd_bias(args) -> int:
 
 
 def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
-    """One plate-characteristics figure per stage: PATH with -STAGE before the suffix."""
+    """One plate-characteristics figure per stage: PATH itself for a single
+    stage, else PATH with -STAGE before the suffix."""
     import numpy as np
 
     from chain.dc import plate_family, stage_lines
     from chain.plot.bias import plot_characteristics
 
-    target = Path(plot_path)
+    paths = _figure_names(plot_path, [st.name for st in circuit.stages])
     figures = []
-    for st in circuit.stages:
+    for st, path in zip(circuit.stages, paths):
         point = dc.points[st.triode]
         line, bias = stage_lines(circuit, dc, st.name)
         top = float(line.vpk_v.max())
@@ -239,7 +262,7 @@ def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
         vgks = np.round(np.arange(0.0, min(point.vgk_v * 3.0, -4 * step) - step / 2, -step), 2)
         family = plate_family(model, vgks, top * 1.15)
         plot = plot_characteristics(family, line, point, bias=bias, title=f"{st.name} ({st.tube})")
-        figures.append((target.with_name(f"{target.stem}-{st.name}{target.suffix}"), plot))
+        figures.append((path, plot))
     written = []
     for path, plot in figures:  # draw everything first, then write: nothing half-done
         _save_figure(plot, str(path))
@@ -250,7 +273,7 @@ def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
 def _save_figure(figure, path: str) -> None:
     from chain.plot.files import save_figure
 
-    save_figure(figure, _writable(path))
+    save_figure(figure, path)
 
 
 def _bode_nodes(analysis, with_stages: bool):
@@ -264,15 +287,17 @@ def _bode_nodes(analysis, with_stages: bool):
 def _cmd_plot(args) -> int:
     from chain.analysis import analyze
 
-    path = _figure_path(args.output or str(Path(args.file).with_suffix(".png")))
+    path = _figure_path(args.output or str(Path(args.file).with_suffix(".png")), args)
+    target = Path(path)
+    extra = str(target.with_name(f"{target.stem}-impedance{target.suffix}"))
+    if args.impedance:
+        _writable(extra, args)
     analysis = analyze(args.file, headroom=False)
     figures = [(path, analysis.plot(nodes=_bode_nodes(analysis, args.stages)).figure)]
     if args.impedance:
         from chain.plot.bode import impedance
 
-        target = Path(path)
-        figures.append((str(target.with_name(f"{target.stem}-impedance{target.suffix}")),
-                        impedance(analysis.freq, title=analysis.design.title).figure))
+        figures.append((extra, impedance(analysis.freq, title=analysis.design.title).figure))
     for name, figure in figures:
         _save_figure(figure, name)
         print(f"wrote {name}")
@@ -282,7 +307,7 @@ def _cmd_plot(args) -> int:
 def _emit(text: str, output: str | None) -> None:
     """Print ``text``, or write it atomically to ``output``."""
     if output:
-        write_atomically(_writable(output), text if text.endswith("\n") else text + "\n")
+        write_atomically(output, text if text.endswith("\n") else text + "\n")
         print(f"wrote {output}")
     else:
         print(text)
@@ -292,7 +317,9 @@ def _cmd_report(args) -> int:
     from chain.analysis import analyze
     from chain.report import render
 
-    plot_path = _figure_path(args.plot) if args.plot else None
+    plot_path = _figure_path(args.plot, args) if args.plot else None
+    if args.output:
+        _writable(args.output, args)
     analysis = analyze(args.file, headroom=not args.no_headroom)
     text = render(analysis, fmt=args.format)
     figure = analysis.plot().figure if plot_path else None
@@ -306,7 +333,7 @@ def _cmd_report(args) -> int:
 def _cmd_diff(args) -> int:
     from chain.changes import diff, load_voicing, render_diff
 
-    plot_path = _figure_path(args.plot) if args.plot else None
+    plot_path = _figure_path(args.plot, args) if args.plot else None
     a, b = load_voicing(args.a), load_voicing(args.b)
     result = diff(a, b, tol_db=args.tolerance_db, tol_pct=args.tolerance_pct)
     print(render_diff(result, fmt=args.format))
@@ -355,7 +382,7 @@ def _varied(path: str, spec: str):
 def _cmd_compare(args) -> int:
     from chain.changes import compare, load_voicing, render_compare
 
-    plot_path = _figure_path(args.plot) if args.plot else None
+    plot_path = _figure_path(args.plot, args) if args.plot else None
     if args.vary:
         if len(args.files) != 1:
             raise UsageError("--vary takes exactly one netlist")
@@ -390,19 +417,20 @@ def _cmd_headroom(args) -> int:
         low, high, _ = RANGES["level"]
         if not low <= level <= high:
             raise UsageError(f"--level {args.level} is outside the sensible range 1 µV to 100 V peak")
-    plot_path = _figure_path(args.plot) if args.plot else None
+    plot_path = _figure_path(args.plot, args) if args.plot else None
+    if plot_path:
+        for name in _figure_names(plot_path, ["transfer", "harmonics"]):
+            _writable(name, args)
     analysis = analyze(args.file, headroom=True, level_v=level)
     print(render(analysis, fmt="text", sections=("header", "safety", "headroom")))
     if plot_path:
         from chain.plot.headroom import plot_harmonics, plot_transfer
 
         h = analysis.headroom
-        target = Path(plot_path)
-        figures = [(target.with_name(f"{target.stem}-transfer{target.suffix}"),
-                    plot_transfer(h.curves, headroom=h, title=analysis.design.title).figure)]
+        drawn = [plot_transfer(h.curves, headroom=h, title=analysis.design.title).figure]
         if h.distortion is not None:
-            figures.append((target.with_name(f"{target.stem}-harmonics{target.suffix}"),
-                            plot_harmonics(h.distortion, title=analysis.design.title).figure))
+            drawn.append(plot_harmonics(h.distortion, title=analysis.design.title).figure)
+        figures = zip(_figure_names(plot_path, ["transfer", "harmonics"][:len(drawn)]), drawn)
         for path, figure in figures:
             _save_figure(figure, str(path))
             print(f"wrote {path}")
