@@ -164,6 +164,41 @@ def _syntax_error(exc, body: str, span: Span, members: tuple[str, ...] | None = 
     return error("E103", f"unexpected '{found}': expected {listing}", span, hint)
 
 
+#: names of control characters that Unicode leaves unnamed
+_CONTROL_NAMES = {0: "NUL", 0x0B: "LINE TABULATION", 0x0C: "FORM FEED", 0x0D: "CARRIAGE RETURN",
+                  0x1B: "ESCAPE", 0x7F: "DELETE"}
+
+
+def _invisible(body: str, span: Span) -> list[Diagnostic]:
+    """E132 for each character of ``body`` (outside double quotes) that shows as
+    nothing or as a plain space but is not one: a no-break space, a
+    zero-width space, NUL and other control characters, a byte-order mark in
+    the middle of the text.  They come from copying out of web pages and word
+    processors, and would otherwise give a puzzling syntax error."""
+    import unicodedata
+
+    found = []
+    quoted = False
+    for i, ch in enumerate(body):
+        if ch == '"':
+            quoted = not quoted
+        if quoted or ch in " \t" or (ch.isprintable() and not ch.isspace()):
+            continue
+        category = unicodedata.category(ch)
+        if category not in ("Cc", "Cf", "Zs", "Zl", "Zp", "Co", "Cn") and not ch.isspace():
+            continue
+        if ch == "\r" and i == len(body) - 1:
+            continue  # a Windows line end that splitlines left behind
+        code = ord(ch)
+        name = unicodedata.name(ch, "") or _CONTROL_NAMES.get(code, "a control character")
+        spaceish = category == "Zs" or ch.isspace()
+        found.append(error("E132", f"invisible character U+{code:04X} ({name}) in the line",
+                           replace(span, column=i + 1),
+                           "replace it with a plain space" if spaceish else
+                           "delete it (such characters come from copying text out of web pages or documents)"))
+    return found
+
+
 def parse_syntax(text: str, source: str = "<string>") -> Design:
     """Parse ``text`` into a Design, checking syntax only.
 
@@ -185,6 +220,14 @@ def parse_syntax(text: str, source: str = "<string>") -> Design:
         if "\t" in body[: len(body) - len(body.lstrip())]:
             col = body.index("\t") + 1
             diagnostics.append(error("E104", "indent with spaces, not tabs", Span(source, number, col, raw)))
+            continue
+        hidden = _invisible(body, Span(source, number, 1, raw))
+        if hidden:
+            diagnostics.extend(hidden)
+            head = body.split()[0] if body.split() else ""
+            if body[:1] not in (" ", "\t") and head in ("stage", "network"):
+                block = head
+                statements.append(Statement("broken_" + head, None, Span(source, number, 1, raw), False))
             continue
         indent = len(body) - len(body.lstrip())
         span = Span(source, number, indent + 1, raw)
@@ -224,21 +267,109 @@ def parse_text(text: str, source: str = "<string>") -> Design:
     return design
 
 
+#: the largest netlist read, bytes (a real preamp is a few kB)
+MAX_NETLIST_BYTES = 10_000_000
+
+#: leading bytes of files that are often passed by mistake → what they are
+_MAGIC = ((b"\x89PNG\r\n\x1a\n", "a PNG image"), (b"%PDF-", "a PDF document"), (b"\xff\xd8\xff", "a JPEG image"),
+          (b"GIF8", "a GIF image"), (b"PK\x03\x04", "a ZIP archive"), (b"\x7fELF", "a program"))
+
+
+def read_netlist(path) -> str:
+    """The text of the netlist file at ``path``, checked before parsing.
+
+    Raises
+    ------
+    LanguageError
+        E100 the file cannot be read; E130 it is larger than
+        :data:`MAX_NETLIST_BYTES` (read no further, so ``/dev/zero`` stops at
+        once); E133 it is plainly another kind of file (an image, a JSON or
+        Markdown report); E131 it is not UTF-8 text, located at the first
+        bad byte's line and column.
+    """
+    name = str(path)
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read(MAX_NETLIST_BYTES + 1)
+    except OSError as exc:
+        reason = exc.strerror or str(exc)
+        raise LanguageError(error("E100", f"cannot read netlist: {reason}", Span(name, 1, 1))) from None
+    if len(raw) > MAX_NETLIST_BYTES:
+        raise LanguageError(error(
+            "E130", f"the file is larger than {MAX_NETLIST_BYTES // 1_000_000} MB: too big to be a netlist",
+            Span(name, 1, 1), "a preamp netlist is a few kB; is this the right file?"))
+    kind = _other_kind(raw, name)
+    if kind:
+        raise LanguageError(error("E133", f"this is {kind}, not a netlist", Span(name, 1, 1),
+                                  "give a netlist written in the chain language (.chain)"
+                                  + ("; chain diff and chain compare read JSON reports whose names end in .json"
+                                     if "JSON" in kind else "")))
+    if raw.startswith(b"\xef\xbb\xbf"):  # a byte-order mark (some editors write one) is not text
+        raw = raw[3:]
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise LanguageError(_not_utf8(raw, exc.start, name)) from None
+
+
+def _other_kind(raw: bytes, name: str) -> str:
+    """What a file plainly is when it is not a netlist ("" if it may be one)."""
+    for magic, kind in _MAGIC:
+        if raw.startswith(magic):
+            return kind
+    head = raw[:4096].lstrip(b"\xef\xbb\xbf \t\r\n")
+    if head.startswith((b"{", b"[")):
+        return "a chain JSON report" if b'"chain-report/' in head else "a JSON file"
+    if head.startswith((b"<?xml", b"<svg", b"<!DOCTYPE", b"<html")):
+        return "an SVG image or other XML/HTML file"
+    first = head.split(b"\n", 1)[0].strip()
+    if first.startswith(b"# chain report"):
+        return "a chain report in Markdown"
+    if first.startswith(b"chain report"):
+        return "a chain text report"
+    if first.startswith((b"chain diff", b"chain compare")):
+        return "the output of " + first.split()[0].decode() + " " + first.split()[1].decode()
+    return ""
+
+
+def _not_utf8(raw: bytes, start: int, name: str) -> Diagnostic:
+    """E131 at the line and column (in characters) of the first byte that is not UTF-8."""
+    line_start = raw.rfind(b"\n", 0, start) + 1
+    line = raw.count(b"\n", 0, start) + 1
+    column = len(raw[line_start:start].decode("utf-8", errors="replace")) + 1
+    line_end = raw.find(b"\n", start)
+    shown = raw[line_start: line_end if line_end >= 0 else len(raw)].decode("utf-8", errors="replace")
+    byte = raw[start]
+    guess = raw[start:start + 1].decode("latin-1")
+    return error("E131", f"the file is not UTF-8 text: byte 0x{byte:02X} cannot be read"
+                 + (f" (in Latin-1 it would be '{guess}')" if guess.isprintable() and byte >= 0xA0 else ""),
+                 Span(name, line, column, shown),
+                 "save the file as UTF-8 (most editors offer the encoding under 'Save as')")
+
+
+def _looks_like_markdown(path: str, diagnostics) -> bool:
+    return Path(path).suffix.lower() in (".md", ".markdown") and all(d.code.startswith("E1") for d in diagnostics)
+
+
 def parse_file(path) -> Design:
     """Parse and validate the netlist file at ``path``.
 
     Raises
     ------
     LanguageError
-        E100 if the file cannot be read, else as :func:`parse_text`.
+        as :func:`read_netlist`, else as :func:`parse_text`; a Markdown file
+        that fails to parse is said to be one (E133) once, not line by line.
     """
-    p = Path(path)
+    text = read_netlist(path)
     try:
-        text = p.read_text(encoding="utf-8-sig")  # a byte-order mark (some editors write one) is not text
-    except (OSError, UnicodeDecodeError) as exc:
-        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
-        raise LanguageError(error("E100", f"cannot read netlist: {reason}", Span(str(path), 1, 1))) from None
-    return parse_text(text, str(path))
+        return parse_text(text, str(path))
+    except LanguageError as exc:
+        syntax = [d for d in exc.diagnostics if d.severity == "error"]
+        if len(syntax) > 1 and _looks_like_markdown(str(path), syntax):
+            raise LanguageError(error("E133", f"this is a Markdown file, not a netlist ({len(syntax)} lines "
+                                      "are not netlist statements)", syntax[0].span,
+                                      "give a netlist written in the chain language (.chain)")) from None
+        raise
 
 
 # --------------------------------------------------------------------------

@@ -46,13 +46,36 @@ RANGES = {
     "level": (1e-6, 100.0, "input level"),
     "rated": (1.0, 10e3, "voltage rating"),
     "heater": (-500.0, 500.0, "heater potential"),
+    "band": (0.1, 10e6, "band edge"),
+}
+
+#: sensible limits of each ``tube`` line key, SI units: (low, high, unit, what, zero allowed).
+#: Wide enough for every small-signal and power triode in common use (common
+#: practice: mu from about 2 for a 6AS7 to about 100 for a 12AX7; interelectrode
+#: capacitances of a few pF; plate ratings up to a few kV); a value outside
+#: is a typing slip (a missing prefix, a stray exponent), not a tube.
+TUBE_RANGES = {
+    "mu": (1.0, 1000.0, "", "amplification factor mu", False),
+    "ex": (0.5, 3.0, "", "exponent ex", False),
+    "kg1": (1.0, 1e6, "", "kg1", False),
+    "kp": (0.1, 1e5, "", "kp", False),
+    "kvb": (1.0, 1e7, "", "kvb", False),
+    "cgk": (0.0, 1e-9, "F", "grid-cathode capacitance cgk", True),
+    "cgp": (0.0, 1e-9, "F", "grid-plate capacitance cgp", True),
+    "cpk": (0.0, 1e-9, "F", "plate-cathode capacitance cpk", True),
+    "vp-max": (1.0, 10e3, "V", "plate voltage rating vp-max", False),
+    "pd-max": (1e-3, 1e3, "W", "plate dissipation rating pd-max", False),
+    "ik-max": (1e-5, 10.0, "A", "cathode current rating ik-max", False),
+    "vhk-max": (1.0, 10e3, "V", "heater-cathode voltage rating vhk-max", False),
+    "rg-max": (1e3, 1e9, "Ω", "grid-circuit resistance rating rg-max", False),
+    "vp0-max": (1.0, 10e3, "V", "cold plate voltage rating vp0-max", False),
 }
 
 _SI_UNITS = {"supply": "V", "supply_impedance": "Ω", "drop": "Ω", "decouple": "F", "plate_load": "Ω",
              "cathode": "Ω", "bypass": "F", "bypass_series": "Ω", "grid_leak": "Ω", "grid_stopper": "Ω",
              "coupling": "F", "resistor": "Ω", "capacitor": "F", "inductor": "H", "pot": "Ω",
              "source_r": "Ω", "pickup_r": "Ω", "pickup_l": "H", "pickup_c": "F", "cable": "F", "load": "Ω",
-             "stray": "F", "reference": "Hz", "level": "V", "rated": "V", "heater": "V"}
+             "stray": "F", "reference": "Hz", "level": "V", "rated": "V", "heater": "V", "band": "Hz"}
 
 
 def _fmt(value: float, unit: str) -> str:
@@ -90,7 +113,7 @@ class _Checker:
         unit = _SI_UNITS[role]
         if not math.isfinite(value):
             self.err("E301", f"{what} must be a finite number", span, subject=subject)
-        elif value < 0 or (value == 0 and not zero_ok and lo > 0):
+        elif (value < 0 and lo >= 0) or (value == 0 and not zero_ok and lo > 0):
             self.err("E301", f"{what} must be positive, not {_fmt(value, unit)}", span, subject=subject)
         elif value < lo or value > hi:
             self.err("E302", f"{what} of {_fmt(value, unit)} is outside the sensible range "
@@ -146,7 +169,13 @@ class _Checker:
         self.in_range("reference", s.reference_hz, self._setting_span("reference"))
         self.in_range("level", s.level_v, self._setting_span("level"))
         self.in_range("heater", s.heater_v, self._setting_span("heater"), zero_ok=True)
-        if not 0 < s.band_low_hz < s.band_high_hz:
+        band_span = self._setting_span("band")
+        bad_band = len(self.problems)
+        self.in_range("band", s.band_low_hz, band_span)
+        self.in_range("band", s.band_high_hz, band_span)
+        if len(self.problems) > bad_band:
+            pass
+        elif not 0 < s.band_low_hz < s.band_high_hz:
             self.err("E303", f"the band must run from a lower to a higher frequency, not "
                      f"{_fmt(s.band_low_hz, 'Hz')} to {_fmt(s.band_high_hz, 'Hz')}", self._setting_span("band"))
         elif not s.band_low_hz <= s.reference_hz <= s.band_high_hz:
@@ -210,9 +239,35 @@ class _Checker:
                     self.err("E207", f"tube '{t.name}' needs the model parameters {', '.join(missing)} "
                              "(or 'like TYPE' to start from a built-in type)", t.span)
             for key, value in t.params:
-                if key in ("mu", "ex", "kg1", "kp", "kvb") and not value > 0:
-                    self.err("E301", f"tube parameter {key} must be positive, not {value:g}", t.span)
+                self.tube_value(t.name, key, value, self._key_span(t.span, key))
         return known
+
+    def tube_value(self, tube: str, key: str, value: float, span: Span) -> None:
+        """One ``tube`` line key against :data:`TUBE_RANGES` (E301 sign, E302 range)."""
+        if key not in TUBE_RANGES:
+            return
+        lo, hi, unit, what, zero_ok = TUBE_RANGES[key]
+        shown = _fmt(value, unit) if unit and math.isfinite(value) else f"{value:g}"
+        if not math.isfinite(value):
+            self.err("E301", f"tube '{tube}': {what} must be a finite number", span, subject=tube)
+        elif value < 0 or (value == 0 and not zero_ok):
+            self.err("E301", f"tube '{tube}': {what} must be positive, not {shown}", span, subject=tube)
+        elif not lo <= value <= hi:
+            lo_s, hi_s = (_fmt(lo, unit), _fmt(hi, unit)) if unit else (f"{lo:g}", f"{hi:g}")
+            self.err("E302", f"tube '{tube}': {what} of {shown} is outside the sensible range {lo_s} to {hi_s}",
+                     span, "check the prefix and the exponent (p is pico, 1e3 is a thousand)", tube)
+
+    def _key_span(self, span: Span, key: str) -> Span:
+        """The place of ``key`` on the tube line of ``span`` (the line itself if not found)."""
+        import re
+
+        if 0 < span.line <= len(self.d.lines):
+            found = re.search(rf"(?<![\w-]){re.escape(key)}(?![\w-])", self.d.lines[span.line - 1])
+            if found:
+                from dataclasses import replace
+
+                return replace(span, column=found.start() + 1)
+        return span
 
     def check_stage(self, s: Stage, rail_names, tube_names):
         sp = s.spans
@@ -280,6 +335,9 @@ class _Checker:
         for n in self.d.networks:
             if n.ports and len(n.ports) != 2:
                 self.err("E212", f"network '{n.name}' must have an input and an output port", n.span)
+            elif n.ports and n.ports[0] == n.ports[1]:
+                self.err("E250", f"network '{n.name}': its input and output ports must differ, not both "
+                         f"'{n.ports[0]}'", n.span, f"write 'network {n.name}: in -> out'", n.name)
             self.unique([(p.name, p.span) for p in n.parts], f"part in network {n.name}")
             if not n.parts:
                 self.err("E213", f"network '{n.name}' has no parts", n.span)
