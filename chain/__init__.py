@@ -16,13 +16,9 @@ House plan (imports flow one way; a module imports only rooms to its left)::
 The one entry point for the API is :func:`analyze`.
 """
 
-__version__ = "0.1.0"
+from chain.about import SAFETY, __version__
 
-#: the one-line safety reminder printed by every report and the CLI help
-SAFETY = ("Safety: tube amplifiers hold lethal voltages, also after switch-off; these numbers are model "
-          "estimates, not measurements. Work on live equipment only if qualified, under local electrical codes.")
-
-__all__ = ["__version__", "SAFETY", "analyze", "diff"]
+__all__ = ["__version__", "SAFETY", "analyze", "diff", "table", "bode"]
 
 
 def analyze(source, *, headroom=True, options=None, level_v=None):
@@ -39,3 +35,18 @@ def diff(a, b, *, tol_db=0.05, tol_pct=0.5):
     from chain.changes import diff as _diff
 
     return _diff(a, b, tol_db=tol_db, tol_pct=tol_pct)
+
+
+def table(analysis) -> str:
+    """The per-stage table of an :class:`~chain.analysis.Analysis` as plain text."""
+    from chain.report import render
+
+    return render(analysis, fmt="text", sections=("stages",))
+
+
+def bode(analysis, *, nodes=None, ax=None):
+    """The Bode plot of an analysis (see :func:`chain.plot.bode.bode`); ``.figure`` is the Figure."""
+    from chain.plot.bode import bode as _bode
+
+    return _bode(analysis.freq, nodes=nodes, corners=(analysis.overall.f_low_hz, analysis.overall.f_high_hz),
+                 ax=ax, title=analysis.design.title)

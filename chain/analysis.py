@@ -15,7 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
-from chain import __version__
+from chain.about import __version__
 from chain.circuit import Circuit
 from chain.dc import DcSolution, SolveOptions, solve
 from chain.errors import ChainError, Diagnostic
@@ -61,19 +61,6 @@ class Analysis:
     def response(self) -> Response:
         """The frequency response (see :class:`chain.smallsignal.Response`)."""
         return self.freq
-
-    def table(self) -> str:
-        """The per-stage table as plain text."""
-        from chain.report import render
-
-        return render(self, fmt="text", sections=("stages",))
-
-    def plot(self, *, nodes=None, ax=None):
-        """The Bode plot of this analysis (see :func:`chain.plot.bode.bode`)."""
-        from chain.plot.bode import bode
-
-        return bode(self.freq, nodes=nodes, corners=(self.overall.f_low_hz, self.overall.f_high_hz), ax=ax,
-                    title=self.design.title)
 
 
 def sweep_frequencies(design: Design) -> np.ndarray:

@@ -22,7 +22,8 @@ from typing import Sequence
 for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
 
-from chain import SAFETY, __version__  # noqa: E402
+from chain import bode as chain_bode  # noqa: E402
+from chain.about import SAFETY, __version__  # noqa: E402
 from chain.errors import ChainError, Diagnostic  # noqa: E402
 from chain.fileio import OutputPathError, check_output, write_atomically  # noqa: E402
 
@@ -293,7 +294,7 @@ def _cmd_plot(args) -> int:
     if args.impedance:
         _writable(extra, args)
     analysis = analyze(args.file, headroom=False)
-    figures = [(path, analysis.plot(nodes=_bode_nodes(analysis, args.stages)).figure)]
+    figures = [(path, chain_bode(analysis, nodes=_bode_nodes(analysis, args.stages)).figure)]
     if args.impedance:
         from chain.plot.bode import impedance
 
@@ -322,7 +323,7 @@ def _cmd_report(args) -> int:
         _writable(args.output, args)
     analysis = analyze(args.file, headroom=not args.no_headroom)
     text = render(analysis, fmt=args.format)
-    figure = analysis.plot().figure if plot_path else None
+    figure = chain_bode(analysis).figure if plot_path else None
     _emit(text, args.output)
     if figure is not None:
         _save_figure(figure, plot_path)

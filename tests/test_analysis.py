@@ -28,7 +28,7 @@ def test_analysis_holds_every_step(clean):
 
 
 def test_table_is_the_stage_section_of_the_text_report(clean):
-    table = clean.table()
+    table = chain.table(clean)
     assert table.splitlines()[0].startswith("Stages at 1 kHz")
     assert "V1" in table and "V2" in table
 

@@ -11,7 +11,7 @@ PACKAGE = Path(__file__).parents[1] / "chain"
 #: room → rank; a module may import at module level only rooms of lower rank
 #: (or its own room)
 RANKS = {
-    "errors": 0, "units": 0, "fileio": 0,
+    "about": 0, "errors": 0, "units": 0, "fileio": 0, "decibels": 0,
     "tubes": 1,
     "language": 2,
     "circuit": 3,
@@ -60,6 +60,18 @@ def test_module_level_imports_flow_one_way(path):
         if parts[0] == "chain" and len(parts) > 1 and top:
             other = parts[1]
             assert RANKS[other] < RANKS[mine] or other == mine, f"{path.name} imports {name} at module level"
+
+
+@pytest.mark.parametrize("path", MODULES, ids=[str(p.relative_to(PACKAGE)) for p in MODULES])
+def test_imports_inside_functions_flow_one_way_too(path):
+    """A lazy import is still a dependency: no room reaches up the house plan
+    from inside a function either (issue 9)."""
+    mine = room(path)
+    for name, top in imports(path):
+        parts = name.split(".")
+        if parts[0] == "chain" and len(parts) > 1 and not top:
+            other = parts[1]
+            assert RANKS[other] < RANKS[mine] or other == mine, f"{path.name} imports {name} inside a function"
 
 
 @pytest.mark.parametrize("path", MODULES, ids=[str(p.relative_to(PACKAGE)) for p in MODULES])

@@ -46,6 +46,7 @@ from typing import Iterable, Mapping
 
 import numpy as np
 
+from chain.decibels import db_ratio
 from chain.circuit import Circuit, StageRecord
 from chain.dc import DcSolution, SolveOptions
 from chain.headroom.curves import TransferCurves, build_network, watched_nodes
@@ -129,8 +130,7 @@ class StageDistortion:
     def own_relative_db(self) -> tuple[float, ...]:
         """The stage's own harmonics 2 … 9 in dB relative to its output fundamental."""
         h = np.array(self.own_amplitudes_v)
-        with np.errstate(divide="ignore"):
-            return tuple(float(v) for v in 20.0 * np.log10(h[1:] / self.output.fundamental_v))
+        return tuple(float(v) for v in db_ratio(h[1:], self.output.fundamental_v))
 
     @property
     def own_thd(self) -> float:
@@ -391,5 +391,4 @@ def level_for_thd(levels_v: np.ndarray, thd_values: np.ndarray, target: float) -
 
 def _db(num_v, den_v) -> float:
     """``20·log10(num/den)``; −inf or NaN (not a crash) when there is no signal."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return float(20.0 * np.log10(np.float64(num_v) / np.float64(den_v)))
+    return float(db_ratio(num_v, den_v))

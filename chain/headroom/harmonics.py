@@ -24,6 +24,8 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike
 
+from chain.decibels import db_ratio
+
 __all__ = [
     "HIGHEST_HARMONIC",
     "sine_phases",
@@ -147,5 +149,4 @@ def relative_db(amplitudes: ArrayLike) -> np.ndarray:
         Shape ``(..., M − 1)``, dB (``-inf`` for a harmonic that is exactly 0).
     """
     h = np.asarray(amplitudes, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return 20.0 * np.log10(h[..., 1:] / h[..., :1])
+    return db_ratio(h[..., 1:], h[..., :1])

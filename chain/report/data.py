@@ -29,7 +29,8 @@ from typing import Any
 
 import numpy as np
 
-from chain import SAFETY
+from chain.decibels import db, db_array, phase_deg_array
+from chain.about import SAFETY
 
 __all__ = [
     "SCHEMA",
@@ -75,8 +76,7 @@ def cx(value: complex | None) -> dict[str, float | None] | None:
 
 
 def _db(value: complex | float) -> float | None:
-    mag = abs(value)
-    return num(20.0 * math.log10(mag)) if mag > 0.0 and math.isfinite(mag) else None
+    return num(db(value)) if 0.0 < abs(value) < math.inf else None
 
 
 def _deg(value: complex) -> float | None:
@@ -205,9 +205,7 @@ def _couplings(analysis) -> list[dict[str, Any]]:
 def _response_arrays(analysis) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     f = np.asarray(analysis.freq.f_hz, dtype=float)
     h = np.asarray(analysis.freq.output)
-    with np.errstate(divide="ignore"):
-        mag_db = 20.0 * np.log10(np.abs(h))
-    return f, mag_db, np.degrees(np.angle(h))
+    return f, db_array(h), phase_deg_array(h, unwrap=False)
 
 
 def _overall(analysis) -> dict[str, Any]:

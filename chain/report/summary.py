@@ -65,7 +65,7 @@ def _v(value: float) -> str:
 def bias_table(design: Design, circuit: Circuit, dc) -> str:
     """The operating-point table printed by ``chain bias``: one block per
     stage, then rails, capacitors and diagnostics; fixed formats."""
-    from chain import SAFETY
+    from chain.about import SAFETY
 
     lines = [f"{design.title or design.path} — DC operating point", SAFETY, ""]
     head = f"{'stage':<8}{'kind':<18}{'tube':<12}{'Vp':>10}{'Vg':>10}{'Vk':>10}{'Ip':>10}{'Pd':>10}{'gm':>11}{'rp':>10}{'mu':>7}"

@@ -7,18 +7,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from chain.decibels import db
 from chain.circuit import Circuit, StageRecord
 from chain.dc.result import DcSolution
 from chain.smallsignal.corners import response_corners
 from chain.smallsignal.response import Response, response
 
 __all__ = ["StageRow", "OverallResult", "CouplingRow", "stage_table", "coupling_table", "overall", "db"]
-
-
-def db(ratio: complex | float) -> float:
-    """``20·log10|ratio|`` in dB (−inf for zero)."""
-    mag = abs(ratio)
-    return 20.0 * math.log10(mag) if mag > 0.0 else -math.inf
 
 
 @dataclass(frozen=True, slots=True)
