@@ -50,7 +50,9 @@ _ALIASES = {"md": "markdown"}
 
 
 class ReportFormatError(ChainError, ValueError):
-    """A file given as a JSON report is not one (code ``E601``)."""
+    """A file given as a JSON report is not one (code ``E601``), or is a
+    damaged one (``E610`` wrong types or keys, ``E611`` NaN or Infinity,
+    ``E612`` arrays that do not match their frequency grid)."""
 
 
 def render(analysis, *, fmt: str = "text", sections: Sequence[str] | None = None) -> str:
@@ -111,8 +113,14 @@ def load_report(source: str | Path, *, text: str | None = None) -> dict[str, Any
             text = Path(source).read_text(encoding="utf-8")
         except OSError as exc:
             raise _bad(name, f"cannot read the file ({exc.strerror or exc})") from None
+    constants: list[str] = []
+
+    def constant(word: str) -> float:
+        constants.append(word)
+        return float("nan")
+
     try:
-        data = json.loads(text)
+        data = json.loads(text, parse_constant=constant)
     except json.JSONDecodeError as exc:
         raise _bad(name, f"not JSON: {exc.msg}", exc.lineno, exc.colno) from None
     if not isinstance(data, dict) or "schema" not in data:
@@ -123,7 +131,105 @@ def load_report(source: str | Path, *, text: str | None = None) -> dict[str, Any
                            "rails", "headroom") if k not in data]
     if missing:
         raise _bad(name, f"incomplete report: missing {', '.join(missing)}")
+    if constants:
+        raise ReportFormatError(_non_numbers(name, text))
+    problems = _schema_problems(data) or _grid_problems(data)
+    if problems:
+        raise ReportFormatError([_damaged(name, text, code, where, message) for code, where, message in problems])
     return data
+
+
+#: at most this many problems of one damaged report are listed
+_MAX_LISTED = 8
+
+
+def _damaged(name: str, text: str, code: str, where: tuple, message: str) -> Diagnostic:
+    from chain.report.locate import json_position
+
+    line, column, shown = json_position(text, where)
+    return Diagnostic(code, "error", f"damaged report: {_pointer(where)}: {message}", Span(name, line, column, shown),
+                      hint="write the report again with 'chain report --format json', or compare the netlists")
+
+
+def _pointer(where: tuple) -> str:
+    """``("stages", 0, "gain_db")`` → ``stages[0].gain_db``."""
+    out = ""
+    for part in where:
+        out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else str(part))
+    return out or "the document"
+
+
+def _non_numbers(name: str, text: str) -> list[Diagnostic]:
+    """E611 at each NaN, Infinity or -Infinity outside strings (JSON has no such numbers)."""
+    import re
+
+    found = []
+    for m in re.finditer(r'"(?:[^"\\]|\\.)*"|(-?Infinity|NaN)', text):
+        if m.group(1) is None:
+            continue
+        line = text.count("\n", 0, m.start()) + 1
+        column = m.start() - (text.rfind("\n", 0, m.start()) + 1) + 1
+        shown = text.splitlines()[line - 1] if text.splitlines() else ""
+        found.append(Diagnostic("E611", "error", f"damaged report: '{m.group(1)}' is not a JSON number "
+                                "(a report written by chain holds null for a value that is not finite)",
+                                Span(name, line, column, shown),
+                                hint="write the report again with 'chain report --format json'"))
+        if len(found) == _MAX_LISTED:
+            break
+    return found
+
+
+def _schema_problems(data: dict[str, Any]) -> list[tuple[str, tuple, str]]:
+    """(code, path, message) for each place ``data`` breaks ``schema.json`` (E610)."""
+    from jsonschema import Draft202012Validator
+
+    validator = Draft202012Validator(schema())
+    errors = sorted(validator.iter_errors(data), key=lambda e: [str(p) for p in e.absolute_path])
+    out = []
+    for err in errors[:_MAX_LISTED]:
+        out.append(("E610", tuple(err.absolute_path), _schema_message(err)))
+    return out
+
+
+def _schema_message(err) -> str:
+    """A plain sentence for one jsonschema error."""
+    value = err.instance
+    shown = json.dumps(value) if not isinstance(value, (dict, list)) else type(value).__name__
+    if len(shown) > 40:
+        shown = shown[:37] + "..."
+    if err.validator == "type":
+        wanted = err.validator_value if isinstance(err.validator_value, list) else [err.validator_value]
+        words = {"number": "a number", "integer": "a whole number", "string": "a text", "null": "null",
+                 "object": "an object", "array": "an array", "boolean": "true or false"}
+        return f"{shown} where {' or '.join(words.get(w, w) for w in wanted)} is expected"
+    if err.validator == "required":
+        return err.message.replace("is a required property", "is missing")
+    if err.validator == "additionalProperties":
+        return err.message.replace("Additional properties are not allowed", "unknown key(s)")
+    if err.validator in ("anyOf", "oneOf"):
+        return f"{shown} is neither of the forms allowed here"
+    return err.message
+
+
+def _grid_problems(data: dict[str, Any]) -> list[tuple[str, tuple, str]]:
+    """E612: response arrays of another length than ``f_hz``; frequencies not increasing."""
+    resp = data["response"]
+    f = resp["f_hz"]
+    out = []
+    if any(not b > a for a, b in zip(f, f[1:])) or (f and not f[0] > 0):
+        out.append(("E612", ("response", "f_hz"), "the frequencies must be positive and increasing"))
+    for key in ("magnitude_db", "phase_deg", "zin_ohm_mag", "zout_ohm_mag"):
+        values = resp.get(key)
+        if values is not None and len(values) != len(f):
+            out.append(("E612", ("response", key), f"{len(values)} values for {len(f)} frequencies"))
+        elif key in ("magnitude_db", "phase_deg") and values and None in values and \
+                any(v is not None for v in values):
+            # chain writes null only for a value that is not finite; a response that is
+            # finite on both sides of a point is finite at it
+            k = values.index(None)
+            out.append(("E612", ("response", key, k), f"null among numbers ({values.count(None)} of {len(values)} "
+                        "points)"))
+    return out
 
 
 def schema() -> dict[str, Any]:
