@@ -31,6 +31,7 @@ from chain.smallsignal import (
     response,
     stage_table,
 )
+from chain.smallsignal.table import no_signal_warnings
 
 __all__ = ["Analysis", "analyze", "analyze_design", "sweep_frequencies"]
 
@@ -123,7 +124,8 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
     return Analysis(
         design=design, circuit=circuit, dc=dc, freq=freq, stages=rows, couplings=links, overall=total,
         headroom=large,
-        diagnostics=tuple(warnings) + locate(dc.diagnostics, circuit, design),
+        diagnostics=tuple(warnings) + locate(dc.diagnostics, circuit, design)
+        + locate(no_signal_warnings(rows, s.reference_hz, s.level_v), circuit, design),
         netlist_sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
         options=options,
     )

@@ -3,17 +3,26 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from chain.decibels import db
 from chain.circuit import Circuit, StageRecord
 from chain.dc.result import DcSolution
+from chain.errors import Diagnostic, warning
+from chain.units import format_si
 from chain.smallsignal.corners import response_corners
 from chain.smallsignal.response import Response, response
 
-__all__ = ["StageRow", "OverallResult", "CouplingRow", "stage_table", "coupling_table", "overall", "db"]
+__all__ = ["StageRow", "OverallResult", "CouplingRow", "stage_table", "coupling_table", "overall", "db",
+           "NO_SIGNAL_DB", "no_signal_warnings"]
+
+#: a stage input this far (dB) below the largest signal before it receives no signal: what
+#: reaches it is numerical leakage (a volume control at 0), and the ratio of its output to
+#: that leakage is no gain.  No working coupling loses 100 dB at the reference frequency
+#: (common practice: a volume control's range is some 60 dB).
+NO_SIGNAL_DB = -100.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -128,9 +137,35 @@ def stage_table(circuit: Circuit, dc: DcSolution, resp: Response, f_ref_hz: floa
     """
     at = response(resp.ss, [f_ref_hz])
     rows = []
+    loudest = 1.0  # the source EMF, per volt of itself
     for st in circuit.stages:
-        rows.append(_row(circuit, dc, at, st, level_v))
+        row = _row(circuit, dc, at, st, level_v)
+        h_in = abs(complex(at.h[st.input][0]))
+        if not h_in > loudest * 10 ** (NO_SIGNAL_DB / 20.0):
+            nan = complex("nan")
+            row = replace(row, gain=nan, gain_db=math.nan)
+        loudest = max(loudest, h_in, abs(row.cumulative_gain))
+        rows.append(row)
     return tuple(rows)
+
+
+def no_signal_warnings(rows, f_ref_hz: float, level_v: float) -> tuple[Diagnostic, ...]:
+    """W420 for each stage that receives no signal (its gain is NaN by
+    :func:`stage_table` because its input is :data:`NO_SIGNAL_DB` or more below
+    the largest signal before it)."""
+    out = []
+    loudest = 1.0
+    for row in rows:
+        h_in = row.level_in_v / level_v
+        if math.isnan(row.gain_db):
+            below = 20 * math.log10(h_in / loudest) if h_in > 0 else -math.inf
+            out.append(warning(
+                "W420", f"stage {row.stage} receives no signal at {format_si(f_ref_hz, 'Hz')}: its input is "
+                        f"{-below:.0f} dB below the signal before it, so it has no gain to show",
+                hint="a volume or level control at 0, or a coupling to ground, stops the signal here",
+                subject=row.stage))
+        loudest = max(loudest, h_in, abs(row.cumulative_gain))
+    return tuple(out)
 
 
 def overall(resp: Response, f_ref_hz: float) -> OverallResult:
