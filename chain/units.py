@@ -139,6 +139,18 @@ def _suffix_hint(text: str, i: int) -> tuple[str, str]:
     return f"unexpected {rest[0]!r}", ""
 
 
+def _vintage_farads(text: str) -> tuple[int, str, str] | None:
+    """``(column, message, hint)`` for the capacitance units of old schematics
+    (``mfd``/``MFD`` for microfarad, ``mmfd`` for picofarad), else None."""
+    low = text.lower()
+    for old, prefix, what in (("mmfd", "p", "micro-microfarad, i.e. picofarad"), ("mfd", "u", "microfarad")):
+        if low.endswith(old) and len(low) > len(old):
+            number = text[: -len(old)]
+            return (len(number), f"'{text[len(number):]}' ({what} on old schematics) is not a unit symbol here",
+                    f"write {number}{prefix} (or {number}{prefix}F)")
+    return None
+
+
 def parse_quantity(text: str, unit: str | None = None) -> float:
     """Read an engineering number such as ``100k``, ``4k7`` or ``22nF``.
 
@@ -187,6 +199,17 @@ def parse_quantity(text: str, unit: str | None = None) -> float:
                        f"write {''.join(text.split())} without spaces")
     if text.lower().lstrip("+-") in ("inf", "infinity", "nan"):
         raise fail(0, f"{text!r} is not a finite number")
+    vintage = _vintage_farads(text)
+    if vintage is not None:
+        raise fail(*vintage)
+    comma = text.find(",")
+    if comma > 0 and text[comma - 1] in _DIGITS and text[comma + 1:comma + 2] in tuple(_DIGITS):
+        fixed = text[:comma] + "." + text[comma + 1:]
+        whole, digits = text[:comma], text[comma + 1:]
+        stop = _scan_digits(digits, 0)
+        letter = digits[stop:stop + 1]
+        rkm = f" or {whole}{letter}{digits[:stop]}{digits[stop + 1:]}" if letter and letter in _RKM_EXP else ""
+        raise fail(comma, "a comma in a number (the decimal point is '.')", f"write {fixed}{rkm}")
 
     n = len(text)
     sign = "-" if text[0] == "-" else ""

@@ -165,6 +165,13 @@ ERRORS = [
     ("-inf", None, 0, "not a finite number"),
     ("1e999", None, 0, "out of range"),
     ("\u0661", None, 0, "expected a number"),  # Arabic-Indic digit one
+    # vintage schematics: mfd (MFD) is microfarad, mmfd picofarad (common practice)
+    ("10mfd", "F", 2, "write 10u"),
+    (".022MFD", None, 4, "write .022u"),
+    ("100MMFD", "F", 3, "write 100p"),
+    # a decimal comma, as written in much of Europe
+    ("1,5k", "ohm", 1, "write 1.5k or 1k5"),
+    ("2,2", None, 1, "write 2.2"),
 ]
 
 

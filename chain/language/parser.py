@@ -47,6 +47,9 @@ TOP_LEVEL = {"title", "set_reference", "set_band", "set_level", "set_points", "s
 STAGE_MEMBERS = {"plate_load", "plate_on", "cathode", "grid", "heater"}
 NETWORK_MEMBERS = {"part", "pot", "rheostat", "pot_unlabelled"}
 
+#: other words of the trade for a stage terminal
+TERMINAL_SYNONYMS = {"anode": "plate"}
+
 #: units expected for each tube parameter key (None: a plain number)
 TUBE_KEYS = {
     "mu": None, "ex": None, "kg1": None, "kp": None, "kvb": None,
@@ -713,7 +716,25 @@ class _Builder:
             stages.append(Stage(st["name"], st["kind"], st["tube"], load, rail, st.get("cathode"),
                                 st.get("grid_leak"), st.get("grid_stopper"), st.get("grid_ground", False),
                                 st.get("heater"), st["span"], dict(st.get("spans", {}))))
-        networks = tuple(Network(n["name"], n["ports"], tuple(n["parts"]), n["span"]) for n in self.networks)
+        stage_names = {st["name"] for st in self.stages}
+
+        def node(name: str | None) -> str | None:
+            """``V1.anode`` is ``V1.plate`` (anode: the trade's other word for the plate)."""
+            if name is not None and "." in name:
+                head, tail = name.split(".", 1)
+                if head in stage_names and tail in TERMINAL_SYNONYMS:
+                    return f"{head}.{TERMINAL_SYNONYMS[tail]}"
+            return name
+
+        def renamed(p: Part | Pot) -> Part | Pot:
+            if isinstance(p, Pot):
+                return replace(p, a=node(p.a), wiper=node(p.wiper), b=node(p.b))
+            return replace(p, a=node(p.a), b=node(p.b))
+
+        networks = tuple(Network(n["name"], n["ports"], tuple(renamed(p) for p in n["parts"]), n["span"])
+                         for n in self.networks)
+        strays = tuple(replace(st, node=node(st.node)) for st in self.strays)
+        outputs = [replace(o, node=node(o.node)) for o in self.outputs]
         for extra in self.sources[1:]:
             problems.append(error("E113", "a design has one input; this is a second 'input' line", extra.span))
         for extra in self.outputs[1:]:
@@ -730,8 +751,8 @@ class _Builder:
             networks=networks,
             couplings=tuple(self.couplings),
             source=self.sources[0] if self.sources else None,
-            output=self.outputs[0] if self.outputs else None,
-            strays=tuple(self.strays),
+            output=outputs[0] if outputs else None,
+            strays=strays,
             path=self.source,
             lines=self.lines,
         )

@@ -134,6 +134,22 @@ class _Checker:
         hint = f"did you mean '{close[0]}'?" if close else hint_extra
         self.err(code, f"unknown {what} '{name}'", span, hint)
 
+    def unknown_tube(self, name: str, span: Span, defined: set[str]) -> None:
+        """E206 for a tube type that is neither built in nor defined in the netlist.
+
+        A near match is offered only when it is plausibly the same tube
+        (:func:`same_type`); a similar designation is usually a different
+        tube (6SL7 is not a 6SN7, 12AT7 not a 12AX7).
+        """
+        same = sorted(k for k in set(LIBRARY) | defined if same_type(name, k))
+        if same:
+            hint = f"did you mean '{same[0]}'?"
+        else:
+            hint = (f"'{name}' is not in the built-in library ({', '.join(sorted(LIBRARY))}); define it with "
+                    f"'tube {name} mu … ex … kg1 … kp … kvb …', or start from a built-in type: "
+                    f"'tube {name} like 12AX7 mu …' (see docs/models.md)")
+        self.err("E206", f"unknown tube type '{name}'", span, hint)
+
     def run(self) -> tuple[Diagnostic, ...]:
         d = self.d
         stage_names = {s.name for s in d.stages}
@@ -230,7 +246,7 @@ class _Checker:
                     lookup(t.base)
                 except KeyError:
                     if t.base not in {u.name for u in self.d.tubes}:
-                        self.unknown("E206", "tube type", t.base, t.span, known)
+                        self.unknown_tube(t.base, t.span, {u.name for u in self.d.tubes})
             elif {k for k, _ in t.params} < {"mu", "ex", "kg1", "kp", "kvb"} | set():
                 pass
             if t.base is None:
@@ -278,8 +294,7 @@ class _Checker:
             lookup(s.tube)
         except KeyError:
             if s.tube not in tube_names:
-                self.unknown("E206", "tube type", s.tube, s.span, tube_names,
-                             "define it with a 'tube' line or use a built-in type")
+                self.unknown_tube(s.tube, s.span, {t.name for t in self.d.tubes})
         if not s.rail:
             self.err("E304", f"stage '{s.name}' has no plate line, so its plate has no path to a rail", s.span,
                      "add 'plate 100k from B+' (or 'plate on B+' for a follower)")
@@ -426,6 +441,34 @@ class _Checker:
             rails = [s.name for s in d.supplies] + [r.name for r in d.rails]
             if out.node not in stage_names:
                 self.check_node_ref(out.node, out.span, stage_names, net_names, rails, local=None)
+
+
+def _designation(name: str) -> str:
+    return "".join(ch for ch in name.upper() if ch.isalnum())
+
+
+def same_type(written: str, known: str) -> bool:
+    """Whether ``written`` is plausibly the tube type ``known`` (or one of its aliases).
+
+    Yes when the two are equal ignoring case and punctuation, or when one is
+    the other followed by letters only: the suffix of a later or ruggedised
+    version of one type (``12AX7A``, ``12AT7WC``, ``6SN7GTB``; common
+    practice of the type designation systems).  Any other difference, even
+    one letter or digit, names a different tube.
+    """
+    w = _designation(written)
+    try:
+        model = lookup(known)
+        names = {model.name, *model.aliases, known}
+    except KeyError:
+        names = {known}
+    for n in map(_designation, names):
+        if w == n:
+            return True
+        long_, short = (w, n) if len(w) > len(n) else (n, w)
+        if short and long_.startswith(short) and long_[len(short):].isalpha() and short[-1].isdigit():
+            return True
+    return False
 
 
 def check(design: Design) -> tuple[Diagnostic, ...]:

@@ -79,7 +79,7 @@ CASES = [
     ("follower_needs_cathode", "stage V2 common-cathode 12AX7\n  plate 100k from B1\n  cathode 1k5\n",
      "stage V2 cathode-follower 12AX7\n  plate on B1\n", "E306", 12, 7),
     ("reserved_name", "stage V2 common-cathode", "stage gnd common-cathode", "E202", 12, 7),
-    ("unknown_terminal", "output V2 load 1M\n", "output V2 load 1M\nstray V2.anode 5p\n", "E209", 19, 7),
+    ("unknown_terminal", "output V2 load 1M\n", "output V2 load 1M\nstray V2.anod 5p\n", "E209", 19, 7),
     ("band_reversed", "title \"Corpus base\"", "title \"Corpus base\"\nset band 20kHz 20Hz", "E303", 3, 1),
     ("tube_loop", "title \"Corpus base\"", "title \"Corpus base\"\ntube A like B\ntube B like A", "E223", 3, 6),
     ("level_zero", "title \"Corpus base\"", "title \"Corpus base\"\nset level 0V", "E301", 3, 1),

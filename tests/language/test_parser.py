@@ -166,3 +166,14 @@ def test_the_unlabelled_pot_form_is_refused_with_the_line_to_write():
     assert (bass.code, bass.span.line, bass.span.column) == ("E121", 2, 7)
     assert "'rheostat bass m -- b 1M audio 10% at 4'" in bass.hint
     assert level.code == "E121" and "'pot level cw top wiper out ccw gnd 1M audio at 6'" in level.hint
+
+
+def test_anode_is_the_plate():
+    # anode: the British and European word for the plate (common practice)
+    d = parse("stage V1 common-cathode 12AX7\n  anode 100k from B1\n"
+              "network fb\n  resistor r V1.anode -- fb.m 1M\n  resistor r2 fb.m -- tone.anode 1M\n"
+              "output V1.anode load 1M\nstray V1.anode 10p\n")
+    assert (d.stages[0].plate_load_ohm, d.stages[0].rail) == (100e3, "B1")
+    r, r2 = d.network("fb").parts
+    assert r.a == "V1.plate" and r2.b == "tone.anode"  # only a stage's terminal is renamed
+    assert d.output.node == "V1.plate" and d.strays[0].node == "V1.plate"
