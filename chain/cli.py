@@ -423,7 +423,7 @@ def _cmd_headroom(args) -> int:
         for name in _figure_names(plot_path, ["transfer", "harmonics"]):
             _writable(name, args)
     analysis = analyze(args.file, headroom=True, level_v=level)
-    print(render(analysis, fmt="text", sections=("header", "safety", "headroom")))
+    print(render(analysis, fmt="text", sections=("header", "safety", "headroom"), heading="chain headroom"))
     if plot_path:
         from chain.plot.headroom import plot_harmonics, plot_transfer
 

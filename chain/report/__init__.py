@@ -55,7 +55,8 @@ class ReportFormatError(ChainError, ValueError):
     ``E612`` arrays that do not match their frequency grid)."""
 
 
-def render(analysis, *, fmt: str = "text", sections: Sequence[str] | None = None) -> str:
+def render(analysis, *, fmt: str = "text", sections: Sequence[str] | None = None,
+           heading: str = "chain report") -> str:
     """The report of ``analysis`` as text.
 
     Parameters
@@ -67,6 +68,9 @@ def render(analysis, *, fmt: str = "text", sections: Sequence[str] | None = None
         Only these sections (names in :data:`SECTIONS`, rendered in report
         order); ``None`` renders them all.  ``("stages",)`` gives the
         per-stage table alone.
+    heading : str
+        The first words of the title line (``"chain headroom"`` for the
+        headroom command); the JSON document has no title line.
 
     Returns
     -------
@@ -74,13 +78,14 @@ def render(analysis, *, fmt: str = "text", sections: Sequence[str] | None = None
         The report, ending in a newline; identical for identical analyses
         (no dates, no machine-dependent text).
     """
-    return render_data(report_data(analysis), fmt=fmt, sections=sections)
+    return render_data(report_data(analysis), fmt=fmt, sections=sections, heading=heading)
 
 
-def render_data(data: dict[str, Any], *, fmt: str = "text", sections: Sequence[str] | None = None) -> str:
+def render_data(data: dict[str, Any], *, fmt: str = "text", sections: Sequence[str] | None = None,
+                heading: str = "chain report") -> str:
     """As :func:`render`, from a report document (e.g. a JSON report read back)."""
     try:
-        renderer = RENDERERS[_ALIASES.get(fmt, fmt)]()
+        renderer = RENDERERS[_ALIASES.get(fmt, fmt)](heading=heading)
     except KeyError:
         raise ValueError(f"unknown report format {fmt!r}; expected one of {', '.join(RENDERERS)}") from None
     return renderer.render(data, sections)

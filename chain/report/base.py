@@ -16,11 +16,13 @@ import numpy as np
 from chain.smallsignal.resample import on_log_grid
 
 __all__ = ["SECTIONS", "Renderer", "check_sections", "clipped_stages", "spot_frequencies", "spot_response",
-           "pd_rating", "triode_tubes", "corner_reference"]
+           "pd_rating", "triode_tubes", "corner_reference", "past_clip"]
 
-#: every section, in report order
-SECTIONS = ("header", "safety", "settings", "stages", "stage_details", "overall", "response", "rails",
-            "capacitors", "headroom", "diagnostics", "parts")
+#: every section, in report order: what a technician reads first (the stage
+#: table, the whole chain, the response, headroom, diagnostics), then the
+#: details, then the analysis settings and the parts list
+SECTIONS = ("header", "safety", "stages", "overall", "response", "headroom", "diagnostics", "stage_details",
+            "rails", "capacitors", "settings", "parts")
 
 
 def check_sections(sections: Sequence[str] | None) -> tuple[str, ...]:
@@ -47,6 +49,10 @@ class Renderer:
 
     #: text between two sections
     separator = "\n"
+
+    def __init__(self, *, heading: str = "chain report"):
+        #: the first words of the title line ("chain report", "chain headroom")
+        self.heading = heading
 
     def render(self, data: dict[str, Any], sections: Sequence[str] | None = None) -> str:
         """The chosen ``sections`` of the report document ``data``, ending in a newline."""
@@ -165,3 +171,45 @@ def clipped_stages(data: dict[str, Any]) -> set[str]:
     if not h:
         return set()
     return {row["stage"] for row in h.get("stages", ()) if row.get("margin_db") is not None and row["margin_db"] < 0}
+
+
+def past_clip(data: dict[str, Any]) -> dict[str, tuple[float | None, float | None, str, str]]:
+    """Stage → ``(input clip level, output clip level, stage clipping before the
+    input, stage clipping before the output)`` for the
+    stages whose small-signal levels at the stated input level lie past
+    clipping (levels scale linearly with the source, clipping does not).
+
+    A stage's output is past clipping when the stated level exceeds its own
+    clip input level, or when its input is.  Its input is past clipping when
+    the output of the stage before it is.  The clip level of an output is the
+    larger of the stage's output swings where its two half-waves begin to
+    clip (from the headroom sweep), or — when the stage itself does not clip
+    but its input does — its input's clip level times its gain; that of an
+    input is the previous output's clip level times the coupling's transfer.
+    None where that node is not past clipping.  Empty without headroom.
+    """
+    h = data.get("headroom")
+    if not h:
+        return {}
+    level = h["level_v"]
+    rows = {row["stage"]: row for row in h.get("stages", ())}
+    out: dict[str, tuple[float | None, float | None, str, str]] = {}
+    prev: tuple[float, str] | None = None  # clip level at the previous stage's output, and whose clipping
+    for r in data["stages"]:
+        row = rows.get(r["stage"], {})
+        x_in, by_in = None, ""
+        if prev is not None:
+            by_in = prev[1]
+            ratio = r.get("coupling_ratio")
+            x_in = prev[0] * (1.0 if ratio is None else math.hypot(ratio["re"], ratio["im"]))
+        clip = row.get("clip_input_v")
+        if clip is not None and level > clip:
+            swings = [abs(v) for v in (row.get("swing_pos_v"), row.get("swing_neg_v")) if v is not None]
+            prev = (max(swings), r["stage"]) if swings else None
+        elif x_in is not None:
+            prev = (x_in * math.hypot(r["gain"]["re"], r["gain"]["im"]), prev[1])
+        else:
+            prev = None
+        if prev is not None:
+            out[r["stage"]] = (x_in, prev[0], by_in, prev[1])
+    return out

@@ -19,15 +19,15 @@ __all__ = ["JsonRenderer", "SECTION_KEYS", "dumps"]
 SECTION_KEYS = {
     "header": ("schema", "tool", "netlist"),
     "safety": ("safety",),
-    "settings": ("settings", "solve_options", "dc_solve"),
     "stages": ("stages", "couplings"),
-    "stage_details": ("operating_points",),
     "overall": ("overall",),
     "response": ("response",),
-    "rails": ("rails",),
-    "capacitors": ("capacitors",),
     "headroom": ("headroom",),
     "diagnostics": ("diagnostics",),
+    "stage_details": ("operating_points",),
+    "rails": ("rails",),
+    "capacitors": ("capacitors",),
+    "settings": ("settings", "solve_options", "dc_solve"),
     "parts": ("parts",),
 }
 
@@ -40,6 +40,9 @@ def dumps(document: dict[str, Any]) -> str:
 class JsonRenderer:
     """The same method set as the text renderers; each method returns the
     document's entries of its section, and :meth:`render` serialises them."""
+
+    def __init__(self, *, heading: str = "chain report"):
+        self.heading = heading  # not part of the document
 
     def render(self, data: dict[str, Any], sections: Sequence[str] | None = None) -> str:
         """JSON text of ``data``; with ``sections``, a partial document holding

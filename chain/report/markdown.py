@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from chain.report import fmt
-from chain.report.base import Renderer, clipped_stages, corner_reference, pd_rating, spot_response
+from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, spot_response
 
 __all__ = ["MarkdownRenderer"]
 
@@ -40,7 +40,7 @@ class MarkdownRenderer(Renderer):
 
     def header(self, data: dict[str, Any]) -> list[str]:
         n = data["netlist"]
-        title = f"chain report: {n['title']}" if n["title"] else "chain report"
+        title = f"{self.heading}: {n['title']}" if n["title"] else self.heading
         return [f"# {_esc(title)}", ""] + _table(["", ""], [
             ["netlist", f"`{n['path']}`"],
             ["netlist sha256", f"`{n['sha256']}`"],
@@ -71,7 +71,7 @@ class MarkdownRenderer(Renderer):
                 text = str(value)
             rows.append([f"dc solve `{key}`", text])
         rows.append(["dc solve iterations", str(data["dc_solve"]["iterations"])])
-        return ["## Settings", ""] + _table(["setting", "value"], rows)
+        return ["## Analysis settings and solver", ""] + _table(["setting", "value"], rows)
 
     def stages(self, data: dict[str, Any]) -> list[str]:
         s = data["settings"]
@@ -81,17 +81,24 @@ class MarkdownRenderer(Renderer):
              fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"), fmt.plain(r["mu"])]
             for r in data["stages"]], set(range(3, 9)))
         out.append("")
-        clipped = clipped_stages(data)
+        past = past_clip(data)
+
+        def level(r, i):
+            clip = past.get(r["stage"], (None, None))[i]
+            return fmt.volts(r["level_in_v" if i == 0 else "level_out_v"]) if clip is None else \
+                f"past clip {fmt.volts(clip)}"
+
         out += _table(["stage", "gain V/V", "gain", "phase", "Zin", "Zout", "fed through", "coupling loss",
                        "cumulative", "in (peak)", "out (peak)"], [
             [r["stage"], fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
              fmt.polar(r["zin_ohm"], "Ω"), fmt.polar(r["zout_ohm"], "Ω"), r["coupling"] or "—",
              "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]), fmt.db(r["cumulative_db"]),
-             fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"]) + (" *" if r["stage"] in clipped else "")]
+             level(r, 0), level(r, 1)]
             for r in data["stages"]], {1, 2, 3, 7, 8, 9, 10})
-        if clipped:
-            out += ["", "Levels marked * are small-signal extrapolations: the stated input level is past that "
-                    "stage's clipping point (see Headroom)."]
+        if past:
+            out += ["", "Past clip X: at the stated input level this stage or one before it clips; the "
+                    "small-signal level would be meaningless, X is the peak the signal reaches there as clipping "
+                    "begins (see Headroom)."]
         couplings = data.get("couplings") or []
         if couplings:
             out += ["", "### Couplings", ""]

@@ -18,7 +18,7 @@ from __future__ import annotations
 from typing import Any
 
 from chain.report import fmt
-from chain.report.base import Renderer, clipped_stages, corner_reference, pd_rating, spot_response
+from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, spot_response
 
 __all__ = ["TextRenderer"]
 
@@ -47,6 +47,18 @@ def _corner(value: float | None, edge: float, below: bool) -> str:
     return f"below the band (under {fmt.si(edge, 'Hz')})" if below else f"above the band (over {fmt.si(edge, 'Hz')})"
 
 
+def _level(small_signal_v: float | None, clip_v: float | None) -> str:
+    """A stage-table level: the small-signal peak, or ``past clip X``."""
+    return fmt.volts(small_signal_v) if clip_v is None else f"past clip {fmt.volts(clip_v)}"
+
+
+def _signal(small_signal_v: float | None, clip_v: float | None, by: str) -> str:
+    """A stage-detail level, saying when it lies past clipping (``by``: the stage that clips)."""
+    if clip_v is None:
+        return f"{fmt.volts(small_signal_v)} peak"
+    return f"past clipping ({by} clips): about {fmt.volts(clip_v)} peak at most"
+
+
 class TextRenderer(Renderer):
     """Fixed-width plain text (see the module docstring)."""
 
@@ -54,7 +66,7 @@ class TextRenderer(Renderer):
 
     def header(self, data: dict[str, Any]) -> list[str]:
         n = data["netlist"]
-        title = f"chain report: {n['title']}" if n["title"] else "chain report"
+        title = f"{self.heading}: {n['title']}" if n["title"] else self.heading
         return [
             title,
             "=" * len(title),
@@ -69,7 +81,7 @@ class TextRenderer(Renderer):
 
     def settings(self, data: dict[str, Any]) -> list[str]:
         s, o = data["settings"], data["solve_options"]
-        lines = _title("Settings")
+        lines = _title("Analysis settings and solver")
         lines += [
             _kv("reference frequency", fmt.si(s["reference_hz"], "Hz")),
             _kv("band", f"{fmt.si(s['band_low_hz'], 'Hz')} to {fmt.si(s['band_high_hz'], 'Hz')}"),
@@ -112,23 +124,24 @@ class TextRenderer(Renderer):
                                fmt.amps(r["ip_a"]), fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"),
                                fmt.plain(r["mu"])], w1, set(range(3, 9))))
         lines.append("")
-        w2 = [6, 8, 9, 7, 10, 10, 10, 9, 9, 9]
+        w2 = [6, 8, 9, 7, 10, 10, 10, 9, 16, 16]
         lines.append(_row(["stage", "gain V/V", "gain", "phase", "|Zin|", "|Zout|", "coupling", "total",
                            "in pk", "out pk"], w2, set(range(1, 10))))
-        clipped = clipped_stages(data)
+        past = past_clip(data)
         for r in data["stages"]:
-            mark = " *" if r["stage"] in clipped else ""
+            v_in, v_out, _, _ = past.get(r["stage"], (None, None, "", ""))
             lines.append(_row([
                 r["stage"], fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
                 fmt.si(fmt.mag(r["zin_ohm"]), "Ω"), fmt.si(fmt.mag(r["zout_ohm"]), "Ω"),
                 "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]),
-                fmt.db(r["cumulative_db"]), fmt.volts(r["level_in_v"]), fmt.volts(r["level_out_v"]),
-            ], w2, set(range(1, 10))) + mark)
+                fmt.db(r["cumulative_db"]), _level(r["level_in_v"], v_in), _level(r["level_out_v"], v_out),
+            ], w2, set(range(1, 10))))
         lines.append("(coupling: the loss of the network feeding the stage; total: gain from the source "
                      "EMF to the stage output)")
-        if clipped:
-            lines.append("(* the stated input level is past this stage's clipping point: its levels are "
-                         "small-signal extrapolations; see Headroom)")
+        if past:
+            lines.append("(past clip X: at the stated input level this stage or one before it clips; the "
+                         "small-signal level would be meaningless, X is the peak the signal reaches there as "
+                         "clipping begins; see Headroom)")
         couplings = data.get("couplings") or []
         if couplings:
             lines.append("")
@@ -143,12 +156,14 @@ class TextRenderer(Renderer):
     def stage_details(self, data: dict[str, Any]) -> list[str]:
         points = {p["triode"]: p for p in data["operating_points"]}
         count = len(data["stages"])
+        past = past_clip(data)
         out: list[str] = []
         for i, r in enumerate(data["stages"], start=1):
             if out:
                 out.append("")
             n = r["stage"]
             p = points.get(r["triode"], {})
+            clip = past.get(n, (None, None, "", ""))
             out += _title(f"Stage {n}: {r['kind']}, {r['tube']} ({i} of {count})")
             pd, rating = p.get("pd_w"), pd_rating(data, r["triode"])
             pd_text = fmt.si(pd, "W")
@@ -175,8 +190,8 @@ class TextRenderer(Renderer):
                 _kv(f"{n} output impedance", fmt.polar(r["zout_ohm"], "Ω")),
                 _kv(f"{n} fed through", feed),
                 _kv(f"{n} cumulative gain", fmt.gain(r["cumulative_gain"], r["cumulative_db"])),
-                _kv(f"{n} signal at input", f"{fmt.volts(r['level_in_v'])} peak"),
-                _kv(f"{n} signal at output", f"{fmt.volts(r['level_out_v'])} peak"),
+                _kv(f"{n} signal at input", _signal(r["level_in_v"], clip[0], clip[2])),
+                _kv(f"{n} signal at output", _signal(r["level_out_v"], clip[1], clip[3])),
             ]
         return out
 

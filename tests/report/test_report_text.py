@@ -257,3 +257,50 @@ def test_report_data_of_an_analysis_is_plain_data(demos):
 
     data = report_data(demos["grid_driven_common_grid"])
     assert json.loads(json.dumps(data, allow_nan=False)) == data
+
+
+# --------------------------------------------------------------------------- order and levels past clipping
+
+
+@pytest.mark.parametrize("fmt_name", ["text", "markdown"])
+def test_stage_table_and_summary_come_first_and_solver_settings_last(fmt_name, demos_headroom):
+    text = render(demos_headroom["lead_four_stage"], fmt=fmt_name).lower()
+    at = {key: re.search("^[#| ]*" + key.lower(), text, re.M).start()
+          for key in ("Stages at", "Overall", "Stated input level", "Analysis settings and solver",
+                      "Parts as analysed")}
+    at["Headroom"] = at["Stated input level"]
+    assert at["Stages at"] < at["Overall"] < at["Headroom"] < at["Analysis settings and solver"] \
+        < at["Parts as analysed"]
+    assert text.index("gmin") > at["Analysis settings and solver"]
+
+
+def _stage_table_levels(text: str) -> list[str]:
+    rows = text.split("stage   gain V/V", 1)[1].split("\n(coupling:", 1)[0].splitlines()[1:]
+    return [cell for row in rows for cell in re.split(r"\s{2,}", row.strip())[-2:]]
+
+
+def test_levels_past_clipping_are_bounded_by_the_supply(demos_headroom):
+    # common practice: no signal in a preamp swings further than its supply, so a
+    # small-signal level of kilovolts past the clipping point must not be shown
+    a = demos_headroom["lead_four_stage"]
+    supply_v = max(s.volts for s in a.design.supplies)
+    cells = _stage_table_levels(render(a, fmt="text"))
+    assert any(c.startswith("past clip ") for c in cells)
+    for cell in cells:
+        number, unit = cell.removeprefix("past clip ").split()
+        volts = float(number) * {"V": 1.0, "mV": 1e-3, "µV": 1e-6, "kV": 1e3}[unit]
+        assert volts <= supply_v, cell
+
+
+def test_levels_below_clipping_are_not_marked(demos_headroom):
+    # the clean demo at its stated level clips nowhere (margin > 0 on every stage)
+    a = demos_headroom["clean_two_stage"]
+    assert all(s.margin_db > 0 for s in a.headroom.stages)
+    assert not any(c.startswith("past clip") for c in _stage_table_levels(render(a, fmt="text")))
+
+
+def test_the_headroom_command_says_headroom(capsys):
+    from chain.cli import main
+
+    assert main(["headroom", str(ROOT / "netlists" / "clean_two_stage.chain")]) == 0
+    assert capsys.readouterr().out.startswith("chain headroom: Kestrel clean channel\n")
