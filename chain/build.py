@@ -1,7 +1,7 @@
 """Design → Circuit: the one place that knows how stages expand into parts.
 
 :func:`build` turns a validated :class:`~chain.language.design.Design` into a
-flat :class:`~chain.circuit.Circuit` and checks its topology with networkx
+flat :class:`~chain.circuit.Circuit` and checks its topology (:mod:`chain.graph`)
 (dangling nodes, nodes and grids with no DC path to ground, loops of
 couplings, stages off the signal path).  Problems are raised together as one
 :class:`~chain.errors.LanguageError`, each located at the netlist line that
@@ -33,6 +33,7 @@ from chain.circuit import (
     VoltageSource,
 )
 from chain.errors import Diagnostic, LanguageError, Span, error
+from chain.graph import Digraph, components
 from chain.language.design import Design, Pot, Stage
 from chain.tubes import Ratings, TriodeModel, lookup
 
@@ -328,40 +329,34 @@ def build(design: Design) -> Circuit:
 
 def _signal_order(design: Design, x: _Expander) -> list[str]:
     """Stages in signal order from the input along the couplings."""
-    import networkx as nx
-
-    g = nx.DiGraph()
-    g.add_nodes_from(s.name for s in design.stages)
+    g = Digraph(s.name for s in design.stages)
+    spans = {}
     for c in design.couplings:
-        g.add_edge(c.src, c.dst, span=c.span, kind=c.kind)
-    direct = nx.DiGraph([(c.src, c.dst) for c in design.couplings if c.kind == "direct"])
-    for cycle in nx.simple_cycles(direct):
+        g.add_edge(c.src, c.dst)
+        spans.setdefault((c.src, c.dst), c.span)
+    direct = Digraph(edges=[(c.src, c.dst) for c in design.couplings if c.kind == "direct"])
+    for cycle in direct.cycles():
         # report at the loop's first line in the file, starting the loop there
-        # (simple_cycles' starting point is not stable across runs)
         members = [c for c in design.couplings if c.kind == "direct" and c.src in cycle]
         first = min(members, key=lambda c: c.span.line)
         k = cycle.index(first.src)
         cycle = cycle[k:] + cycle[:k]
         x.err("E315", "loop of direct couplings: " + " -> ".join(cycle + [cycle[0]]), first.span,
               "a direct coupling passes DC; a loop of them has no defined operating point")
-    try:
-        cycle = nx.find_cycle(g)
-    except nx.NetworkXNoCycle:
-        cycle = None
+    cycle = g.find_cycle()
     if cycle and not x.problems:
-        first = min((g.edges[u, v]["span"] for u, v, *_ in cycle), key=lambda sp: sp.line)
+        first = min((spans[u, v] for u, v in cycle), key=lambda sp: sp.line)
         x.err("E317", "the couplings form a loop: " + " -> ".join(e[0] for e in cycle) + f" -> {cycle[0][0]}",
               first, "write feedback as a network naming stage terminals, not as a coupling")
     start = design.source.into
-    reached = set(nx.descendants(g, start)) | {start} if start in g else set()
+    reached = g.descendants(start) | {start} if start in g else set()
     for s in design.stages:
         if s.name not in reached:
             x.err("E316", f"stage '{s.name}' is not on the signal path from the input", s.span,
                   f"couple it: 'couple <stage> -> {s.name} cap 22n'", s.name)
     if cycle:
         return [s.name for s in design.stages]
-    sub = g.subgraph(reached)
-    return [n for n in nx.topological_sort(sub) if n != "output"]
+    return [n for n in g.topological_order(reached) if n != "output"]
 
 
 def _renamed(design, x: _Expander, stages, input_node, output_node, couplings) -> Circuit:
@@ -393,8 +388,6 @@ def check_topology(circuit: Circuit, design: Design) -> list[Diagnostic]:
     sources (a supply is a DC path to ground); capacitors are open and a
     triode passes no DC from its grid.
     """
-    import networkx as nx
-
     def located(part_name: str) -> Span | None:
         sp = circuit.origins.get(part_name)
         if sp is None or sp.line <= 0:
@@ -403,16 +396,14 @@ def check_topology(circuit: Circuit, design: Design) -> list[Diagnostic]:
 
     problems: list[Diagnostic] = []
     touches: dict[str, list[str]] = {}
-    dc = nx.Graph()
-    dc.add_node(GROUND)
-    for part in (*circuit.resistors, *circuit.inductors):
-        dc.add_edge(part.a, part.b)
+    dc_edges = [(part.a, part.b) for part in (*circuit.resistors, *circuit.inductors)]
+    dc_nodes = [GROUND] + [n for e in dc_edges for n in e]  # in the order they are met
     for c in circuit.capacitors:
-        dc.add_nodes_from((c.a, c.b))
-    for s in circuit.sources:
-        dc.add_edge(s.pos, s.neg)
+        dc_nodes += [c.a, c.b]
+    dc_edges += [(s.pos, s.neg) for s in circuit.sources]
+    dc_nodes += [n for s in circuit.sources for n in (s.pos, s.neg)]
     for t in circuit.triodes:
-        dc.add_nodes_from((t.plate, t.grid, t.cathode))
+        dc_nodes += [t.plate, t.grid, t.cathode]
     for part in (*circuit.resistors, *circuit.inductors, *circuit.capacitors):
         touches.setdefault(part.a, []).append(part.name)
         touches.setdefault(part.b, []).append(part.name)
@@ -428,7 +419,7 @@ def check_topology(circuit: Circuit, design: Design) -> list[Diagnostic]:
             problems.append(error("E312", f"node '{node}' is connected to '{parts[0]}' only (dangling)",
                                   located(parts[0]), "connect the other end, or remove the part"))
     grids = {t.grid: t.name for t in circuit.triodes}
-    for component in nx.connected_components(dc):
+    for component in components(dict.fromkeys(dc_nodes), dc_edges):
         if GROUND in component:
             continue
         grid_nodes = sorted(n for n in component if n in grids)

@@ -63,7 +63,10 @@ def _lark():
     from lark import Lark
 
     text = resources.files("chain.language").joinpath("grammar.lark").read_text(encoding="utf-8")
-    return Lark(text, parser="lalr", lexer="contextual", propagate_positions=True)
+    # cache=True keeps the built parser tables in the temporary folder, keyed by the
+    # grammar's hash and lark's version: building them costs more than all of
+    # `chain check` on a demo (issue 16, start-up)
+    return Lark(text, parser="lalr", lexer="contextual", propagate_positions=True, cache=True)
 
 
 @lru_cache(maxsize=1)

@@ -20,11 +20,6 @@ from pathlib import Path
 from typing import Any, Sequence
 
 from chain.errors import ChainError, Diagnostic, Span
-from chain.report.base import SECTIONS, Renderer
-from chain.report.data import SAFETY, SCHEMA, report_data
-from chain.report.jsonfmt import JsonRenderer
-from chain.report.markdown import MarkdownRenderer
-from chain.report.text import TextRenderer
 
 __all__ = [
     "render",
@@ -43,8 +38,37 @@ __all__ = [
     "SAFETY",
 ]
 
-#: format name → renderer class
-RENDERERS = {"text": TextRenderer, "markdown": MarkdownRenderer, "json": JsonRenderer}
+#: names of this package and the module each comes from: imported on first use
+#: (PEP 562), so that ``chain check``, which needs only ``chain.report.summary``,
+#: does not load the renderers and the analysis behind them
+_LAZY = {
+    "SECTIONS": "chain.report.base", "Renderer": "chain.report.base",
+    "SAFETY": "chain.report.data", "SCHEMA": "chain.report.data", "report_data": "chain.report.data",
+    "JsonRenderer": "chain.report.jsonfmt", "MarkdownRenderer": "chain.report.markdown",
+    "TextRenderer": "chain.report.text",
+}
+
+
+def __getattr__(name: str):
+    import importlib
+
+    if name == "RENDERERS":
+        return _renderers()
+    if name in _LAZY:
+        value = getattr(importlib.import_module(_LAZY[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'chain.report' has no attribute {name!r}")
+
+
+def _renderers() -> dict:
+    """Format name → renderer class (also ``chain.report.RENDERERS``)."""
+    from chain.report.jsonfmt import JsonRenderer
+    from chain.report.markdown import MarkdownRenderer
+    from chain.report.text import TextRenderer
+
+    return {"text": TextRenderer, "markdown": MarkdownRenderer, "json": JsonRenderer}
+
 #: other accepted spellings of a format name
 _ALIASES = {"md": "markdown"}
 
@@ -78,16 +102,19 @@ def render(analysis, *, fmt: str = "text", sections: Sequence[str] | None = None
         The report, ending in a newline; identical for identical analyses
         (no dates, no machine-dependent text).
     """
+    from chain.report.data import report_data
+
     return render_data(report_data(analysis), fmt=fmt, sections=sections, heading=heading)
 
 
 def render_data(data: dict[str, Any], *, fmt: str = "text", sections: Sequence[str] | None = None,
                 heading: str = "chain report") -> str:
     """As :func:`render`, from a report document (e.g. a JSON report read back)."""
+    renderers = _renderers()
     try:
-        renderer = RENDERERS[_ALIASES.get(fmt, fmt)](heading=heading)
+        renderer = renderers[_ALIASES.get(fmt, fmt)](heading=heading)
     except KeyError:
-        raise ValueError(f"unknown report format {fmt!r}; expected one of {', '.join(RENDERERS)}") from None
+        raise ValueError(f"unknown report format {fmt!r}; expected one of {', '.join(renderers)}") from None
     return renderer.render(data, sections)
 
 
@@ -112,6 +139,8 @@ def load_report(source: str | Path, *, text: str | None = None) -> dict[str, Any
     ReportFormatError
         not JSON, or not a ``chain-report/1`` document (code E601).
     """
+    from chain.report.data import SCHEMA
+
     name = str(source)
     if text is None:
         try:

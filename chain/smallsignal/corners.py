@@ -7,6 +7,8 @@ from typing import Callable
 
 import numpy as np
 from numpy.typing import ArrayLike
+
+from chain.rootfind import brent
 from chain.smallsignal.response import Response, transfer_function
 
 __all__ = ["corners", "response_corners"]
@@ -100,8 +102,6 @@ def _crossing(f0: float, f1: float, m0: float, m1: float, target: float,
     x = x0 if d1 == d0 else x0 + (dt - d0) * (x1 - x0) / (d1 - d0)
     if evaluate is None:
         return 10.0 ** x
-    from scipy.optimize import brentq
-
     def g(xx: float) -> float:
         return abs(complex(evaluate(10.0 ** xx))) - target
 
@@ -112,4 +112,4 @@ def _crossing(f0: float, f1: float, m0: float, m1: float, target: float,
         return f1
     if (g0 > 0.0) == (g1 > 0.0):
         return 10.0 ** x
-    return 10.0 ** brentq(g, x0, x1, xtol=1e-14, rtol=4 * np.finfo(float).eps)
+    return 10.0 ** brent(g, x0, x1, xtol=1e-14, rtol=4 * np.finfo(float).eps)

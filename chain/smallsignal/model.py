@@ -55,6 +55,7 @@ from chain.circuit import (
 )
 from chain.dc.result import DcSolution
 from chain.errors import AnalysisError, error
+from chain.graph import components
 
 __all__ = [
     "TriodeSmallSignal",
@@ -252,27 +253,24 @@ def _merge_shorts(circuit: Circuit) -> tuple[dict[str, str], list[str]]:
     ground, else the group's first node in :meth:`Circuit.nodes` order) and
     the names of the shorting parts.
     """
-    import networkx as nx
-
     order = (GROUND,) + circuit.nodes()
-    graph = nx.Graph()
-    graph.add_nodes_from(order)
+    edges = []
     shorted: list[str] = []
     for s in circuit.sources:
         if s.role == "supply":
-            graph.add_edge(s.pos, s.neg)
+            edges.append((s.pos, s.neg))
             shorted.append(s.name)
     for r in circuit.resistors:
         if r.ohms == 0.0:
-            graph.add_edge(r.a, r.b)
+            edges.append((r.a, r.b))
             shorted.append(r.name)
     for ind in circuit.inductors:
         if ind.henries == 0.0:
-            graph.add_edge(ind.a, ind.b)
+            edges.append((ind.a, ind.b))
             shorted.append(ind.name)
     rank = {n: i for i, n in enumerate(order)}
     node_of: dict[str, str] = {}
-    for group in nx.connected_components(graph):
+    for group in components(order, edges):
         rep = min(group, key=rank.__getitem__)
         for n in group:
             node_of[n] = rep
@@ -313,14 +311,10 @@ def _triode_small_signal(t, dc: DcSolution, m) -> TriodeSmallSignal:
 
 def _check_grounded(ss: SmallSignalCircuit) -> None:
     """Every node needs a path to ground through some part (at some frequency)."""
-    import networkx as nx
-
-    graph = nx.Graph()
-    graph.add_nodes_from((GROUND,) + ss.nodes)
-    for part in (*ss.resistors, *ss.capacitors, *ss.inductors):
-        graph.add_edge(part.a, part.b)
-    graph.add_edge(ss.source.pos, ss.source.neg)
-    floating = sorted(set(ss.nodes) - nx.node_connected_component(graph, GROUND))
+    edges = [(part.a, part.b) for part in (*ss.resistors, *ss.capacitors, *ss.inductors)]
+    edges.append((ss.source.pos, ss.source.neg))
+    grounded = next(set(c) for c in components((GROUND,) + ss.nodes, edges) if GROUND in c)
+    floating = sorted(set(ss.nodes) - grounded)
     if floating:
         raise AnalysisError(error(
             "E504", "no path to ground from node(s) " + ", ".join(repr(n) for n in floating),
