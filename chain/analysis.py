@@ -19,6 +19,7 @@ from chain.about import __version__
 from chain.circuit import Circuit
 from chain.dc import DcSolution, SolveOptions, solve
 from chain.errors import ChainError, Diagnostic
+from chain.headroom import Headroom
 from chain.language.design import Design
 from chain.smallsignal import (
     CouplingRow,
@@ -28,6 +29,7 @@ from chain.smallsignal import (
     coupling_table,
     linearize,
     overall,
+    reference_response,
     response,
     stage_table,
 )
@@ -50,8 +52,8 @@ class Analysis:
     #: every coupling's transfer at the reference frequency, in netlist order
     couplings: tuple[CouplingRow, ...]
     overall: OverallResult
-    #: large-signal results (:class:`chain.headroom.Headroom`), or None when skipped
-    headroom: object | None
+    #: large-signal results, or None when skipped
+    headroom: Headroom | None
     #: language warnings and operating-point diagnostics
     diagnostics: tuple[Diagnostic, ...]
     #: SHA-256 of the netlist text (hex)
@@ -107,9 +109,10 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
     # per-stage impedances are tabulated at the reference frequency only
     freq = response(ss, sweep_frequencies(design), stage_impedances=False)
     s = design.settings
-    rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v)
-    links = coupling_table(circuit, freq, s.reference_hz)
-    total = overall(freq, s.reference_hz)
+    at = reference_response(freq, s.reference_hz)
+    rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v, at=at)
+    links = coupling_table(circuit, freq, s.reference_hz, at=at)
+    total = overall(freq, s.reference_hz, at=at)
     large = None
     if headroom:
         from chain.headroom import headroom as run_headroom

@@ -16,7 +16,16 @@ from chain.smallsignal.model import (
     linearize,
 )
 from chain.smallsignal.response import Response, gain_at, response, transfer_function
-from chain.smallsignal.table import CouplingRow, OverallResult, StageRow, coupling_table, db, overall, stage_table
+from chain.smallsignal.table import (
+    CouplingRow,
+    OverallResult,
+    StageRow,
+    coupling_table,
+    db,
+    overall,
+    reference_response,
+    stage_table,
+)
 
 __all__ = [
     "SmallSignalCircuit",
@@ -34,5 +43,6 @@ __all__ = [
     "OverallResult",
     "stage_table",
     "overall",
+    "reference_response",
     "db",
 ]
