@@ -48,5 +48,7 @@ def bode(analysis, *, nodes=None, ax=None):
     """The Bode plot of an analysis (see :func:`chain.plot.bode.bode`); ``.figure`` is the Figure."""
     from chain.plot.bode import bode as _bode
 
+    shape = analysis.overall.shape
+    extrema = () if shape is None else tuple(sorted(shape.peaks + shape.dips, key=lambda e: e.f_hz))
     return _bode(analysis.freq, nodes=nodes, corners=(analysis.overall.f_low_hz, analysis.overall.f_high_hz),
-                 ax=ax, title=analysis.design.title)
+                 extrema=extrema, ax=ax, title=analysis.design.title)

@@ -19,7 +19,6 @@ from chain.about import __version__
 from chain.circuit import Circuit
 from chain.dc import DcSolution, SolveOptions, solve
 from chain.errors import ChainError, Diagnostic
-from chain.headroom import Headroom
 from chain.language.design import Design
 from chain.smallsignal import (
     CouplingRow,
@@ -29,7 +28,6 @@ from chain.smallsignal import (
     coupling_table,
     linearize,
     overall,
-    reference_response,
     response,
     stage_table,
 )
@@ -52,8 +50,8 @@ class Analysis:
     #: every coupling's transfer at the reference frequency, in netlist order
     couplings: tuple[CouplingRow, ...]
     overall: OverallResult
-    #: large-signal results, or None when skipped
-    headroom: Headroom | None
+    #: large-signal results (:class:`chain.headroom.Headroom`), or None when skipped
+    headroom: object | None
     #: language warnings and operating-point diagnostics
     diagnostics: tuple[Diagnostic, ...]
     #: SHA-256 of the netlist text (hex)
@@ -109,10 +107,9 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
     # per-stage impedances are tabulated at the reference frequency only
     freq = response(ss, sweep_frequencies(design), stage_impedances=False)
     s = design.settings
-    at = reference_response(freq, s.reference_hz)
-    rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v, at=at)
-    links = coupling_table(circuit, freq, s.reference_hz, at=at)
-    total = overall(freq, s.reference_hz, at=at)
+    rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v)
+    links = coupling_table(circuit, freq, s.reference_hz)
+    total = overall(freq, s.reference_hz)
     large = None
     if headroom:
         from chain.headroom import headroom as run_headroom

@@ -453,13 +453,45 @@ def _overall_effects(da, db, tol_db, tol_pct) -> list[Change]:
     sa, sb = da["settings"], db["settings"]
     out = [
         _db_change("overall", "overall", "gain", oa["gain_db"], ob["gain_db"], tol_db),
-        _corner_change("low corner", oa["f_low_hz"], ob["f_low_hz"], sa["band_low_hz"], sb["band_low_hz"], tol_pct),
-        _corner_change("high corner", oa["f_high_hz"], ob["f_high_hz"], sa["band_high_hz"], sb["band_high_hz"],
+        _corner_change("low band edge", oa["f_low_hz"], ob["f_low_hz"], sa["band_low_hz"], sb["band_low_hz"],
                        tol_pct),
+        _corner_change("high band edge", oa["f_high_hz"], ob["f_high_hz"], sa["band_high_hz"], sb["band_high_hz"],
+                       tol_pct),
+        *_shape_effects(oa, ob, tol_db, tol_pct),
         _ratio_change("overall", "overall", "Zin", "ohm", _f.mag(oa["zin_ohm"]), _f.mag(ob["zin_ohm"]), tol_pct),
         _ratio_change("overall", "overall", "Zout", "ohm", _f.mag(oa["zout_ohm"]), _f.mag(ob["zout_ohm"]), tol_pct),
     ]
     return [c for c in out if c is not None]
+
+
+def _main(overall: dict, key: str) -> dict | None:
+    """The most prominent peak or dip of a report's overall response, or None
+    (also for a report of an older version, which has none listed)."""
+    found = overall.get(key) or []
+    return max(found, key=lambda e: e["prominence_db"]) if found else None
+
+
+def _shape_effects(oa, ob, tol_db, tol_pct) -> list[Change | None]:
+    """Shelf levels (dB), and the frequency (as a corner: octaves) and level (dB)
+    of the most prominent peak and dip of the overall response."""
+    out: list[Change | None] = []
+    for key, name in (("low_shelf", "low shelf"), ("high_shelf", "high shelf")):
+        a, b = oa.get(key), ob.get(key)
+        if a is not None or b is not None:
+            out.append(_db_change("overall", "overall", name, a and a["gain_db"], b and b["gain_db"], tol_db))
+    for key, name in (("peaks", "main peak"), ("dips", "main dip")):
+        a, b = _main(oa, key), _main(ob, key)
+        if a is None and b is None:
+            continue
+        if a is None or b is None:
+            there = a or b
+            out.append(Change("overall", "overall", f"{name} level", "dB", a and a["gain_db"], b and b["gain_db"],
+                              size=APPEAR_SIZE, note=f"{'appeared' if a is None else 'vanished'} at "
+                                                     f"{_f.si(there['f_hz'], 'Hz')}"))
+            continue
+        out.append(_corner_change(f"{name} frequency", a["f_hz"], b["f_hz"], None, None, tol_pct))
+        out.append(_db_change("overall", "overall", f"{name} level", a["gain_db"], b["gain_db"], tol_db))
+    return out
 
 
 def _output_coupling_effects(da, db, tol_db) -> list[Change]:
@@ -833,8 +865,16 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
 
     ov = [d["overall"] for d in docs]
     add("overall", "gain", "dB", [o["gain_db"] for o in ov])
-    add("overall", "low corner", "Hz", [o["f_low_hz"] for o in ov])
-    add("overall", "high corner", "Hz", [o["f_high_hz"] for o in ov])
+    add("overall", "low band edge", "Hz", [o["f_low_hz"] for o in ov])
+    add("overall", "high band edge", "Hz", [o["f_high_hz"] for o in ov])
+    for key, name in (("low_shelf", "low shelf"), ("high_shelf", "high shelf")):
+        if any(o.get(key) for o in ov):
+            add("overall", name, "dB", [o[key]["gain_db"] if o.get(key) else None for o in ov])
+    for key, name in (("peaks", "main peak"), ("dips", "main dip")):
+        mains = [_main(o, key) for o in ov]
+        if any(mains):
+            add("overall", f"{name} frequency", "Hz", [m and m["f_hz"] for m in mains])
+            add("overall", f"{name} level", "dB", [m and m["gain_db"] for m in mains])
     add("overall", "Zin", "ohm", [num(_f.mag(o["zin_ohm"])) for o in ov])
     add("overall", "Zout", "ohm", [num(_f.mag(o["zout_ohm"])) for o in ov])
     clips = [first_clip(d.get("headroom")) for d in docs]
@@ -877,7 +917,7 @@ def render_compare(result: CompareResult, *, fmt: str = "text") -> str:
         })
     head = ["", *result.labels, ""]
     body = [[f"{r.subject} {r.quantity}",
-             *(_value(v, r.unit, "out of band" if "corner" in r.quantity else "none") for v in r.values),
+             *(_value(v, r.unit, "out of band" if "band edge" in r.quantity else "none") for v in r.values),
              "*" if r.differs else ""] for r in result.rows]
     if fmt == "markdown":
         out = ["| quantity | " + " | ".join(result.labels) + " | differs |",

@@ -138,7 +138,7 @@ def test_bypass_change_moves_the_lows_and_that_stage_only(base):
     # the low end: largest response change below the reference frequency, several dB
     (resp,) = by(r, "response")
     assert resp.at_hz < 100.0 and resp.delta < -3.0
-    (low,) = by(r, "corner", quantity="low corner")
+    (low,) = by(r, "corner", quantity="low band edge")
     assert low.new > 10 * low.old
 
 
@@ -153,7 +153,7 @@ def test_coupling_cap_change_moves_only_the_low_corner(base):
     assert [(c.subject, c.old, c.new) for c in r.parts] == [("couple.V1-V2.C", 100e-9, 22e-9)]
     assert r.parts[0].owner == "coupling V1->V2"
     assert {c.kind for c in r.effects} <= {"corner", "response"}
-    (low,) = by(r, "corner", quantity="low corner")
+    (low,) = by(r, "corner", quantity="low band edge")
     # first-order high-pass of the coupling cap into the grid leak, driven by V1's output impedance:
     # f = 1/(2π(Rg + Rsource)C) (single-pole RC corner, any circuit-theory text)
     r_source = abs(b.stages[0].zout_ohm)
@@ -314,7 +314,7 @@ def test_compare_tabulates_key_numbers_side_by_side(base):
     result = compare([base, b, c], labels=["base", "small cap", "12AT7"])
     assert isinstance(result, CompareResult) and result.differs
     rows = {(r.subject, r.quantity): r for r in result.rows}
-    low = rows[("overall", "low corner")]
+    low = rows[("overall", "low band edge")]
     assert low.values == pytest.approx((base.overall.f_low_hz, b.overall.f_low_hz, c.overall.f_low_hz),
                                        rel=1e-11)  # Hz, rounded to 12 digits like the JSON report
     assert low.differs

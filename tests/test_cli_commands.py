@@ -126,7 +126,7 @@ def test_compare_varies_one_part(tmp_path, capsys):
     assert main(["compare", str(CLEAN), "--vary", "V1.Ck=680n,22u", "--plot", str(tmp_path / "v.png")]) == 1
     out = capsys.readouterr().out
     assert "V1.Ck=680n" in out and "V1.Ck=22u" in out
-    low = next(line for line in out.splitlines() if line.startswith("overall low corner"))
+    low = next(line for line in out.splitlines() if line.startswith("overall low band edge"))
     assert low.rstrip().endswith("*")
     ip = next(line for line in out.splitlines() if line.startswith("V1 Ip"))
     assert not ip.rstrip().endswith("*")

@@ -269,7 +269,8 @@ def parse_text(text: str, source: str = "<string>") -> Design:
     from chain.language.validate import check
 
     design = parse_syntax(text, source)
-    return replace(design, warnings=check(design))
+    check(design)
+    return design
 
 
 #: the largest netlist read, bytes (a real preamp is a few kB)

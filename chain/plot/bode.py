@@ -37,11 +37,13 @@ class BodePlot:
     nodes: tuple[str, ...]
     #: vertical corner markers (magnitude and phase panels)
     corner_lines: tuple = ()
+    #: one marker per peak or dip of the output (magnitude panel)
+    extremum_marks: tuple = ()
 
 
 def bode(response, *, nodes: Sequence[str] | None = None,
          corners: tuple[float | None, float | None] | None = None,
-         ax=None, title: str = "") -> BodePlot:
+         extrema: Sequence = (), ax=None, title: str = "") -> BodePlot:
     """Draw magnitude (dB) and phase (degrees) against log frequency (Hz).
 
     Parameters
@@ -53,6 +55,10 @@ def bode(response, *, nodes: Sequence[str] | None = None,
         node only.  Pass stage output nodes for per-stage traces.
     corners
         ``(f_low_hz, f_high_hz)`` to mark, either may be None.
+    extrema
+        Peaks and dips of the output to mark and label
+        (:class:`chain.smallsignal.Extremum`: ``kind``, ``f_hz``, ``gain_db``,
+        ``relative_db``).
     ax
         Optional ``(magnitude_axes, phase_axes)`` pair to draw into; by
         default a new two-panel :class:`~matplotlib.figure.Figure`.
@@ -101,6 +107,7 @@ def bode(response, *, nodes: Sequence[str] | None = None,
         ph_lines.append(p_line)
 
     marks = _mark_corners(mag_ax, ph_ax, corners)
+    points = _mark_extrema(mag_ax, extrema)
 
     mag_ax.set_ylabel("Gain (dB, V/V)")
     ph_ax.set_ylabel("Phase (°)")
@@ -116,7 +123,7 @@ def bode(response, *, nodes: Sequence[str] | None = None,
     mag_ax.legend(loc="best", fontsize=8, frameon=False)
     if title:
         mag_ax.set_title(title, fontsize=11, loc="left")
-    return BodePlot(fig, (mag_ax, ph_ax), tuple(mag_lines), tuple(ph_lines), wanted, tuple(marks))
+    return BodePlot(fig, (mag_ax, ph_ax), tuple(mag_lines), tuple(ph_lines), wanted, tuple(marks), tuple(points))
 
 
 def _labels(circuit, nodes: Sequence[str]) -> list[str]:
@@ -145,6 +152,25 @@ def _mark_corners(mag_ax, ph_ax, corners) -> list:
                         xytext=(3 if name == "low" else -3, -3), textcoords="offset points", va="top",
                         ha="left" if name == "low" else "right", fontsize=8, color="#4a4a4a")
     return marks
+
+
+def _mark_extrema(mag_ax, extrema) -> list:
+    """A triangle at every peak (up) and dip (down), labelled with its
+    frequency and its height relative to the reference level."""
+    points = []
+    for e in extrema:
+        up = e.kind == "peak"
+        (p,) = mag_ax.plot([e.f_hz], [e.gain_db], marker="^" if up else "v", color=PALETTE[0], markersize=6,
+                           linestyle="none", zorder=4)
+        sign = "+" if e.relative_db >= 0 else "−"
+        mag_ax.annotate(f"{e.kind} {_hz(e.f_hz)}\n{sign}{abs(e.relative_db):.1f} dB re ref.",
+                        xy=(e.f_hz, e.gain_db), xytext=(-7, 0), textcoords="offset points", ha="right",
+                        va="center", fontsize=8, color="#4a4a4a")
+        points.append(p)
+    if points:
+        low, high = mag_ax.get_ylim()
+        mag_ax.set_ylim(low, high + 0.08 * (high - low))  # room above the highest peak
+    return points
 
 
 def _hz(f: float) -> str:

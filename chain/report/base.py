@@ -16,7 +16,7 @@ import numpy as np
 from chain.smallsignal.resample import on_log_grid
 
 __all__ = ["SECTIONS", "Renderer", "check_sections", "clipped_stages", "spot_frequencies", "spot_response",
-           "pd_rating", "triode_tubes", "corner_reference", "past_clip"]
+           "pd_rating", "triode_tubes", "corner_reference", "past_clip", "shape_lines"]
 
 #: every section, in report order: what a technician reads first (the stage
 #: table, the whole chain, the response, headroom, diagnostics), then the
@@ -161,8 +161,9 @@ def corner_reference(data: dict[str, Any]) -> str:
     ref = data["overall"]["corner_reference"]
     level = f"{fmt.db(ref['gain_db'])} at {fmt.si(ref['f_hz'], 'Hz')}"
     if ref["basis"] == "reference":
-        return f"the gain at the reference frequency, {level}; half power is 3.01 dB below it"
-    return f"the largest gain on the sweep, {level}; half power is 3.01 dB below it"
+        return (f"the gain at the reference frequency, {level}; the outermost points 3.01 dB (half power) "
+                f"below it")
+    return f"the largest gain on the sweep, {level}; the outermost points 3.01 dB (half power) below it"
 
 
 def clipped_stages(data: dict[str, Any]) -> set[str]:
@@ -213,3 +214,33 @@ def past_clip(data: dict[str, Any]) -> dict[str, tuple[float | None, float | Non
         if prev is not None:
             out[r["stage"]] = (x_in, prev[0], by_in, prev[1])
     return out
+
+
+def shape_lines(data: dict[str, Any]) -> list[tuple[str, str]]:
+    """``(label, value)`` facts on the shape of the overall response: every
+    peak and dip, then the shelves (see :mod:`chain.smallsignal.shape`).
+    Missing keys (a report of an older version read back) give nothing."""
+    from chain.report import fmt
+
+    o = data["overall"]
+    ref = fmt.si(o["f_ref_hz"], "Hz")
+    out = []
+    marks = [(e["f_hz"], "peak", e) for e in o.get("peaks") or []] + [(e["f_hz"], "dip", e) for e in o.get("dips") or []]
+    for _, kind, e in sorted(marks, key=lambda m: m[0]):
+        out.append((f"{kind} at {fmt.si(e['f_hz'], 'Hz')}",
+                    f"{fmt.db(e['gain_db'])} ({_signed_db(e['relative_db'])} re {ref}, stands out "
+                    f"{fmt.db(e['prominence_db'])})"))
+    for key, name in (("low_shelf", "low shelf"), ("high_shelf", "high shelf")):
+        shelf = o.get(key)
+        if shelf is not None:
+            region = f"{fmt.si(shelf['f_low_hz'], 'Hz')}–{fmt.si(shelf['f_high_hz'], 'Hz')}"
+            out.append((f"{name} ({region})", f"{fmt.db(shelf['gain_db'])} ({_signed_db(shelf['relative_db'])} "
+                                              f"re {ref})"))
+    return out
+
+
+def _signed_db(x: float | None) -> str:
+    from chain.report import fmt
+
+    text = fmt.db(x)
+    return text if text.startswith(("-", "—")) or x is None else "+" + text

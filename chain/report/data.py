@@ -216,8 +216,31 @@ def _overall(analysis) -> dict[str, Any]:
         "output_node": analysis.circuit.output_node,
         "f_ref_hz": num(o.f_ref_hz), "gain": cx(o.gain), "gain_db": num(o.gain_db), "phase_deg": _deg(o.gain),
         "f_low_hz": num(o.f_low_hz), "f_high_hz": num(o.f_high_hz), "corner_reference": ref,
+        **_shape(o.shape),
         "zin_ohm": cx(o.zin_ohm), "zout_ohm": cx(o.zout_ohm),
     }
+
+
+def _shape(shape) -> dict[str, Any]:
+    """Peaks, dips and shelves of the overall response (chain.smallsignal.shape)."""
+    from chain.smallsignal.shape import HIGH_SHELF_HZ, LOW_SHELF_HZ
+
+    if shape is None:
+        return {"peaks": [], "dips": [], "low_shelf": None, "high_shelf": None}
+
+    def ext(e):
+        return {"f_hz": num(e.f_hz), "gain_db": num(e.gain_db), "relative_db": num(e.relative_db),
+                "prominence_db": num(e.prominence_db)}
+
+    def shelf(level, relative, region):
+        if level is None:
+            return None
+        return {"f_low_hz": num(region[0]), "f_high_hz": num(region[1]), "gain_db": num(level),
+                "relative_db": num(relative)}
+
+    return {"peaks": [ext(e) for e in shape.peaks], "dips": [ext(e) for e in shape.dips],
+            "low_shelf": shelf(shape.low_shelf_db, shape.low_shelf_relative_db, LOW_SHELF_HZ),
+            "high_shelf": shelf(shape.high_shelf_db, shape.high_shelf_relative_db, HIGH_SHELF_HZ)}
 
 
 def _response(analysis, f, mag_db, phase) -> dict[str, Any]:

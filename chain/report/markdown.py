@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from chain.report import fmt
-from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, spot_response
+from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, shape_lines, spot_response
 
 __all__ = ["MarkdownRenderer"]
 
@@ -123,9 +123,10 @@ class MarkdownRenderer(Renderer):
         o, s = data["overall"], data["settings"]
         rows = [
             [f"gain at {fmt.si(o['f_ref_hz'], 'Hz')}", fmt.gain(o["gain"], o["gain_db"])],
-            ["low corner (−3 dB)", _corner(o["f_low_hz"], s["band_low_hz"], True)],
-            ["high corner (−3 dB)", _corner(o["f_high_hz"], s["band_high_hz"], False)],
-            ["corners relative to", corner_reference(data)],
+            ["low band edge (−3 dB)", _corner(o["f_low_hz"], s["band_low_hz"], True)],
+            ["high band edge (−3 dB)", _corner(o["f_high_hz"], s["band_high_hz"], False)],
+            ["band edges relative to", corner_reference(data)],
+            *([label, value] for label, value in shape_lines(data)),
             ["input impedance (source load)", fmt.polar(o["zin_ohm"], "Ω")],
             ["output impedance", fmt.polar(o["zout_ohm"], "Ω")],
         ]

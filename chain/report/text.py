@@ -18,7 +18,7 @@ from __future__ import annotations
 from typing import Any
 
 from chain.report import fmt
-from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, spot_response
+from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, shape_lines, spot_response
 
 __all__ = ["TextRenderer"]
 
@@ -201,9 +201,10 @@ class TextRenderer(Renderer):
         lines = _title(f"Overall: source EMF to the output (node {o['output_node']})")
         lines += [
             _kv(f"gain at {fmt.si(o['f_ref_hz'], 'Hz')}", fmt.gain(o["gain"], o["gain_db"])),
-            _kv("low corner (-3 dB)", _corner(o["f_low_hz"], s["band_low_hz"], True)),
-            _kv("high corner (-3 dB)", _corner(o["f_high_hz"], s["band_high_hz"], False)),
-            _kv("corners relative to", corner_reference(data)),
+            _kv("low band edge (-3 dB)", _corner(o["f_low_hz"], s["band_low_hz"], True)),
+            _kv("high band edge (-3 dB)", _corner(o["f_high_hz"], s["band_high_hz"], False)),
+            _kv("band edges relative to", corner_reference(data)),
+            *(_kv(label, value) for label, value in shape_lines(data)),
             _kv("input impedance (source load)", fmt.polar(o["zin_ohm"], "Ω")),
             _kv("output impedance", fmt.polar(o["zout_ohm"], "Ω")),
         ]

@@ -10,22 +10,14 @@ Frequencies are in Hz everywhere; impedances in ohm (complex).
 """
 
 from chain.smallsignal.corners import corners, response_corners
+from chain.smallsignal.shape import Extremum, ResponseShape, response_shape
 from chain.smallsignal.model import (
     SmallSignalCircuit,
     TriodeSmallSignal,
     linearize,
 )
 from chain.smallsignal.response import Response, gain_at, response, transfer_function
-from chain.smallsignal.table import (
-    CouplingRow,
-    OverallResult,
-    StageRow,
-    coupling_table,
-    db,
-    overall,
-    reference_response,
-    stage_table,
-)
+from chain.smallsignal.table import CouplingRow, OverallResult, StageRow, coupling_table, db, overall, stage_table
 
 __all__ = [
     "SmallSignalCircuit",
@@ -37,12 +29,14 @@ __all__ = [
     "gain_at",
     "corners",
     "response_corners",
+    "Extremum",
+    "ResponseShape",
+    "response_shape",
     "StageRow",
     "CouplingRow",
     "coupling_table",
     "OverallResult",
     "stage_table",
     "overall",
-    "reference_response",
     "db",
 ]

@@ -24,12 +24,15 @@ def corners(
     evaluate: Callable[[float], complex] | None = None,
     ref_hz: float | None = None,
 ) -> tuple[float | None, float | None]:
-    """Lower and upper half-power (−3 dB) frequencies of ``h``.
+    """Outermost lower and upper half-power (−3 dB) band edges of ``h``.
 
     Reference ("mid-band") level: the largest ``|h|`` on the grid, or
-    ``|H(ref_hz)|`` when ``ref_hz`` is given.  Moving away from the
-    reference frequency, the first grid interval on each side where ``|h|``
-    falls below ``reference/√2`` brackets the corner.  The crossing is
+    ``|H(ref_hz)|`` when ``ref_hz`` is given.  The band edges are the
+    *outermost* crossings of ``reference/√2``: the lower edge where ``|h|``
+    first rises to it coming up from the low end of the grid, the upper edge
+    where it last falls below it.  A dip below the −3 dB level between the
+    edges (a tone network's scoop) is a dip, not an edge; see
+    :func:`chain.smallsignal.shape.response_shape`.  The crossing is
     estimated by linear interpolation of dB against log frequency and, when
     ``evaluate`` (the exact, continuous ``H(f)``) is given, refined with
     Brent's method (``scipy.optimize.brentq``) on ``|H(f)| − reference/√2``
@@ -50,20 +53,18 @@ def corners(
     Returns
     -------
     (f_low_hz, f_high_hz)
-        Each ``None`` when ``|h|`` stays above the −3 dB level to that end of
-        the grid (the corner is outside the band).
+        Each ``None`` when ``|h|`` is at or above the −3 dB level at that end
+        of the grid (the edge is outside the band).
     """
     f = np.asarray(f_hz, dtype=float)
     mag = np.abs(np.asarray(h))
     if f.ndim != 1 or f.shape != mag.shape or f.size < 2 or np.any(np.diff(f) <= 0.0):
         raise ValueError("f_hz must be increasing, 1-D, at least two points, and match h")
     if ref_hz is None:
-        i_ref = int(np.argmax(mag))
-        ref = float(mag[i_ref])
+        ref = float(np.max(mag))
     else:
         if not f[0] <= ref_hz <= f[-1]:
             raise ValueError(f"ref_hz={ref_hz!r} is outside the grid")
-        i_ref = int(np.argmin(np.abs(np.log(f / ref_hz))))
         if evaluate is not None:
             ref = abs(complex(evaluate(ref_hz)))
         else:
@@ -72,17 +73,13 @@ def corners(
         return None, None
     target = ref * HALF_POWER
 
-    below = mag < target
-    high = None
-    above_idx = np.nonzero(below[i_ref + 1:])[0]
-    if above_idx.size:
-        j = i_ref + 1 + int(above_idx[0])
-        high = _crossing(f[j - 1], f[j], mag[j - 1], mag[j], target, evaluate)
-    low = None
-    below_idx = np.nonzero(below[:i_ref])[0]
-    if below_idx.size:
-        j = int(below_idx[-1])
-        low = _crossing(f[j], f[j + 1], mag[j], mag[j + 1], target, evaluate)
+    inside = np.nonzero(mag >= target)[0]
+    if inside.size == 0:
+        return None, None
+    first, last = int(inside[0]), int(inside[-1])
+    low = None if first == 0 else _crossing(f[first - 1], f[first], mag[first - 1], mag[first], target, evaluate)
+    high = None if last == f.size - 1 else _crossing(f[last], f[last + 1], mag[last], mag[last + 1], target,
+                                                      evaluate)
     return low, high
 
 

@@ -13,10 +13,11 @@ from chain.dc.result import DcSolution
 from chain.errors import Diagnostic, warning
 from chain.units import format_si
 from chain.smallsignal.corners import response_corners
+from chain.smallsignal.shape import ResponseShape, response_shape
 from chain.smallsignal.response import Response, response
 
 __all__ = ["StageRow", "OverallResult", "CouplingRow", "stage_table", "coupling_table", "overall", "db",
-           "reference_response", "NO_SIGNAL_DB", "no_signal_warnings"]
+           "NO_SIGNAL_DB", "no_signal_warnings"]
 
 #: a stage input this far (dB) below the largest signal before it receives no signal: what
 #: reaches it is numerical leakage (a volume control at 0), and the ratio of its output to
@@ -73,12 +74,14 @@ class OverallResult:
     #: gain at f_ref, V/V (complex) and dB
     gain: complex
     gain_db: float
-    #: half-power corners of the output relative to its level at f_ref, Hz
+    #: outermost half-power band edges of the output relative to its level at f_ref, Hz
     f_low_hz: float | None
     f_high_hz: float | None
     #: load on the source and output impedance at f_ref, ohm (complex)
     zin_ohm: complex
     zout_ohm: complex
+    #: band edges, peaks, dips and shelves (None when f_ref is outside the band)
+    shape: ResponseShape | None = None
 
     @property
     def phase_deg(self) -> float:
@@ -102,25 +105,15 @@ class CouplingRow:
         return math.degrees(np.angle(self.ratio))
 
 
-def reference_response(resp: Response, f_ref_hz: float) -> Response:
-    """The network of ``resp`` solved exactly at ``f_ref_hz`` alone, with every
-    impedance (input, output, per stage): the one solve the stage table, the
-    coupling table and the overall figures share."""
-    return response(resp.ss, [f_ref_hz])
-
-
-def coupling_table(circuit: Circuit, resp: Response, f_ref_hz: float, *,
-                   at: Response | None = None) -> tuple[CouplingRow, ...]:
+def coupling_table(circuit: Circuit, resp: Response, f_ref_hz: float) -> tuple[CouplingRow, ...]:
     """Every coupling's transfer at ``f_ref_hz``, in the order of the netlist.
 
     The ratio of the voltage at the coupling's far end to the voltage at its
     near end, with the whole chain connected (so the load of what follows and
     the source impedance of what drives it are included).  Includes the
-    network into the output, which no stage row shows.  ``at`` is
-    :func:`reference_response` when the caller has it already.
+    network into the output, which no stage row shows.
     """
-    if at is None:
-        at = response(resp.ss, [f_ref_hz], output_impedances=False, stage_impedances=False)
+    at = response(resp.ss, [f_ref_hz], output_impedances=False, stage_impedances=False)
     rows = []
     for name, (frm, to) in circuit.couplings.items():
         ratio = _ratio(at, to, frm)
@@ -129,7 +122,7 @@ def coupling_table(circuit: Circuit, resp: Response, f_ref_hz: float, *,
 
 
 def stage_table(circuit: Circuit, dc: DcSolution, resp: Response, f_ref_hz: float,
-                level_v: float, *, at: Response | None = None) -> tuple[StageRow, ...]:
+                level_v: float) -> tuple[StageRow, ...]:
     """One :class:`StageRow` per stage, in signal order.
 
     Parameters
@@ -144,11 +137,8 @@ def stage_table(circuit: Circuit, dc: DcSolution, resp: Response, f_ref_hz: floa
         Reference frequency, Hz.
     level_v
         Source EMF, peak volts; levels scale linearly from it.
-    at
-        :func:`reference_response` when the caller has it already.
     """
-    if at is None:
-        at = reference_response(resp, f_ref_hz)
+    at = response(resp.ss, [f_ref_hz])
     rows = []
     loudest = 1.0  # the source EMF, per volt of itself
     for st in circuit.stages:
@@ -181,29 +171,30 @@ def no_signal_warnings(rows, f_ref_hz: float, level_v: float) -> tuple[Diagnosti
     return tuple(out)
 
 
-def overall(resp: Response, f_ref_hz: float, *, at: Response | None = None) -> OverallResult:
+def overall(resp: Response, f_ref_hz: float) -> OverallResult:
     """Overall gain, corners and impedances.
 
     ``gain`` is ``H(output)`` at ``f_ref_hz`` (solved exactly).  The corners
-    are the half-power (−3.01 dB) points of ``H(output)`` relative to
-    ``|H(f_ref_hz)|``, the first ones met going down and up from
-    ``f_ref_hz`` (see :func:`chain.smallsignal.corners`); a resonant peak
-    above the reference (a pickup's) is therefore inside the band, not its
-    reference.  ``None`` when outside the analysed band or when ``f_ref_hz``
-    is outside it.  ``at`` is :func:`reference_response` when the caller has
-    it already.
+    are the outermost half-power (−3.01 dB) band edges of ``H(output)``
+    relative to ``|H(f_ref_hz)|`` (see :func:`chain.smallsignal.corners`); a
+    dip between them is a dip (``shape``, :func:`chain.smallsignal.shape.response_shape`),
+    and a resonant peak (a pickup's) is inside the band, not its reference.
+    ``None`` when outside the analysed band or when ``f_ref_hz`` is outside it.
     """
-    if at is None:
-        at = reference_response(resp, f_ref_hz)
+    at = response(resp.ss, [f_ref_hz])
     gain = complex(at.output[0])
     f = resp.f_hz
-    if f.size >= 2 and f[0] <= f_ref_hz <= f[-1]:
+    shape = None
+    if f.size >= 3 and f[0] <= f_ref_hz <= f[-1]:
+        shape = response_shape(resp, f_ref_hz)
+        low, high = shape.f_low_hz, shape.f_high_hz
+    elif f.size >= 2 and f[0] <= f_ref_hz <= f[-1]:
         low, high = response_corners(resp, ref_hz=f_ref_hz)
     else:
         low, high = None, None
     return OverallResult(
         f_ref_hz=float(f_ref_hz), gain=gain, gain_db=db(gain), f_low_hz=low, f_high_hz=high,
-        zin_ohm=complex(at.zin_ohm[0]), zout_ohm=complex(at.zout_ohm[0]),
+        zin_ohm=complex(at.zin_ohm[0]), zout_ohm=complex(at.zout_ohm[0]), shape=shape,
     )
 
 

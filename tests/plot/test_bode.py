@@ -96,3 +96,17 @@ def test_impedance_plot_draws_the_response_impedances(resp):
     assert np.allclose(plot.lines[0].get_ydata(), np.abs(resp.zin_ohm))
     assert np.allclose(plot.lines[1].get_ydata(), np.abs(resp.zout_ohm))
     assert plot.axes.get_ylabel() == "Impedance (Ω)"
+
+
+def test_peaks_and_dips_of_the_analysis_are_marked_at_their_place():
+    from pathlib import Path
+
+    import chain
+
+    a = chain.analyze(Path(__file__).parents[2] / "netlists" / "clean_two_stage.chain", headroom=False)
+    plot = chain.bode(a)
+    shape = a.overall.shape
+    assert len(shape.peaks) == 1  # the pickup's resonance
+    (mark,) = plot.extremum_marks
+    assert_allclose(mark.get_xdata(), [shape.peaks[0].f_hz])
+    assert_allclose(mark.get_ydata(), [shape.peaks[0].gain_db])
