@@ -26,6 +26,19 @@ Two interchangeable ways to solve it:
   way) until its componentwise backward error is at rounding level; if it
   does not get there, the direct solve is used instead.
 * :class:`DirectSolver`: ``numpy.linalg.solve`` on the stack of ``Y(s)``.
+* :class:`SparseSolver`: a sparse LU factorisation of each ``Y(s)``
+  (SuperLU with a fill-reducing column order, through scipy), used in place
+  of the dense stack from :data:`SPARSE_FROM` unknowns on.  A chain of
+  stages gives a nearly banded ``Y``: its factors, and so time and memory,
+  grow linearly with the number of stages, where the dense stack grows as
+  the square (memory) and the cube (time) of it.
+
+Which one runs under ``method="auto"``: the dense solve for at most
+:data:`DIRECT_BELOW` frequencies; else the modal solve up to
+:data:`MODAL_UP_TO` unknowns (past some 16 stages it fails its accuracy
+check and its eigen-decomposition alone costs more than a sparse sweep);
+a fallback, and every larger circuit, uses the direct solve — dense below
+:data:`SPARSE_FROM` unknowns, sparse from there on.
 """
 
 from __future__ import annotations
@@ -45,6 +58,8 @@ __all__ = [
     "assemble",
     "ModalSolver",
     "DirectSolver",
+    "SparseSolver",
+    "direct_solver",
     "solve",
     "solve_entry",
     "backward_error",
@@ -62,6 +77,12 @@ WATCH_TOL = 1e-10
 MAX_REFINE = 4
 #: at most this many frequencies are solved directly under method="auto"
 DIRECT_BELOW = 8
+#: from this many unknowns on, a direct solve factorises each Y(s) as a sparse
+#: matrix instead of stacking dense ones (the crossover measured with
+#: benchmarks/bench_growth.py: below it the batched dense LAPACK call is faster)
+SPARSE_FROM = 64
+#: above this many unknowns the modal solve is not tried under method="auto"
+MODAL_UP_TO = 64
 
 
 @dataclass(frozen=True, slots=True)
@@ -327,6 +348,73 @@ class DirectSolver:
         return xs * self._c
 
 
+class SparseSolver:
+    """A sparse LU factorisation of each equilibrated ``Y(s)`` (SuperLU, COLAMD order).
+
+    The union pattern of ``G`` and ``C`` is found once; each frequency only
+    fills in ``G + s·C`` on it and factorises.  The factors are kept, so
+    refinement steps cost one triangular solve per frequency.  A frequency
+    at which ``Y(s)`` is singular gives NaN, as in :class:`DirectSolver`.
+    """
+
+    name = "sparse"
+
+    def __init__(self, g: np.ndarray, c: np.ndarray, s: np.ndarray):
+        from scipy.sparse import csc_matrix
+        from scipy.sparse.linalg import splu
+
+        n = g.shape[0]
+        w = np.abs(s)
+        s_mid = float(np.sqrt(w.min() * w.max())) if w.size else 1.0
+        cols, rows = np.nonzero((g != 0.0).T | (c != 0.0).T)  # column-major: CSC order
+        self._r, self._c = _equilibrate_entries(rows, cols, np.abs(g[rows, cols]) + s_mid * np.abs(c[rows, cols]), n)
+        scale = self._r[rows] * self._c[cols]
+        gd, cd = g[rows, cols] * scale, c[rows, cols] * scale
+        indptr = np.searchsorted(cols, np.arange(n + 1))
+        self._n = n
+        self._lus = []
+        for sk in s:
+            try:
+                lu = splu(csc_matrix((gd + sk * cd, rows, indptr), shape=(n, n)), permc_spec="COLAMD")
+            except RuntimeError:  # exactly singular at this frequency
+                lu = None
+            self._lus.append(lu)
+
+    def solve(self, b: np.ndarray) -> np.ndarray:
+        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS."""
+        rhs = np.broadcast_to(b * self._r, (len(self._lus), self._n)).astype(complex)
+        xs = np.full((len(self._lus), self._n), np.nan + 0j)
+        for k, lu in enumerate(self._lus):
+            if lu is not None:
+                xs[k] = lu.solve(rhs[k])
+        return xs * self._c
+
+
+def _equilibrate_entries(rows: np.ndarray, cols: np.ndarray, values: np.ndarray, n: int,
+                         sweeps: int = 6) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_equilibrate` on a matrix given by its non-zero entries (same result)."""
+    r = np.ones(n)
+    c = np.ones(n)
+    for _ in range(sweeps):
+        scaled = values * r[rows] * c[cols]
+        rr = np.zeros(n)
+        cc = np.zeros(n)
+        np.maximum.at(rr, rows, scaled)
+        np.maximum.at(cc, cols, scaled)
+        rr = np.sqrt(rr)
+        cc = np.sqrt(cc)
+        rr[rr == 0.0] = 1.0
+        cc[cc == 0.0] = 1.0
+        r /= rr
+        c /= cc
+    return np.exp2(np.round(np.log2(r))), np.exp2(np.round(np.log2(c)))
+
+
+def direct_solver(g: np.ndarray, c: np.ndarray, s: np.ndarray):
+    """The direct solver for this size: dense below :data:`SPARSE_FROM` unknowns, else sparse."""
+    return SparseSolver(g, c, s) if g.shape[0] >= SPARSE_FROM else DirectSolver(g, c, s)
+
+
 def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple[np.ndarray, str]:
     """Solve ``Y(s)·x = b`` at every ``s``; returns ``(x (nf, N), method used)``.
 
@@ -341,8 +429,9 @@ def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple
     if method not in ("auto", "modal", "direct"):
         raise ValueError(f"method must be 'auto', 'modal' or 'direct', not {method!r}")
     check = _Checker(mna, s, b)
-    if method == "direct" or (method == "auto" and s.size <= DIRECT_BELOW):
-        return _refine_all(DirectSolver(mna.g, mna.c, s), check, b, accept=np.inf), "direct"
+    if method == "direct" or (method == "auto" and (s.size <= DIRECT_BELOW or mna.size > MODAL_UP_TO)):
+        solver = direct_solver(mna.g, mna.c, s)
+        return _refine_all(solver, check, b, accept=np.inf), _name(solver)
     try:
         solver = ModalSolver(mna.g, mna.c, s)
     except _Unsuitable:
@@ -355,7 +444,13 @@ def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple
         raise AnalysisError(error(
             "E506", "the modal frequency solve is inaccurate for this circuit",
             hint="use method='direct'"))
-    return _refine_all(DirectSolver(mna.g, mna.c, s), check, b, accept=np.inf), "direct"
+    solver = direct_solver(mna.g, mna.c, s)
+    return _refine_all(solver, check, b, accept=np.inf), _name(solver)
+
+
+def _name(solver) -> str:
+    """The method's name as :class:`Response` records it ("direct" or "direct (sparse)")."""
+    return "direct (sparse)" if isinstance(solver, SparseSolver) else "direct"
 
 
 def solve_entry(mna: Mna, s: np.ndarray, b: np.ndarray, index: int,
@@ -369,7 +464,7 @@ def solve_entry(mna: Mna, s: np.ndarray, b: np.ndarray, index: int,
     """
     if method not in ("auto", "modal", "direct"):
         raise ValueError(f"method must be 'auto', 'modal' or 'direct', not {method!r}")
-    if not (method == "direct" or (method == "auto" and s.size <= DIRECT_BELOW)):
+    if not (method == "direct" or (method == "auto" and (s.size <= DIRECT_BELOW or mna.size > MODAL_UP_TO))):
         try:
             solver = ModalSolver(mna.g, mna.c, s)
         except _Unsuitable:
@@ -382,7 +477,7 @@ def solve_entry(mna: Mna, s: np.ndarray, b: np.ndarray, index: int,
             raise AnalysisError(error(
                 "E506", "the modal frequency solve is inaccurate for this circuit",
                 hint="use method='direct'"))
-    x = _refine_all(DirectSolver(mna.g, mna.c, s), _Checker(mna, s, b), b, accept=np.inf)
+    x = _refine_all(direct_solver(mna.g, mna.c, s), _Checker(mna, s, b), b, accept=np.inf)
     return x[:, index]
 
 
@@ -437,14 +532,27 @@ class _Checker:
         self._abs_s = np.abs(s)[:, None]
         self._b = b
         self._abs_b = np.abs(b)
-        # one GEMM for G·x and C·x together
+        # one product for G·x and C·x together: a dense GEMM, or from SPARSE_FROM
+        # unknowns on a sparse one (its cost linear in the number of parts)
         self._gc = np.hstack([mna.g.T, mna.c.T])
-        self._abs_gc = np.abs(self._gc)
+        if n >= SPARSE_FROM:
+            from scipy.sparse import csr_matrix
+
+            self._gc = csr_matrix(self._gc.T)  # (2N, N): both @ x.T
+            self._abs_gc = abs(self._gc)
+        else:
+            self._abs_gc = np.abs(self._gc)
+
+    def _product(self, m, x: np.ndarray) -> np.ndarray:
+        """``x @ [Gᵀ Cᵀ]`` (nf, 2N) for the dense or the sparse form of ``m``."""
+        if isinstance(m, np.ndarray):
+            return x @ m
+        return (m @ x.T).T
 
     def residual(self, x: np.ndarray) -> np.ndarray:
         """``b − G·x − s·C·x`` for every frequency (nf, N)."""
         n = self._n
-        both = x @ self._gc
+        both = self._product(self._gc, x)
         return self._b - both[:, :n] - both[:, n:] * self._s[:, None]
 
     def __call__(self, x: np.ndarray) -> tuple[np.ndarray, float]:
@@ -453,7 +561,7 @@ class _Checker:
             return np.zeros_like(x), np.inf
         n = self._n
         r = self.residual(x)
-        mags = np.abs(x) @ self._abs_gc
+        mags = self._product(self._abs_gc, np.abs(x))
         scale = mags[:, :n] + mags[:, n:] * self._abs_s + self._abs_b
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.where(scale > 0.0, np.abs(r) / scale, 0.0)

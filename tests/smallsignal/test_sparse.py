@@ -1,0 +1,78 @@
+"""The sparse per-frequency LU (issue 16 item 8) against numpy.linalg.solve of
+the same matrices (the reference library): the same numbers to rounding."""
+
+import numpy as np
+import pytest
+
+from chain.build import build
+from chain.dc import solve
+from chain.language import parse_text
+from chain.smallsignal import linearize, response
+from chain.smallsignal import mna as M
+
+TONE = """network tone: in -> out
+  capacitor treble_c in -- t 390p
+  resistor feed in -- a 47k
+  capacitor bass_c a -- b 47n
+  capacitor mid_c a -- m 22n
+  pot treble cw t wiper out ccw b 250k audio 10% at 6
+  rheostat bass m -- b 500k audio 10% at 5
+  rheostat mid m -- gnd 20k linear at 4
+"""
+
+
+def cascade(n: int) -> str:
+    """n common-cathode 12AX7 stages, each on its own decoupled rail from a stiff supply (no
+    feedback through the supply: a stable cascade), then a tone network."""
+    lines = ['title "cascade"', "supply HT 330V", "input into V1 resistance 10k"]
+    lines += [f"rail R{i} from HT drop 10k decouple 22u" for i in range(1, n + 1)]
+    for i in range(1, n + 1):
+        lines += [f"stage V{i} common-cathode 12AX7", f"  plate 100k from R{i}",
+                  "  cathode 1k5 bypass 22u" if i % 2 else "  cathode 2k7", "  grid leak 1M stopper 33k"]
+    lines.append(TONE)
+    lines += [f"couple V{i} -> V{i + 1} cap 22n" for i in range(1, n)]
+    lines += [f"couple V{n} -> output via tone", "output load 1M", ""]
+    return "\n".join(lines)
+
+
+@pytest.fixture(scope="module")
+def big():
+    circuit = build(parse_text(cascade(12), "c12.chain"))
+    ss = linearize(circuit, solve(circuit))
+    return circuit, ss, M.assemble(ss)
+
+
+def test_the_cascade_is_big_enough_for_the_sparse_path(big):
+    _, _, mna = big
+    assert mna.size >= M.SPARSE_FROM and mna.size > M.MODAL_UP_TO
+
+
+def test_sparse_lu_agrees_with_numpy_dense_solve(big):
+    _, _, mna = big
+    s = 2j * np.pi * np.geomspace(10, 100e3, 40)
+    b = mna.source_rhs()
+    x = M.SparseSolver(mna.g, mna.c, s).solve(b)
+    stack = mna.g[None] + s[:, None, None] * mna.c[None]
+    ref = np.linalg.solve(stack, np.broadcast_to(b, (s.size, b.size))[..., None])[..., 0]
+    assert np.allclose(x, ref, rtol=1e-9, atol=1e-12 * np.abs(ref).max())
+    assert M.backward_error(mna, s, x, b) < 1e-12  # one unrefined solve
+
+
+def test_auto_uses_the_sparse_solve_and_matches_the_dense_one(big):
+    circuit, ss, _ = big
+    f = np.geomspace(20, 20e3, 60)
+    auto = response(ss, f, output_impedances=False, stage_impedances=False)
+    assert auto.method == "direct (sparse)"
+    out = circuit.output_node
+    dense = M.DirectSolver
+    mna = M.assemble(ss)
+    s = 2j * np.pi * f
+    ref = dense(mna.g, mna.c, s).solve(mna.source_rhs())[:, mna.index[ss.node_of[out]]]
+    assert np.allclose(auto.h[out], ref, rtol=1e-9)
+
+
+def test_a_singular_frequency_gives_nan_not_an_error():
+    g = np.array([[1.0, -1.0], [-1.0, 1.0]])  # floating pair: singular at every s with C = 0
+    c = np.zeros((2, 2))
+    x = M.SparseSolver(g, c, np.array([2j * np.pi * 100])).solve(np.array([1.0, 0.0]))
+    assert np.all(np.isnan(x))
