@@ -47,6 +47,7 @@ from enum import Enum
 from types import MappingProxyType
 from typing import Callable, Literal, Mapping, Protocol, Union
 
+from chain.errors import Span
 from chain.tubes import TriodeModel
 
 GROUND = "gnd"
@@ -434,7 +435,7 @@ class Circuit:
     #: the user-facing couplings: label -> (from_node, to_node)
     couplings: Mapping[str, tuple[str, str]] = field(default_factory=dict)
     #: where each element came from in the netlist (element name → Span)
-    origins: Mapping[str, object] = field(default_factory=dict, compare=False, repr=False)
+    origins: Mapping[str, Span] = field(default_factory=dict, compare=False, repr=False)
 
     def __post_init__(self):
         object.__setattr__(self, "couplings", _frozen_map(self.couplings))
@@ -573,7 +574,8 @@ class Circuit:
         earlier = set(names[:names.index(rail)]) if rail in names else set()
         feeds = [s.name for s in self.sources if rail in (s.pos, s.neg)]
         own_feed = {(Owner("rail", rail), Role.RAIL_DROP), (Owner("supply", rail), Role.SUPPLY_IMPEDANCE)}
-        for part in (*self.resistors, *self.inductors):
+        parts: tuple[Resistor | Inductor, ...] = (*self.resistors, *self.inductors)
+        for part in parts:
             if rail in (part.a, part.b):
                 other = part.b if part.a == rail else part.a
                 if (part.owner, part.role) in own_feed or other in earlier:

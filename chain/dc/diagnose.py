@@ -29,7 +29,7 @@ the report layer formats further.
 
 from __future__ import annotations
 
-from chain.circuit import Circuit, Owner, Role, Triode
+from chain.circuit import Circuit, Owner, Resistor, Role, Triode
 from chain.dc.engine import compile_network
 from chain.dc.result import DcSolution, OperatingPoint, SolveOptions
 from chain.errors import Diagnostic, warning
@@ -137,11 +137,11 @@ def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: f
             out.append(warning(
                 "W405", f"{who} plate–cathode voltage {_v(p.vpk_v)} is over the rating of {_v(vp_max)}",
                 hint="lower the rail or raise the plate load", subject=subject))
-        elif cold_vpk is not None and cold_vpk > vp_max and _rating(r, "vp_cold_max_v") is not None:
-            if cold_vpk > r.vp_cold_max_v:
+        elif cold_vpk is not None and cold_vpk > vp_max and (cold_max := _rating(r, "vp_cold_max_v")) is not None:
+            if cold_vpk > cold_max:
                 out.append(warning(
                     "W411", f"{who} plate voltage at cold start (no plate current yet) is {_v(cold_vpk)}, over "
-                    f"the cold (zero-current) rating of {_v(r.vp_cold_max_v)}",
+                    f"the cold (zero-current) rating of {_v(cold_max)}",
                     hint="lower the supply, or delay the high voltage until the heaters are warm",
                     subject=subject))
         elif cold_vpk is not None and cold_vpk > vp_max:
@@ -177,9 +177,10 @@ def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: f
     return out
 
 
-def _grid_leak(circuit: Circuit, tri: Triode):
-    """The grid leak of the stage that holds ``tri`` (the one touching its grid path), or None."""
-    leaks = circuit.parts(owner=Owner("stage", circuit.stage_of_triode(tri.name)), role=Role.GRID_LEAK)
+def _grid_leak(circuit: Circuit, tri: Triode) -> Resistor | None:
+    """The grid leak of the stage that holds ``tri`` (the largest, if several), or None."""
+    own = Owner("stage", circuit.stage_of_triode(tri.name))
+    leaks = [r for r in circuit.resistors if r.owner == own and r.role == Role.GRID_LEAK]
     return max(leaks, key=lambda r: r.ohms) if leaks else None
 
 

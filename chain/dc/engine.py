@@ -49,7 +49,7 @@ Solving
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
-from typing import Mapping
+from typing import Mapping, cast
 
 import numpy as np
 
@@ -328,19 +328,19 @@ class NetworkSystem:
         # the triode's KCL pattern (chain.circuit.TRIODE_KCL) scattered by node index
         f_rows, f_tri, f_ci, f_cg = [], [], [], []
         j_pos, j_tri, j_c = [], [], []
-        for t, triode in enumerate(tri):
+        for k, one in enumerate(tri):
             for pin, ci, cg, cols in TRIODE_KCL:
-                row = self._vindex[triode.pin(pin)]
+                row = self._vindex[one.pin(pin)]
                 if row < 0:
                     continue
-                f_rows.append(row); f_tri.append(t); f_ci.append(ci); f_cg.append(cg)
+                f_rows.append(row); f_tri.append(k); f_ci.append(ci); f_cg.append(cg)
                 merged: dict[int, np.ndarray] = {}
-                for col_pin, coeff in cols:
-                    col = self._vindex[triode.pin(col_pin)]
+                for col_pin, pattern in cols:
+                    col = self._vindex[one.pin(col_pin)]
                     if col >= 0:
-                        merged[col] = merged.get(col, np.zeros(3)) + np.asarray(coeff, dtype=float)
-                for col, coeff in merged.items():
-                    j_pos.append(row * size + col); j_tri.append(t); j_c.append(coeff)
+                        merged[col] = merged.get(col, np.zeros(3)) + np.asarray(pattern, dtype=float)
+                for col, summed in merged.items():
+                    j_pos.append(row * size + col); j_tri.append(k); j_c.append(summed)
         self._f_rows = np.array(f_rows, dtype=np.intp)
         self._f_tri = np.array(f_tri, dtype=np.intp)
         self._f_ci = np.array(f_ci, dtype=float)
@@ -390,7 +390,7 @@ class NetworkSystem:
         vpk = v[self._p] - vk
         vgk = v[self._g] - vk
         if len(self._groups) == 1 or self._stacked is not None:
-            model = self._groups[0][0] if self._stacked is None else self._stacked
+            model = self._groups[0][0] if self._stacked is None else cast(TriodeModel, self._stacked)
             ip, gm, gp = plate_current_and_derivatives(model, vpk, vgk)
             ig, gg = grid_current_and_derivative(model, vgk)
             return (np.asarray(ip, dtype=float), np.asarray(ig, dtype=float), np.asarray(gm, dtype=float),
@@ -413,7 +413,9 @@ class NetworkSystem:
         solve with a unit current injected at a node gives the small-signal
         (DC-coupled, capacitors as in this system) response to that current.
         """
-        return self._residual_jacobian(np.asarray(x, dtype=float), np.zeros(self.size), self._a)[1]
+        jac = self._residual_jacobian(np.asarray(x, dtype=float), np.zeros(self.size), self._a)[1]
+        assert jac is not None
+        return jac
 
     def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: np.ndarray, *,
                            jacobian: bool = True) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
@@ -508,10 +510,11 @@ class NetworkSystem:
         return x, max_iter, False, f
 
     # ---------------------------------------------------------- start guess
-    def _prepare_guess(self) -> None:
-        """Inverse of the linear matrix and each triode's load/bias slopes."""
-        if self._z is not None:
-            return
+    def _prepare_guess(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Inverse of the linear matrix and each triode's load/bias slopes:
+        ``(z, d, dvpk, dvgk)``, computed once."""
+        if self._z is not None and self._d is not None and self._dvpk is not None and self._dvgk is not None:
+            return self._z, self._d, self._dvpk, self._dvgk
         self._z = np.linalg.inv(self._a)
         n, t = self._n, len(self.triode_names)
         zpad = np.zeros((self.size, n + 1))
@@ -523,6 +526,7 @@ class NetworkSystem:
         cols = np.arange(t)
         self._dvpk = dpad[self._p, cols] - dpad[self._k, cols]
         self._dvgk = dpad[self._g, cols] - dpad[self._k, cols]
+        return self._z, self._d, self._dvpk, self._dvgk
 
     def cold_solution(self, signal_v: float = 0.0) -> np.ndarray:
         """The unknown vector with every triode drawing no current (cold tubes), V/A."""
@@ -837,7 +841,8 @@ def _stacked_model(models) -> _StackedModel | None:
         stack = _StackedModel(models)
         vpk = np.linspace(50.0, 300.0, len(models))
         vgk = np.linspace(-3.0, 0.5, len(models))
-        together = (*plate_current_and_derivatives(stack, vpk, vgk), *grid_current_and_derivative(stack, vgk))
+        as_model = cast(TriodeModel, stack)
+        together = (*plate_current_and_derivatives(as_model, vpk, vgk), *grid_current_and_derivative(as_model, vgk))
     except (AttributeError, TypeError, ValueError):
         return None
     for i, model in enumerate(models):

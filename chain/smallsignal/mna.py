@@ -204,6 +204,8 @@ def assemble(ss: SmallSignalCircuit) -> Mna:
     for el in ss.elements:
         el.stamp(st)
     size = len(nodes) + st.inductors + 1
+    if st.source is None:
+        raise ValueError("the small-signal network has no signal source")
     part, pos, neg = st.source
     src = Stamp(part.name, "V", index[pos], index[neg], 1.0, branch=size - 1, owner=part.owner, role=part.role)
     stamps = st.stamps + [src]

@@ -189,7 +189,12 @@ def linearize(circuit: Circuit, dc: DcSolution) -> SmallSignalCircuit:
         ts = _triode_small_signal(t, dc, m)
         triodes.append(ts)
         for el in t.small_signal_elements(gm_s=ts.gm_s, rp_ohm=ts.rp_ohm, node=m):
-            {Resistor: resistors, Capacitor: capacitors, Transconductance: gms}[type(el)].append(el)
+            if isinstance(el, Resistor):
+                resistors.append(el)
+            elif isinstance(el, Capacitor):
+                capacitors.append(el)
+            elif isinstance(el, Transconductance):
+                gms.append(el)
 
     source = replace(signal, pos=m(signal.pos), neg=m(signal.neg), volts=1.0)
     if source.pos == source.neg:
@@ -311,7 +316,8 @@ def _triode_small_signal(t, dc: DcSolution, m) -> TriodeSmallSignal:
 
 def _check_grounded(ss: SmallSignalCircuit) -> None:
     """Every node needs a path to ground through some part (at some frequency)."""
-    edges = [(part.a, part.b) for part in (*ss.resistors, *ss.capacitors, *ss.inductors)]
+    parts: tuple[Resistor | Capacitor | Inductor, ...] = (*ss.resistors, *ss.capacitors, *ss.inductors)
+    edges = [(part.a, part.b) for part in parts]
     edges.append((ss.source.pos, ss.source.neg))
     grounded = next(set(c) for c in components((GROUND,) + ss.nodes, edges) if GROUND in c)
     floating = sorted(set(ss.nodes) - grounded)
