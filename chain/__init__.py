@@ -51,4 +51,5 @@ def bode(analysis, *, nodes=None, ax=None):
     shape = analysis.overall.shape
     extrema = () if shape is None else tuple(sorted(shape.peaks + shape.dips, key=lambda e: e.f_hz))
     return _bode(analysis.freq, nodes=nodes, corners=(analysis.overall.f_low_hz, analysis.overall.f_high_hz),
-                 extrema=extrema, ax=ax, title=analysis.design.title)
+                 extrema=extrema, ax=ax, title=analysis.design.title,
+                 unstable=analysis.unstable_note())

@@ -58,10 +58,29 @@ class Analysis:
     netlist_sha256: str
     options: SolveOptions
     version: str = __version__
+    #: poles, zeros, unstable poles and feedback loop gains
+    #: (:class:`chain.smallsignal.stability.Stability`), or None when not computed
+    stability: object | None = None
+
+    @property
+    def unstable(self) -> bool:
+        """True when the linearised chain has a pole in the right half-plane."""
+        return self.stability is not None and not self.stability.stable
 
     def response(self) -> Response:
         """The frequency response (see :class:`chain.smallsignal.Response`)."""
         return self.freq
+
+    def unstable_note(self) -> str:
+        """One plain sentence for a plot of an unstable circuit ("" when stable)."""
+        if not self.unstable:
+            return ""
+        from chain.units import format_si
+
+        freqs = ", ".join(format_si(p.oscillation_hz, "Hz") if p.oscillation_hz else "0 Hz (runs away)"
+                          for p in self.stability.unstable)
+        return (f"UNSTABLE: oscillates at about {freqs}.\n"
+                "This small-signal response is not what the circuit will do.")
 
 
 def sweep_frequencies(design: Design) -> np.ndarray:
@@ -110,6 +129,9 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
     rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v)
     links = coupling_table(circuit, freq, s.reference_hz)
     total = overall(freq, s.reference_hz)
+    from chain.smallsignal.stability import stability as check_stability
+
+    dynamics = check_stability(ss, ref_hz=s.reference_hz, band_hz=(s.band_low_hz, s.band_high_hz))
     large = None
     if headroom:
         from chain.headroom import headroom as run_headroom
@@ -125,9 +147,11 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
         design=design, circuit=circuit, dc=dc, freq=freq, stages=rows, couplings=links, overall=total,
         headroom=large,
         diagnostics=tuple(warnings) + locate(dc.diagnostics, circuit, design)
-        + locate(no_signal_warnings(rows, s.reference_hz, s.level_v), circuit, design),
+        + locate(no_signal_warnings(rows, s.reference_hz, s.level_v), circuit, design)
+        + locate(dynamics.diagnostics, circuit, design),
         netlist_sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
         options=options,
+        stability=dynamics,
     )
 
 

@@ -2,7 +2,10 @@
 
 Exit status: 0 success; 1 ``diff``/``compare`` found differences beyond the
 tolerance; 2 bad input (a message naming file, line and column); 3 an
-internal error (a bug in chain: the message says so).
+internal error (a bug in chain: the message says so); 4 the analysis ran
+but the circuit is unstable (a pole in the right half-plane: it will
+oscillate; error E801 says where) — for ``diff``/``compare`` when any
+voicing is, in place of 0 or 1.
 
 Heavy modules (matplotlib, lcapy, sympy) are imported inside the commands
 that use them, so ``chain check`` starts fast.
@@ -171,6 +174,29 @@ def _print_diagnostics(diagnostics: Sequence[Diagnostic]) -> None:
         print(f"{len(errors)} errors", file=sys.stderr)
 
 
+#: exit status of a command whose circuit (or any of whose voicings) is unstable
+EXIT_UNSTABLE = 4
+
+
+def _unstable_status(analyses, *, echo: bool = True) -> int | None:
+    """:data:`EXIT_UNSTABLE` when any analysis has a right-half-plane pole; with
+    ``echo`` its E801 diagnostics go to standard error."""
+    bad = []
+    for a in analyses:
+        if isinstance(a, dict):  # a JSON report read back
+            if (a.get("stability") or {}).get("stable") is False:
+                bad.append(a)
+                if echo:
+                    for d in a.get("diagnostics", ()):
+                        if d.get("code") == "E801":
+                            print(f"{a['netlist']['path']}: error E801: {d['message']}", file=sys.stderr)
+        elif getattr(a, "unstable", False):
+            bad.append(a)
+            if echo:
+                _print_diagnostics([d for d in a.diagnostics if d.code == "E801"])
+    return EXIT_UNSTABLE if bad else None
+
+
 def _inputs(args) -> list[str]:
     """The files a command reads (never to be overwritten by its output)."""
     found = [getattr(args, "file", None), getattr(args, "a", None), getattr(args, "b", None)]
@@ -238,10 +264,24 @@ def _cmd_bias(args) -> int:
     print(bias_table(design, circuit, dc))
     for w in warnings:
         print(w.render())
+    unstable = _bias_stability(design, circuit, dc)
+    for d in unstable:
+        print(d.render())
     if plot_path:
         for path in _bias_plots(circuit, dc, plot_path):
             print(f"wrote {path}")
-    return 0
+    return EXIT_UNSTABLE if unstable else 0
+
+
+def _bias_stability(design, circuit, dc):
+    """E801 diagnostics of the circuit linearised at this operating point."""
+    from chain.analysis import locate
+    from chain.smallsignal import linearize
+    from chain.smallsignal.stability import stability
+
+    s = design.settings
+    st = stability(linearize(circuit, dc), ref_hz=s.reference_hz, band_hz=(s.band_low_hz, s.band_high_hz))
+    return [d for d in locate(st.diagnostics, circuit, design) if d.code == "E801"]
 
 
 def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
@@ -302,7 +342,7 @@ def _cmd_plot(args) -> int:
     for name, figure in figures:
         _save_figure(figure, name)
         print(f"wrote {name}")
-    return 0
+    return _unstable_status([analysis]) or 0
 
 
 def _emit(text: str, output: str | None) -> None:
@@ -328,7 +368,8 @@ def _cmd_report(args) -> int:
     if figure is not None:
         _save_figure(figure, plot_path)
         print(f"wrote {plot_path}")
-    return 0
+    # the report itself says it; echo to standard error only when it went to a file
+    return _unstable_status([analysis], echo=bool(args.output)) or 0
 
 
 def _cmd_diff(args) -> int:
@@ -344,7 +385,7 @@ def _cmd_diff(args) -> int:
         plot = overlay([a, b], [Path(args.a).stem, Path(args.b).stem])
         _save_figure(plot.figure, plot_path)
         print(f"wrote {plot_path}")
-    return 1 if result.differs else 0
+    return _unstable_status([a, b]) or (1 if result.differs else 0)
 
 
 def _varied(path: str, spec: str):
@@ -399,7 +440,7 @@ def _cmd_compare(args) -> int:
         plot = overlay(voicings, labels, diff_panel=len(voicings) == 2)
         _save_figure(plot.figure, plot_path)
         print(f"wrote {plot_path}")
-    return 1 if result.differs else 0
+    return _unstable_status(voicings) or (1 if result.differs else 0)
 
 
 def _cmd_headroom(args) -> int:
@@ -435,7 +476,7 @@ def _cmd_headroom(args) -> int:
         for path, figure in figures:
             _save_figure(figure, str(path))
             print(f"wrote {path}")
-    return 0
+    return _unstable_status([analysis]) or 0
 
 
 def _cmd_formulas(args) -> int:

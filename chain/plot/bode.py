@@ -43,7 +43,8 @@ class BodePlot:
 
 def bode(response, *, nodes: Sequence[str] | None = None,
          corners: tuple[float | None, float | None] | None = None,
-         extrema: Sequence = (), ax=None, title: str = "") -> BodePlot:
+         extrema: Sequence = (), ax=None, title: str = "",
+         unstable: str = "") -> BodePlot:
     """Draw magnitude (dB) and phase (degrees) against log frequency (Hz).
 
     Parameters
@@ -64,6 +65,11 @@ def bode(response, *, nodes: Sequence[str] | None = None,
         default a new two-panel :class:`~matplotlib.figure.Figure`.
     title
         Figure title.
+    unstable
+        When not empty, the circuit is unstable: this text is written across
+        the magnitude panel in a red box, the traces are drawn faded and the
+        panels get a red frame, so that nobody reads the curve as the
+        circuit's response.
 
     Returns
     -------
@@ -123,7 +129,25 @@ def bode(response, *, nodes: Sequence[str] | None = None,
     mag_ax.legend(loc="best", fontsize=8, frameon=False)
     if title:
         mag_ax.set_title(title, fontsize=11, loc="left")
+    if unstable:
+        _mark_unstable(mag_ax, ph_ax, unstable, (*mag_lines, *ph_lines))
     return BodePlot(fig, (mag_ax, ph_ax), tuple(mag_lines), tuple(ph_lines), wanted, tuple(marks), tuple(points))
+
+
+#: colour of the instability marking
+UNSTABLE_COLOUR = "#c1121f"
+
+
+def _mark_unstable(mag_ax, ph_ax, text: str, lines) -> None:
+    for line in lines:
+        line.set_alpha(0.35)
+    for a in (mag_ax, ph_ax):
+        for side in a.spines.values():
+            side.set_edgecolor(UNSTABLE_COLOUR)
+            side.set_linewidth(2.0)
+    mag_ax.text(0.5, 0.5, text, transform=mag_ax.transAxes, ha="center", va="center", fontsize=10,
+                fontweight="bold", color=UNSTABLE_COLOUR, wrap=True, zorder=10,
+                bbox=dict(boxstyle="round,pad=0.5", facecolor="white", edgecolor=UNSTABLE_COLOUR, alpha=0.92))
 
 
 def _labels(circuit, nodes: Sequence[str]) -> list[str]:

@@ -21,7 +21,7 @@ __all__ = ["SECTIONS", "Renderer", "check_sections", "clipped_stages", "spot_fre
 #: every section, in report order: what a technician reads first (the stage
 #: table, the whole chain, the response, headroom, diagnostics), then the
 #: details, then the analysis settings and the parts list
-SECTIONS = ("header", "safety", "stages", "overall", "response", "headroom", "diagnostics", "stage_details",
+SECTIONS = ("header", "safety", "stages", "overall", "response", "stability", "headroom", "diagnostics", "stage_details",
             "rails", "capacitors", "settings", "parts")
 
 
@@ -93,6 +93,9 @@ class Renderer:
 
     def headroom(self, data: dict[str, Any]) -> list[str]:
         raise NotImplementedError
+
+    def stability(self, data: dict[str, Any]) -> list[str]:
+        return []
 
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         raise NotImplementedError

@@ -280,10 +280,11 @@ def report_data(analysis) -> dict[str, Any]:
         Keys, in order: ``schema``, ``tool``, ``netlist``, ``settings``,
         ``solve_options``, ``dc_solve``, ``safety``, ``parts``,
         ``operating_points``, ``rails``, ``capacitors``, ``stages``,
-        ``couplings``, ``overall``, ``response``, ``headroom``, ``diagnostics``; see
+        ``couplings``, ``overall``, ``response``, ``headroom``, ``diagnostics``, ``stability``; see
         ``docs/report-format.md``.  Only plain ``dict``, ``list``, ``str``,
         ``int``, ``float``, ``bool`` and ``None`` values.
     """
+    from chain.report.dynamics import stability_data
     from chain.report.headroom import headroom_data
 
     design = analysis.design
@@ -306,4 +307,5 @@ def report_data(analysis) -> dict[str, Any]:
         "response": _response(analysis, f, mag_db, phase),
         "headroom": headroom_data(analysis.headroom),
         "diagnostics": _diagnostics(analysis.diagnostics),
+        "stability": stability_data(analysis.stability),
     }

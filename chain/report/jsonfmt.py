@@ -22,6 +22,7 @@ SECTION_KEYS = {
     "stages": ("stages", "couplings"),
     "overall": ("overall",),
     "response": ("response",),
+    "stability": ("stability",),
     "headroom": ("headroom",),
     "diagnostics": ("diagnostics",),
     "stage_details": ("operating_points",),
@@ -78,6 +79,9 @@ class JsonRenderer:
 
     def response(self, data):
         return self._pick(data, "response")
+
+    def stability(self, data):
+        return {"stability": data["stability"]} if "stability" in data else {}
 
     def rails(self, data):
         return self._pick(data, "rails")

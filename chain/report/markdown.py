@@ -10,6 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from chain.report import fmt
+from chain.report.dynamics import unstable_banner
 from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, shape_lines, spot_response
 
 __all__ = ["MarkdownRenderer"]
@@ -46,7 +47,7 @@ class MarkdownRenderer(Renderer):
             ["netlist sha256", f"`{n['sha256']}`"],
             ["chain version", data["tool"]["version"]],
             ["report format", data["schema"]],
-        ])
+        ]) + [f"\n**{x}**" for x in unstable_banner(data)]
 
     def safety(self, data: dict[str, Any]) -> list[str]:
         return [f"> **{data['safety']}**"]
@@ -161,6 +162,11 @@ class MarkdownRenderer(Renderer):
         if data["headroom"] is None:
             return []
         return ["## Headroom", ""] + markdown_lines(data["headroom"])
+
+    def stability(self, data: dict[str, Any]) -> list[str]:
+        from chain.report.dynamics import stability_markdown
+
+        return stability_markdown(data)
 
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         if not data["diagnostics"]:

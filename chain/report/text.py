@@ -18,6 +18,7 @@ from __future__ import annotations
 from typing import Any
 
 from chain.report import fmt
+from chain.report.dynamics import unstable_banner
 from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, shape_lines, spot_response
 
 __all__ = ["TextRenderer"]
@@ -74,7 +75,7 @@ class TextRenderer(Renderer):
             _kv("netlist sha256", n["sha256"]),
             _kv("chain version", data["tool"]["version"]),
             _kv("report format", data["schema"]),
-        ]
+        ] + unstable_banner(data)
 
     def safety(self, data: dict[str, Any]) -> list[str]:
         return [data["safety"]]
@@ -244,6 +245,11 @@ class TextRenderer(Renderer):
         if h is None:
             return []
         return _title("Headroom") + text_lines(h, _kv)
+
+    def stability(self, data: dict[str, Any]) -> list[str]:
+        from chain.report.dynamics import stability_text
+
+        return stability_text(data)
 
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         lines = _title("Diagnostics")

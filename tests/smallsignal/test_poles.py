@@ -1,0 +1,157 @@
+"""Poles, zeros and pole sensitivities of the whole chain (chain.smallsignal.poles)."""
+
+from __future__ import annotations
+
+import functools
+import math
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from chain.circuit import GROUND
+from chain.smallsignal import linearize, response
+from chain.smallsignal.mna import Mna, Stamp, _matrices, assemble
+from chain.smallsignal.poles import pencil_eigen, pole_zero, poles
+from ss_circuits import Net, dc_of
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMOS = sorted((ROOT / "netlists").glob("*.chain"))
+
+
+@functools.lru_cache(maxsize=None)
+def demo_ss(path):
+    from chain.build import load
+    from chain.dc import solve
+
+    _, circuit, _ = load(path)
+    return linearize(circuit, solve(circuit))
+
+
+def _passive(build):
+    net = Net()
+    net.signal("src")
+    build(net)
+    return linearize(net.circuit("src", "out"), dc_of())
+
+
+def test_single_rc_section_pole():
+    """First-order RC low-pass: one pole at s = −1/(RC) (any circuit-theory text)."""
+    r, c = 4.7e3, 22e-9
+    ss = _passive(lambda n: (n.r("R", "src", "out", r), n.c("C", "out", GROUND, c)))
+    (p,) = poles(ss)
+    assert_allclose(p.s_hz, -1.0 / (2 * math.pi * r * c), rtol=1e-10)
+    assert p.q is None and not p.unstable
+    # one pole, one part each: its normalised sensitivity to R and to C is −1
+    sens = dict(p.dominant)
+    assert_allclose([sens["R"], sens["C"]], [-1.0, -1.0], rtol=1e-9)
+
+
+def test_series_rlc_poles_and_q():
+    """Series RLC driven by a source: s² + (R/L)s + 1/(LC) = 0, Q = √(L/C)/R
+    (standard second-order section, any circuit-theory text)."""
+    r, l, c = 220.0, 0.5, 100e-9
+    ss = _passive(lambda n: (n.r("R", "src", "a", r), n.l("L", "a", "out", l), n.c("C", "out", GROUND, c)))
+    ps = poles(ss)
+    assert len(ps) == 2
+    w0, alpha = 1.0 / math.sqrt(l * c), r / (2 * l)
+    expected = complex(-alpha, math.sqrt(w0 ** 2 - alpha ** 2)) / (2 * math.pi)
+    got = sorted((p.s_hz for p in ps), key=lambda z: z.imag)
+    assert_allclose(got, [expected.conjugate(), expected], rtol=1e-10)
+    assert_allclose(ps[0].q, math.sqrt(l / c) / r, rtol=1e-10)
+    assert_allclose(ps[0].f_hz, w0 / (2 * math.pi), rtol=1e-10)
+
+
+def _phase_shift_oscillator(gain: float, r: float = 10e3, c: float = 10e-9) -> Mna:
+    """An ideal inverting amplifier (a transconductance into 1 Ω) closing a
+    three-section high-pass RC ladder (series C, shunt R) back to its input."""
+    names = ["amp", "a", "b", "x", "src"]
+    ix = {n: i for i, n in enumerate(names)}
+    n = len(names)
+    ro = 1.0
+    stamps = [
+        Stamp("Ro", "R", ix["amp"], -1, 1.0 / ro),
+        Stamp("A", "G", ix["amp"], -1, gain / ro, cp=ix["x"], cn=-1),  # v_amp = −gain·v_x
+        Stamp("C1", "C", ix["amp"], ix["a"], c), Stamp("R1", "R", ix["a"], -1, 1.0 / r),
+        Stamp("C2", "C", ix["a"], ix["b"], c), Stamp("R2", "R", ix["b"], -1, 1.0 / r),
+        Stamp("C3", "C", ix["b"], ix["x"], c), Stamp("R3", "R", ix["x"], -1, 1.0 / r),
+        Stamp("Rs", "R", ix["src"], -1, 1e-3),
+    ]
+    src = Stamp("sig", "V", ix["src"], -1, 1.0, branch=n)
+    stamps.append(src)
+    g, cm = _matrices(n + 1, stamps)
+    index = dict(ix)
+    index[GROUND] = -1
+    return Mna(tuple(names), index, g, cm, tuple(stamps), src)
+
+
+@pytest.mark.parametrize("margin, unstable", [(1.05, True), (0.95, False)])
+def test_rc_phase_shift_oscillator(margin, unstable):
+    """Three equal high-pass RC sections turn the phase by 180° at
+    f = 1/(2π·√6·RC), where they pass 1/29: an inverting gain above 29
+    oscillates there, below 29 it does not (the RC phase-shift oscillator of
+    the standard electronics texts, e.g. from memory of Millman & Halkias,
+    "Integrated Electronics", §17)."""
+    r, c = 10e3, 10e-9
+    s = pencil_eigen(_phase_shift_oscillator(29.0 * margin, r, c))
+    rhp = s[s.real > 0]
+    assert bool(rhp.size) is unstable
+    f0 = 1.0 / (2 * math.pi * math.sqrt(6) * r * c)
+    # the pair nearest the axis rings at the phase-shift frequency
+    near = s[np.argmin(np.abs(s.real) / np.abs(s))]
+    # (a gain 5 % off 29 moves it by about 2 %)
+    assert abs(abs(near.imag) / (2 * math.pi) / f0 - 1.0) < 0.05
+
+
+def test_phase_shift_oscillator_at_exactly_29_sits_on_the_axis():
+    r, c = 10e3, 10e-9
+    s = pencil_eigen(_phase_shift_oscillator(29.0, r, c))
+    near = s[np.argmin(np.abs(s.real) / np.abs(s))]
+    f0 = 1.0 / (2 * math.pi * math.sqrt(6) * r * c)
+    # the 1 Ω amplifier output resistance is the only departure from the ideal
+    assert abs(near.real) < 1e-3 * abs(near)
+    assert_allclose(abs(near.imag) / (2 * math.pi), f0, rtol=1e-3)
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
+def test_pole_zero_form_equals_the_nodal_sweep(path):
+    """H(s) from poles, zeros and one value equals the nodal solve on the jω axis to 1e-9."""
+    ss = demo_ss(path)
+    pz = pole_zero(ss)
+    f = np.geomspace(1.0, 200e3, 120)
+    h = response(ss, f, stage_impedances=False).h[ss.output_node]
+    assert np.max(np.abs(pz(f) - h) / np.abs(h)) < 1e-9
+    # poles of the transfer are among the circuit's natural frequencies
+    assert len(pz.poles_hz) <= len(poles(ss, parts=0))
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
+def test_every_shipped_demo_is_stable(path):
+    ps = poles(demo_ss(path), parts=0)
+    assert ps and not any(p.unstable for p in ps)
+
+
+def test_pole_sensitivities_match_finite_differences():
+    """d ln p / d ln x from the eigenvectors against a central difference of the
+    recomputed poles (relative step 1e-6)."""
+    ss = demo_ss(ROOT / "netlists" / "clean_two_stage.chain")
+    base = poles(ss, parts=40)
+    mna = assemble(ss)
+    checked = 0
+    for p in base[:6]:
+        for name, sens in p.dominant[:3]:
+            h = 1e-6
+            shifted = []
+            for sign in (1.0, -1.0):
+                st = next(x for x in mna.stamps if x.name == name)
+                factor = (1.0 + sign * h) ** (-1.0 if st.kind == "R" else 1.0)
+                stamps = tuple(replace(x, value=x.value * factor) if x.name == name else x for x in mna.stamps)
+                g, c = _matrices(mna.size, stamps)
+                s = pencil_eigen(Mna(mna.nodes, mna.index, g, c, stamps, mna.source)) / (2 * math.pi)
+                shifted.append(s[np.argmin(np.abs(s - p.s_hz))])
+            fd = (np.log(shifted[0]) - np.log(shifted[1])) / (np.log1p(h) - np.log1p(-h))
+            assert abs(fd - sens) <= 1e-4 * max(abs(sens), 1e-2), (name, p.s_hz, fd, sens)
+            checked += 1
+    assert checked >= 12

@@ -1,0 +1,143 @@
+"""Stability: the unstable demo netlists are flagged with the right frequency
+and loop; feedback-network loop gains and margins."""
+
+from __future__ import annotations
+
+import functools
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from chain.smallsignal import linearize, response
+from chain.smallsignal.mna import assemble
+from chain.smallsignal.stability import feedback_networks, loop_gain, stability
+
+ROOT = Path(__file__).resolve().parents[2]
+UNSTABLE = ROOT / "netlists" / "unstable"
+
+
+@functools.lru_cache(maxsize=None)
+def demo(path):
+    from chain.build import load
+    from chain.dc import solve
+
+    design, circuit, _ = load(path)
+    ss = linearize(circuit, solve(circuit))
+    s = design.settings
+    return ss, stability(ss, ref_hz=s.reference_hz, band_hz=(s.band_low_hz, s.band_high_hz))
+
+
+def ringing_hz(ss, node: str, period_s: float) -> float:
+    """Frequency of the growing oscillation at ``node`` from a time-domain run.
+
+    An independent check on the eigenvalues: the linear network
+    ``C·x' + G·x = b(t)`` is integrated with backward Euler (step 1/400 of
+    ``period_s``) after a one-step kick of the source; once the fastest
+    growing mode dominates, the mean spacing of the last zero crossings is
+    half its period.  (Backward Euler turns a mode e^{jωt} by atan(ωh) per
+    step: the frequency error is (ωh)²/3, here 8e-5.)
+    """
+    mna = assemble(ss)
+    h = period_s / 400.0
+    a = mna.c / h + mna.g
+    lu = __import__("scipy.linalg", fromlist=["lu_factor"]).lu_factor(a)
+    from scipy.linalg import lu_solve
+
+    x = lu_solve(lu, mna.source_rhs())
+    k = mna.index[ss.node_of[node]]
+    ys = []
+    for _ in range(400 * 60):
+        x = lu_solve(lu, mna.c @ x / h)
+        if not np.all(np.isfinite(x)):
+            break
+        m = np.max(np.abs(x))
+        if m > 1e100:
+            x = x / m  # linear: rescaling keeps the crossings
+            ys = [y / m for y in ys]
+        ys.append(x[k])
+    y = np.array(ys)
+    crossings = np.nonzero(np.diff(np.sign(y)) != 0)[0]
+    last = crossings[-21:]
+    half = np.mean(np.diff(last)) * h
+    return 1.0 / (2.0 * half)
+
+
+@pytest.mark.parametrize("name, band, loop_kind", [
+    ("squeal_four_stage.chain", (20e3, 1e6), "network"),
+    ("motorboat_shared_rail.chain", (0.5, 20.0), "rail"),
+])
+def test_unstable_demos_are_flagged_and_ring_at_the_pole(name, band, loop_kind):
+    ss, st = demo(UNSTABLE / name)
+    assert not st.stable
+    assert any(d.code == "E801" and d.severity == "error" for d in st.diagnostics)
+    fastest = max(st.unstable, key=lambda p: p.s_hz.real)
+    f_pole = fastest.oscillation_hz
+    assert band[0] < f_pole < band[1]
+    f_time = ringing_hz(ss, ss.output_node, 1.0 / f_pole)
+    assert abs(f_time / f_pole - 1.0) < 0.05
+    k = st.unstable.index(fastest)
+    assert st.culprits[k] and all(c.kind == loop_kind for c in st.culprits[k])
+
+
+def test_squeal_names_its_feedback_network_and_the_oscillation():
+    _, st = demo(UNSTABLE / "squeal_four_stage.chain")
+    hf = [d for d in st.diagnostics if d.code == "E801" and "kHz" in d.message]
+    assert hf and "feedback network 'presence'" in hf[0].message
+    assert "not what the circuit will do" in hf[0].message
+    assert hf[0].subject == "presence.fb"
+
+
+def test_motorboat_names_the_shared_rails():
+    _, st = demo(UNSTABLE / "motorboat_shared_rail.chain")
+    (d,) = [d for d in st.diagnostics if d.code == "E801"]
+    assert "motorboating" in d.message and "rail" in d.message
+
+
+@pytest.mark.parametrize("path", sorted((ROOT / "netlists").glob("*.chain")), ids=lambda p: p.stem)
+def test_shipped_demos_have_no_stability_errors(path):
+    _, st = demo(path)
+    assert st.stable and not [d for d in st.diagnostics if d.code == "E801"]
+
+
+def test_feedback_demo_loop_gain_is_negative_feedback_below_one():
+    """The bass demo's 2M2 + 22n feedback network around two stages: negative
+    feedback with |T| < 1 everywhere, so no crossover and nothing to warn about."""
+    ss, st = demo(ROOT / "netlists" / "bass_two_rail.chain")
+    (lg,) = st.loops
+    assert lg.path.name == "feedback" and lg.node == "V2.plate"
+    assert lg.negative and np.max(np.abs(lg.t)) < 1.0
+    assert lg.phase_margin_deg is None
+    assert not [d for d in st.diagnostics if d.code == "W801"]
+
+
+def test_closed_loop_gain_is_open_loop_over_one_plus_loop_gain():
+    """Feedback theory: with the network's drive cut (open loop, gain A) and
+    the return ratio T = Aβ of that cut, the closed loop gives
+    A/(1 + Aβ) plus the small direct path through the passive network
+    (standard feedback theory; the asymptotic-gain form of it is from memory
+    of S. Rosenstark, "Feedback Amplifier Principles", 1986).  On the bass
+    demo the direct path is negligible at mid-band, so A/(1+T) must match the
+    full solve to 1 %."""
+    ss, st = demo(ROOT / "netlists" / "bass_two_rail.chain")
+    (path,) = feedback_networks(ss.circuit)
+    f = np.array([100.0, 200.0, 1e3, 3e3])
+    lg = loop_gain(ss, path, f)
+    closed = response(ss, f, stage_impedances=False).h[ss.output_node]
+    # open loop: the same cut (the network still loads V2's plate but is not driven by it)
+    mna = assemble(ss)
+    from chain.smallsignal.mna import DirectSolver
+
+    k = mna.index["V2.plate"]
+    g0, c0 = mna.g.copy(), mna.c.copy()
+    for st_ in mna.stamps:
+        if st_.name in path.parts and st_.touches(k):
+            m = st_.b if st_.a == k else st_.a
+            (g0 if st_.kind == "R" else c0)[m, k] += st_.value
+    x = DirectSolver(g0, c0, 2j * math.pi * f).solve(mna.source_rhs())
+    a_open = x[:, mna.index[ss.node_of[ss.output_node]]]
+    assert_allclose(closed, a_open / (1.0 + lg.t), rtol=1e-2)
+    # and the feedback is worth its name: it takes 3 dB or more
+    assert np.all(np.abs(closed) < np.abs(a_open) / 1.4)

@@ -1,0 +1,53 @@
+"""Every analysing command says when the circuit is unstable, and exits 4."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from chain.cli import EXIT_UNSTABLE, main
+
+ROOT = Path(__file__).resolve().parents[1]
+SQUEAL = str(ROOT / "netlists" / "unstable" / "squeal_four_stage.chain")
+MOTORBOAT = str(ROOT / "netlists" / "unstable" / "motorboat_shared_rail.chain")
+STABLE = str(ROOT / "netlists" / "clean_two_stage.chain")
+
+
+def test_report_marks_an_unstable_circuit_and_exits_4(capsys):
+    assert main(["report", SQUEAL, "--no-headroom"]) == EXIT_UNSTABLE == 4
+    out = capsys.readouterr().out
+    assert out.splitlines()[6].startswith("UNSTABLE: this circuit oscillates")
+    assert "error E801" in out and "! 198.7 kHz + j248.9 kHz" in out
+
+
+def test_bias_reports_instability(capsys):
+    assert main(["bias", MOTORBOAT]) == EXIT_UNSTABLE
+    out = capsys.readouterr().out
+    assert "error E801" in out and "motorboating" in out
+
+
+def test_plot_marks_the_figure_and_exits_4(tmp_path, capsys):
+    path = tmp_path / "sq.png"
+    assert main(["plot", SQUEAL, "-o", str(path)]) == EXIT_UNSTABLE
+    assert path.exists()
+    assert "E801" in capsys.readouterr().err
+
+
+def test_diff_and_compare_exit_4_when_a_voicing_is_unstable(capsys):
+    assert main(["diff", STABLE, SQUEAL]) == EXIT_UNSTABLE
+    assert main(["compare", STABLE, MOTORBOAT]) == EXIT_UNSTABLE
+
+
+def test_stable_demo_keeps_exit_0(capsys):
+    assert main(["report", STABLE, "--no-headroom"]) == 0
+    assert "stable: no pole in the right half-plane" in capsys.readouterr().out
+
+
+def test_plot_of_an_unstable_circuit_says_so_on_the_figure():
+    from chain import analyze, bode
+
+    texts = [t.get_text() for t in bode(analyze(SQUEAL, headroom=False)).axes[0].texts]
+    assert any(t.startswith("UNSTABLE: oscillates at about") for t in texts)
+    stable = [t.get_text() for t in bode(analyze(STABLE, headroom=False)).axes[0].texts]
+    assert not any(t.startswith("UNSTABLE") for t in stable)
