@@ -31,6 +31,7 @@ from chain.smallsignal import (
     response,
     stage_table,
 )
+from chain.smallsignal.mna import check_size
 from chain.smallsignal.table import no_signal_warnings
 
 __all__ = ["Analysis", "analyze", "analyze_design", "sweep_frequencies"]
@@ -121,6 +122,7 @@ def locate(diagnostics, circuit: Circuit, design: Design) -> tuple[Diagnostic, .
 
 def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool,
                    options: SolveOptions) -> Analysis:
+    check_size(circuit, len(sweep_frequencies(design)))
     dc = solve(circuit, options)
     ss = linearize(circuit, dc)
     # per-stage impedances are tabulated at the reference frequency only

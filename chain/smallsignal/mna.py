@@ -60,6 +60,8 @@ __all__ = [
     "DirectSolver",
     "SparseSolver",
     "direct_solver",
+    "memory_estimate",
+    "check_size",
     "solve",
     "solve_entry",
     "backward_error",
@@ -83,6 +85,52 @@ DIRECT_BELOW = 8
 SPARSE_FROM = 64
 #: above this many unknowns the modal solve is not tried under method="auto"
 MODAL_UP_TO = 64
+#: the sparse solver keeps its factors for at most this many frequency × unknown pairs
+KEEP_FACTORS = 2_000_000
+#: bytes per frequency and unknown held during a sweep (solution, residuals,
+#: refinement, the per-node transfers and the impedances: complex numbers,
+#: counted from the arrays the response keeps and makes)
+BYTES_PER_POINT_UNKNOWN = 16 * 24
+
+
+#: the most memory an analysis may plan to use, bytes (and at most half of what
+#: the machine has free): past it the analysis is refused before it starts
+MEMORY_BUDGET = 2 * 2**30
+
+
+def memory_estimate(n_unknowns: int, n_freq: int) -> int:
+    """Bytes an analysis of ``n_unknowns`` at ``n_freq`` frequencies needs, roughly:
+    the dense ``G`` and ``C``, their product form and the DC solve's dense
+    Jacobian and factors (``7·N²`` doubles), a dense stack block, and
+    :data:`BYTES_PER_POINT_UNKNOWN` per frequency and unknown."""
+    dense = 7 * n_unknowns * n_unknowns * 8 + (STACK_BYTES if n_unknowns < SPARSE_FROM else 0)
+    return dense + BYTES_PER_POINT_UNKNOWN * n_unknowns * n_freq
+
+
+def _free_bytes() -> int | None:
+    """Memory the machine has available (Linux /proc/meminfo), or None if unknown."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        return None
+    return None
+
+
+def check_size(circuit, n_freq: int) -> None:
+    """Refuse (E330) an analysis whose :func:`memory_estimate` exceeds
+    :data:`MEMORY_BUDGET` or half the memory free, before any solve starts."""
+    n = len(circuit.nodes()) + len(circuit.inductors) + 1
+    need = memory_estimate(n, n_freq)
+    free = _free_bytes()
+    budget = MEMORY_BUDGET if free is None else min(MEMORY_BUDGET, free // 2)
+    if need > budget:
+        raise AnalysisError(error(
+            "E330", f"the circuit is too large to analyse here: about {need / 2**30:.1f} GB needed "
+                    f"({n} unknowns at {n_freq} frequencies), more than the {budget / 2**30:.1f} GB allowed",
+            hint="use fewer sweep points ('set points 500'), or analyse the chain in parts"))
 
 
 @dataclass(frozen=True, slots=True)
@@ -318,11 +366,17 @@ class ModalSolver:
         return self.full(self.coords(b))
 
 
+#: the batched dense solve stacks at most this many bytes of matrices at a time
+STACK_BYTES = 64 * 2**20
+
+
 class DirectSolver:
-    """``numpy.linalg.solve`` on each equilibrated ``Y(s)`` (one batched LAPACK call).
+    """``numpy.linalg.solve`` on each equilibrated ``Y(s)`` (batched LAPACK calls).
 
     Rows and columns are scaled by powers of two computed from
-    ``|G| + |s_mid|·|C|`` (``s_mid`` the geometric mean of the band).
+    ``|G| + |s_mid|·|C|`` (``s_mid`` the geometric mean of the band).  The
+    stack of ``Y(s)`` is formed in blocks of frequencies of at most
+    :data:`STACK_BYTES`, so memory does not grow with the number of points.
     """
 
     name = "direct"
@@ -331,31 +385,40 @@ class DirectSolver:
         w = np.abs(s)
         s_mid = float(np.sqrt(w.min() * w.max())) if w.size else 1.0
         self._r, self._c = _equilibrate(np.abs(g) + s_mid * np.abs(c))
-        gs = self._r[:, None] * g * self._c[None, :]
-        cs = self._r[:, None] * c * self._c[None, :]
-        self._y = gs[None, :, :] + s[:, None, None] * cs[None, :, :]
+        self._gs = self._r[:, None] * g * self._c[None, :]
+        self._cs = self._r[:, None] * c * self._c[None, :]
+        self._s = s
+        n = g.shape[0]
+        self._block = max(1, STACK_BYTES // (16 * n * n)) if n else max(1, s.size)
 
     def solve(self, b: np.ndarray) -> np.ndarray:
         """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS."""
-        rhs = np.broadcast_to(b * self._r, self._y.shape[:2])[:, :, None]
-        try:
-            xs = np.linalg.solve(self._y, rhs)[:, :, 0]
-        except np.linalg.LinAlgError:
-            xs = np.full(self._y.shape[:2], np.nan + 0j)
-            for k in range(self._y.shape[0]):
-                try:
-                    xs[k] = np.linalg.solve(self._y[k], rhs[k, :, 0])
-                except np.linalg.LinAlgError:
-                    pass
-        return xs * self._c
+        nf, n = self._s.size, self._gs.shape[0]
+        rhs = np.broadcast_to(b * self._r, (nf, n))
+        xs = np.full((nf, n), np.nan + 0j)
+        for lo in range(0, nf, self._block):
+            hi = min(nf, lo + self._block)
+            y = self._gs[None, :, :] + self._s[lo:hi, None, None] * self._cs[None, :, :]
+            try:
+                xs[lo:hi] = np.linalg.solve(y, rhs[lo:hi, :, None])[:, :, 0]
+            except np.linalg.LinAlgError:
+                for k in range(hi - lo):
+                    try:
+                        xs[lo + k] = np.linalg.solve(y[k], rhs[lo + k])
+                    except np.linalg.LinAlgError:
+                        pass
+        with np.errstate(over="ignore", invalid="ignore"):
+            return xs * self._c
 
 
 class SparseSolver:
     """A sparse LU factorisation of each equilibrated ``Y(s)`` (SuperLU, COLAMD order).
 
     The union pattern of ``G`` and ``C`` is found once; each frequency only
-    fills in ``G + s·C`` on it and factorises.  The factors are kept, so
-    refinement steps cost one triangular solve per frequency.  A frequency
+    fills in ``G + s·C`` on it and factorises.  The factors are kept when
+    there are at most :data:`KEEP_FACTORS` frequency × unknown pairs, so
+    refinement steps cost one triangular solve per frequency; past that
+    each solve factorises again, so memory stays bounded.  A frequency
     at which ``Y(s)`` is singular gives NaN, as in :class:`DirectSolver`.
     """
 
@@ -374,22 +437,28 @@ class SparseSolver:
         gd, cd = g[rows, cols] * scale, c[rows, cols] * scale
         indptr = np.searchsorted(cols, np.arange(n + 1))
         self._n = n
-        self._lus = []
-        for sk in s:
+        self._s = s
+
+        def factor(sk):
             try:
-                lu = splu(csc_matrix((gd + sk * cd, rows, indptr), shape=(n, n)), permc_spec="COLAMD")
+                return splu(csc_matrix((gd + sk * cd, rows, indptr), shape=(n, n)), permc_spec="COLAMD")
             except RuntimeError:  # exactly singular at this frequency
-                lu = None
-            self._lus.append(lu)
+                return None
+
+        self._factor = factor
+        self._lus = [factor(sk) for sk in s] if s.size * n <= KEEP_FACTORS else None
 
     def solve(self, b: np.ndarray) -> np.ndarray:
         """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS."""
-        rhs = np.broadcast_to(b * self._r, (len(self._lus), self._n)).astype(complex)
-        xs = np.full((len(self._lus), self._n), np.nan + 0j)
-        for k, lu in enumerate(self._lus):
+        nf = self._s.size
+        rhs = np.broadcast_to(b * self._r, (nf, self._n))
+        xs = np.full((nf, self._n), np.nan + 0j)
+        for k in range(nf):
+            lu = self._lus[k] if self._lus is not None else self._factor(self._s[k])
             if lu is not None:
-                xs[k] = lu.solve(rhs[k])
-        return xs * self._c
+                xs[k] = lu.solve(rhs[k].astype(complex))
+        with np.errstate(over="ignore", invalid="ignore"):
+            return xs * self._c
 
 
 def _equilibrate_entries(rows: np.ndarray, cols: np.ndarray, values: np.ndarray, n: int,
