@@ -3,6 +3,8 @@ with the estimate, exit 2; a 64-stage chain at the default points is not."""
 
 import pytest
 
+import chain.analysis
+
 from chain.analysis import analyze
 from chain.build import build
 from chain.cli import main
