@@ -62,6 +62,9 @@ class Analysis:
     #: poles, zeros, unstable poles and feedback loop gains
     #: (:class:`chain.smallsignal.stability.Stability`), or None when not computed
     stability: object | None = None
+    #: sensitivity rankings (:class:`chain.smallsignal.sensitivity.Ranking`) of the
+    #: overall gain, the corners and each stage's plate current
+    sensitivity: tuple = ()
 
     @property
     def unstable(self) -> bool:
@@ -134,6 +137,9 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
     from chain.smallsignal.stability import stability as check_stability
 
     dynamics = check_stability(ss, ref_hz=s.reference_hz, band_hz=(s.band_low_hz, s.band_high_hz))
+    from chain.smallsignal.sensitivity import rankings
+
+    ranks = rankings(ss, dc, ref_hz=s.reference_hz, f_low_hz=total.f_low_hz, f_high_hz=total.f_high_hz)
     large = None
     if headroom:
         from chain.headroom import headroom as run_headroom
@@ -154,6 +160,7 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
         netlist_sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
         options=options,
         stability=dynamics,
+        sensitivity=ranks,
     )
 
 

@@ -654,11 +654,70 @@ def diff(a, b, *, tol_db: float = 0.05, tol_pct: float = 0.5) -> DiffResult:
     resp = _response_effect(da, db, tol_db)
     if resp is not None:
         effects.append(resp)
+    effects = _explained(effects, parts, da)
     return DiffResult(
         a=_side(da), b=_side(db), tol_db=float(tol_db), tol_pct=float(tol_pct),
         settings=tuple(_settings(da, db)), stages=tuple(stage_changes), parts=tuple(parts),
         effects=_sort_effects(effects),
     )
+
+
+def _sensitivity_key(c: Change) -> str | None:
+    """The ``sensitivity`` quantity of the report document that an effect is."""
+    if c.kind == "overall" and c.quantity == "gain":
+        return "overall gain"
+    if c.kind == "corner":
+        return {"low band edge": "low corner", "high band edge": "high corner"}.get(c.quantity)
+    if c.kind == "operating point" and c.quantity == "Ip":
+        return f"{c.subject} plate current"
+    return None
+
+
+def _log_change(c: Change) -> float | None:
+    """``Δln y`` of an effect (dB turned into a log ratio), None if not numeric."""
+    if not (isinstance(c.old, (int, float)) and isinstance(c.new, (int, float))):
+        return None
+    if c.unit == "dB":
+        return (c.new - c.old) / 20.0 * math.log(10.0)
+    if c.old > 0 and c.new > 0:
+        return math.log(c.new / c.old)
+    return None
+
+
+def _explained(effects: list[Change], parts: list[Change], da: dict[str, Any]) -> list[Change]:
+    """Note on each gain, corner and plate-current effect which changed part
+    explains most of it: the largest ``|S·Δln x|`` over the changed parts,
+    with ``S`` the normalised sensitivity of side A's report (first order:
+    ``Δln y ≈ Σ S·Δln x``; a part added or removed has no ``Δln x`` and is
+    left out).  The note is given only when that first-order estimate has
+    the sign of the change seen and at least half its size — otherwise the
+    value changes do not explain it (a removed part, or a change too large
+    for first order)."""
+    ranks = {r["quantity"]: {p["part"]: p["s"] for p in r["parts"]} for r in (da.get("sensitivity") or [])}
+    steps = {}
+    for p in parts:
+        if p.quantity == "value" and isinstance(p.old, (int, float)) and isinstance(p.new, (int, float)) \
+                and p.old > 0 and p.new > 0:
+            steps[p.subject] = math.log(p.new / p.old)
+    if not ranks or not steps:
+        return effects
+    out = []
+    for c in effects:
+        key = _sensitivity_key(c)
+        sens = ranks.get(key) if key else None
+        if sens:
+            shares = {name: (sens.get(name) or 0.0) * d for name, d in steps.items()}
+            total = sum(abs(v) for v in shares.values())
+            best = max(shares, key=lambda k: abs(shares[k]))
+            seen = _log_change(c)
+            predicted = sum(shares.values())
+            if seen is not None and total > 0.0 and predicted * seen > 0.0 and abs(predicted) >= 0.5 * abs(seen):
+                if len(steps) == 1:
+                    c = _with_note(c, f"explained by {best}")
+                else:
+                    c = _with_note(c, f"mostly {best} ({100.0 * abs(shares[best]) / total:.0f} % by sensitivity)")
+        out.append(c)
+    return out
 
 
 # --------------------------------------------------------------------------- rendering

@@ -21,8 +21,8 @@ __all__ = ["SECTIONS", "Renderer", "check_sections", "clipped_stages", "spot_fre
 #: every section, in report order: what a technician reads first (the stage
 #: table, the whole chain, the response, headroom, diagnostics), then the
 #: details, then the analysis settings and the parts list
-SECTIONS = ("header", "safety", "stages", "overall", "response", "stability", "headroom", "diagnostics", "stage_details",
-            "rails", "capacitors", "settings", "parts")
+SECTIONS = ("header", "safety", "stages", "overall", "response", "stability", "sensitivity", "headroom",
+            "diagnostics", "stage_details", "rails", "capacitors", "settings", "parts")
 
 
 def check_sections(sections: Sequence[str] | None) -> tuple[str, ...]:
@@ -95,6 +95,9 @@ class Renderer:
         raise NotImplementedError
 
     def stability(self, data: dict[str, Any]) -> list[str]:
+        return []
+
+    def sensitivity(self, data: dict[str, Any]) -> list[str]:
         return []
 
     def diagnostics(self, data: dict[str, Any]) -> list[str]:

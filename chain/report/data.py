@@ -284,7 +284,7 @@ def report_data(analysis) -> dict[str, Any]:
         ``docs/report-format.md``.  Only plain ``dict``, ``list``, ``str``,
         ``int``, ``float``, ``bool`` and ``None`` values.
     """
-    from chain.report.dynamics import stability_data
+    from chain.report.dynamics import sensitivity_data, stability_data
     from chain.report.headroom import headroom_data
 
     design = analysis.design
@@ -308,4 +308,5 @@ def report_data(analysis) -> dict[str, Any]:
         "headroom": headroom_data(analysis.headroom),
         "diagnostics": _diagnostics(analysis.diagnostics),
         "stability": stability_data(analysis.stability),
+        "sensitivity": sensitivity_data(analysis.sensitivity),
     }

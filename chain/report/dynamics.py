@@ -153,3 +153,48 @@ def stability_markdown(data: dict[str, Any]) -> list[str]:
     for lp in st["loops"]:
         lines += ["", *("    " + x for x in _loop_lines(lp))]
     return lines
+
+
+def sensitivity_data(ranks) -> list[dict[str, Any]] | None:
+    """The ``sensitivity`` document section: per quantity every part's
+    ``d ln y / d ln x``, largest magnitude first (``None`` when not computed)."""
+    if not ranks:
+        return None
+    return [{"quantity": r.quantity, "value": _num(r.value), "unit": r.unit,
+             "parts": [{"part": name, "s": _num(s)} for name, s in r.parts]} for r in ranks]
+
+
+def _value(r) -> str:
+    if r["value"] is None:
+        return ""
+    if r["unit"] == "dB":
+        return f" ({r['value']:.2f} dB)"
+    return f" ({fmt.si(r['value'], r['unit'])})"
+
+
+def _top(r, n: int = 3) -> str:
+    return ", ".join(f"{p['part']} {p['s']:+.2f}" for p in r["parts"][:n] if p["s"] is not None) or "—"
+
+
+def sensitivity_text(data: dict[str, Any]) -> list[str]:
+    ranks = data.get("sensitivity")
+    if not ranks:
+        return []
+    lines = ["Sensitivity: the three parts that move each result most",
+             "-------------------------------------------------------",
+             "(normalised: a part 1 % larger moves the result by S %; gain as |V/V|)"]
+    for r in ranks:
+        lines.append(f"{r['quantity']:<24}  {_value(r).strip(' ()'):>10}  {_top(r)}")
+    return lines
+
+
+def sensitivity_markdown(data: dict[str, Any]) -> list[str]:
+    ranks = data.get("sensitivity")
+    if not ranks:
+        return []
+    lines = ["## Sensitivity: the three parts that move each result most", "",
+             "Normalised: a part 1 % larger moves the result by S %.", "",
+             "| result | parts (S) |", "| --- | --- |"]
+    for r in ranks:
+        lines.append(f"| {r['quantity']}{_value(r)} | {_top(r)} |")
+    return lines

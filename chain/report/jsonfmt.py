@@ -23,6 +23,7 @@ SECTION_KEYS = {
     "overall": ("overall",),
     "response": ("response",),
     "stability": ("stability",),
+    "sensitivity": ("sensitivity",),
     "headroom": ("headroom",),
     "diagnostics": ("diagnostics",),
     "stage_details": ("operating_points",),
@@ -82,6 +83,9 @@ class JsonRenderer:
 
     def stability(self, data):
         return {"stability": data["stability"]} if "stability" in data else {}
+
+    def sensitivity(self, data):
+        return {"sensitivity": data["sensitivity"]} if "sensitivity" in data else {}
 
     def rails(self, data):
         return self._pick(data, "rails")

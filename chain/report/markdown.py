@@ -168,6 +168,11 @@ class MarkdownRenderer(Renderer):
 
         return stability_markdown(data)
 
+    def sensitivity(self, data: dict[str, Any]) -> list[str]:
+        from chain.report.dynamics import sensitivity_markdown
+
+        return sensitivity_markdown(data)
+
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         if not data["diagnostics"]:
             return ["## Diagnostics", "", "none"]

@@ -251,6 +251,11 @@ class TextRenderer(Renderer):
 
         return stability_text(data)
 
+    def sensitivity(self, data: dict[str, Any]) -> list[str]:
+        from chain.report.dynamics import sensitivity_text
+
+        return sensitivity_text(data)
+
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         lines = _title("Diagnostics")
         if not data["diagnostics"]:
