@@ -118,6 +118,17 @@ def _parser() -> argparse.ArgumentParser:
     d.add_argument("--plot", metavar="PATH", help="overlay both responses with their difference, .png or .svg")
     d.add_argument("--format", choices=("text", "json"), default="text")
 
+    t = sub.add_parser("transfer", help="the whole chain's H(s): poles, zeros, coefficients, expression",
+                       description="The transfer function from the source EMF to the output (or NODE) as a "
+                                   "rational function in s: poles and zeros, gain, coefficients, a sympy "
+                                   "expression or LaTeX; --symbolic keeps chosen parts as symbols.")
+    t.add_argument("file", metavar="FILE")
+    t.add_argument("--node", metavar="NODE", help="node to take H(s) at (default: the output)")
+    t.add_argument("--symbolic", metavar="PART,PART,…",
+                   help="parts kept as symbols, e.g. V1.Ck,V1.Rk (at most 10)")
+    t.add_argument("--latex", action="store_true", help="print the expression as LaTeX")
+    t.add_argument("--format", choices=("text", "json"), default="text")
+
     cm = sub.add_parser("compare", help="several voicings side by side",
                         description="Tabulate the key numbers of several netlists side by side; exit 1 "
                                     "if they differ.")
@@ -497,7 +508,33 @@ def _cmd_formulas(args) -> int:
     return 0
 
 
+def _cmd_transfer(args) -> int:
+    from chain.build import load
+    from chain.dc import solve
+    from chain.formulas.transfer import symbolic_transfer
+    from chain.report.transfer import transfer_document, transfer_json, transfer_text
+    from chain.smallsignal import linearize
+    from chain.smallsignal.poles import pole_zero
+
+    design, circuit, _ = load(args.file)
+    node = args.node or circuit.output_node
+    if node not in circuit.nodes():
+        raise UsageError(f"no node '{node}' in {args.file}")
+    parts = [p.strip() for p in args.symbolic.split(",") if p.strip()] if args.symbolic else []
+    dc = solve(circuit)
+    ss = linearize(circuit, dc)
+    if ss.node_of.get(node, node) == "gnd":
+        raise UsageError(f"node '{node}' is AC ground (a supply holds it): its H(s) is 0")
+    pz = pole_zero(ss, node, ref_hz=design.settings.reference_hz)
+    doc = transfer_document(design.title, pz, symbolic_transfer(ss, parts, node=node))
+    print(transfer_json(doc) if args.format == "json" else transfer_text(doc, latex=args.latex), end="")
+    unstable = _bias_stability(design, circuit, dc)
+    _print_diagnostics(unstable)
+    return EXIT_UNSTABLE if unstable else 0
+
+
 _COMMANDS = {
+    "transfer": _cmd_transfer,
     "formulas": _cmd_formulas,
     "headroom": _cmd_headroom,
     "check": _cmd_check,

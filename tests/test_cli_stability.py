@@ -51,3 +51,30 @@ def test_plot_of_an_unstable_circuit_says_so_on_the_figure():
     assert any(t.startswith("UNSTABLE: oscillates at about") for t in texts)
     stable = [t.get_text() for t in bode(analyze(STABLE, headroom=False)).axes[0].texts]
     assert not any(t.startswith("UNSTABLE") for t in stable)
+
+
+def test_transfer_prints_numbers_and_an_expression_with_chosen_parts_symbolic(capsys):
+    assert main(["transfer", STABLE, "--symbolic", "V1.Ck,V1.Rk"]) == 0
+    out = capsys.readouterr().out
+    assert "poles (" in out and "zeros (" in out and "denominator coefficients" in out
+    assert "kept symbolic: V1.Ck (here 25 µF), V1.Rk (here 1.5 kΩ)" in out
+    assert "C_{V1.Ck}*R_{V1.Rk}" in out
+
+
+def test_transfer_json_and_latex(capsys):
+    import json
+
+    assert main(["transfer", STABLE, "--format", "json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["node"] == "output" and doc["denominator"][0] == 1.0 and doc["latex"].startswith("H(s) = \\frac{")
+    assert main(["transfer", STABLE, "--latex", "--symbolic", "V2.RL"]) == 0
+    assert "R_{V2.RL}" in capsys.readouterr().out
+
+
+def test_transfer_refuses_a_part_that_is_not_there(capsys):
+    assert main(["transfer", STABLE, "--symbolic", "V9.Rk"]) == 2
+    assert "E802" in capsys.readouterr().err
+
+
+def test_transfer_of_an_unstable_chain_exits_4(capsys):
+    assert main(["transfer", MOTORBOAT]) == EXIT_UNSTABLE
