@@ -81,3 +81,27 @@ def test_heavy_libraries_stay_in_their_rooms(path):
         lib = name.split(".")[0]
         if lib in HEAVY:
             assert mine in HEAVY[lib], f"{path.relative_to(PACKAGE)} imports {lib}"
+
+
+def _module_name(path: Path) -> str:
+    parts = path.relative_to(PACKAGE.parent).with_suffix("").parts
+    return ".".join(parts[:-1] if parts[-1] == "__init__" else parts)
+
+
+def test_no_import_loops():
+    """The house reads top-down: no module reaches, directly or through
+    others, back to itself — imports inside functions included (issue 9)."""
+    import networkx as nx
+
+    paths = sorted(PACKAGE.rglob("*.py"))
+    names = {_module_name(p) for p in paths}
+    graph = nx.DiGraph()
+    for path in paths:
+        me = _module_name(path)
+        if me == "chain":
+            continue  # the front door may name every room
+        for name, _ in imports(path):
+            if name in names and name not in (me, "chain"):
+                graph.add_edge(me, name)
+    loops = sorted(nx.simple_cycles(graph))
+    assert not loops, "import loops: " + "; ".join(" -> ".join(c + [c[0]]) for c in loops[:5])

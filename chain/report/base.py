@@ -162,7 +162,7 @@ def pd_rating(data: dict[str, Any], triode: str) -> float | None:
 
 def corner_reference(data: dict[str, Any]) -> str:
     """What the −3 dB corners are relative to, in words."""
-    from chain.report import fmt
+    import chain.report.fmt as fmt
 
     ref = data["overall"]["corner_reference"]
     level = f"{fmt.db(ref['gain_db'])} at {fmt.si(ref['f_hz'], 'Hz')}"
@@ -226,7 +226,7 @@ def shape_lines(data: dict[str, Any]) -> list[tuple[str, str]]:
     """``(label, value)`` facts on the shape of the overall response: every
     peak and dip, then the shelves (see :mod:`chain.smallsignal.shape`).
     Missing keys (a report of an older version read back) give nothing."""
-    from chain.report import fmt
+    import chain.report.fmt as fmt
 
     o = data["overall"]
     ref = fmt.si(o["f_ref_hz"], "Hz")
@@ -246,7 +246,7 @@ def shape_lines(data: dict[str, Any]) -> list[tuple[str, str]]:
 
 
 def _signed_db(x: float | None) -> str:
-    from chain.report import fmt
+    import chain.report.fmt as fmt
 
     text = fmt.db(x)
     return text if text.startswith(("-", "—")) or x is None else "+" + text

@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from chain.decibels import db, db_array, phase_deg_array
+from chain.report.values import DIGITS, cx, num
 from chain.about import SAFETY
 
 __all__ = [
@@ -48,31 +49,8 @@ SCHEMA = "chain-report/1"
 
 #: the one-line safety reminder printed in every report (same wording as the command line's)
 
-#: significant digits kept for every number of the document
-DIGITS = 12
-
 #: what a part can belong to, in the order reports group them
 OWNER_KINDS = ("supply", "rail", "input", "stage", "coupling", "network", "stray", "output", "other")
-
-
-def num(value: float | None) -> float | None:
-    """A JSON number: ``value`` rounded to :data:`DIGITS` significant digits,
-    ``None`` for absent or non-finite values, ``0.0`` for ``-0.0``."""
-    if value is None:
-        return None
-    x = float(value)
-    if not math.isfinite(x):
-        return None
-    x = float(f"{x:.{DIGITS - 1}e}")
-    return 0.0 if x == 0.0 else x
-
-
-def cx(value: complex | None) -> dict[str, float | None] | None:
-    """A complex number as ``{"re": …, "im": …}`` (each :func:`num`), or ``None``."""
-    if value is None:
-        return None
-    z = complex(value)
-    return {"re": num(z.real), "im": num(z.imag)}
 
 
 def _db(value: complex | float) -> float | None:

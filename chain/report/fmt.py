@@ -14,7 +14,7 @@ import math
 from chain.units import format_si
 
 __all__ = ["DIGITS", "NONE", "ZERO_V", "ZERO_A", "si", "volts", "amps", "plain", "db", "deg", "mag", "angle",
-           "polar", "gain", "pct", "node_list"]
+           "polar", "gain", "pct", "node_list", "markdown_escape", "markdown_table"]
 
 #: significant digits of every printed quantity
 DIGITS = 4
@@ -122,3 +122,16 @@ def pct(value: float | None) -> str:
 def node_list(nodes) -> str:
     """Nodes joined by an en dash: ``"B1 – V1.plate"``."""
     return " – ".join(nodes)
+
+
+def markdown_escape(text: str) -> str:
+    """Escape the characters that would break a table cell."""
+    return str(text).replace("\\", "\\\\").replace("|", "\\|")
+
+
+def markdown_table(head: list[str], rows: list[list[str]], right: set[int] = frozenset()) -> list[str]:
+    """A GitHub-flavoured Markdown pipe table; columns in ``right`` are right-aligned."""
+    align = ["---:" if i in right else "---" for i in range(len(head))]
+    out = ["| " + " | ".join(markdown_escape(h) for h in head) + " |", "| " + " | ".join(align) + " |"]
+    out += ["| " + " | ".join(markdown_escape(c) for c in row) + " |" for row in rows]
+    return out

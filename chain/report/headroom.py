@@ -10,8 +10,8 @@ from __future__ import annotations
 import math
 from typing import Any, Callable
 
-from chain.report import fmt
-from chain.report.data import num
+import chain.report.fmt as fmt
+from chain.report.values import num
 
 __all__ = ["headroom_data", "first_clip", "text_lines", "markdown_lines"]
 
@@ -148,7 +148,7 @@ def text_lines(h: dict[str, Any], kv: Callable[[str, str], str]) -> list[str]:
 
 def markdown_lines(h: dict[str, Any]) -> list[str]:
     """The headroom facts as Markdown tables."""
-    from chain.report.markdown import _table
+    from chain.report.fmt import markdown_table as _table
 
     head = ["stage", "clips at input", "mechanism", "half-wave", "margin", "swing +", "swing −"]
     head += [f"input for {_thd_label(t)}" for t in h["thd_levels"]]

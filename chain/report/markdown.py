@@ -9,23 +9,16 @@ from __future__ import annotations
 
 from typing import Any
 
-from chain.report import fmt
+import chain.report.fmt as fmt
+from chain.report.fmt import markdown_escape as _esc
+from chain.report.fmt import markdown_table as _table
 from chain.report.dynamics import unstable_banner
 from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, shape_lines, spot_response
 
 __all__ = ["MarkdownRenderer"]
 
 
-def _esc(text: str) -> str:
-    """Escape the characters that would break a table cell."""
-    return str(text).replace("\\", "\\\\").replace("|", "\\|")
 
-
-def _table(head: list[str], rows: list[list[str]], right: set[int] = frozenset()) -> list[str]:
-    align = ["---:" if i in right else "---" for i in range(len(head))]
-    out = ["| " + " | ".join(_esc(h) for h in head) + " |", "| " + " | ".join(align) + " |"]
-    out += ["| " + " | ".join(_esc(c) for c in row) + " |" for row in rows]
-    return out
 
 
 def _corner(value: float | None, edge: float, below: bool) -> str:

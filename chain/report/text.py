@@ -17,7 +17,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from chain.report import fmt
+import chain.report.fmt as fmt
 from chain.report.dynamics import unstable_banner
 from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, shape_lines, spot_response
 
