@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from chain.report import fmt
+import chain.report.fmt as fmt
 
 __all__ = ["stability_data", "stability_text", "stability_markdown", "unstable_banner", "POLES_SHOWN"]
 
@@ -20,7 +20,7 @@ POLES_SHOWN = 14
 
 
 def _num(x):
-    from chain.report.data import num
+    from chain.report.values import num
 
     return num(x)
 
