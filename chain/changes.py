@@ -654,12 +654,34 @@ def diff(a, b, *, tol_db: float = 0.05, tol_pct: float = 0.5) -> DiffResult:
     resp = _response_effect(da, db, tol_db)
     if resp is not None:
         effects.append(resp)
+    stab = _stability_effect(da, db)
+    if stab is not None:
+        effects.append(stab)
     effects = _explained(effects, parts, da)
     return DiffResult(
         a=_side(da), b=_side(db), tol_db=float(tol_db), tol_pct=float(tol_pct),
         settings=tuple(_settings(da, db)), stages=tuple(stage_changes), parts=tuple(parts),
         effects=_sort_effects(effects),
     )
+
+
+def _stability_text(doc: dict[str, Any]) -> str | None:
+    st = doc.get("stability")
+    if not st:
+        return None
+    if st["stable"]:
+        return "stable"
+    freqs = ", ".join(_f.si(u["oscillation_hz"], "Hz") if u["oscillation_hz"] else "runs away"
+                      for u in st["unstable"])
+    return f"UNSTABLE (oscillates at {freqs})"
+
+
+def _stability_effect(da: dict[str, Any], db: dict[str, Any]) -> Change | None:
+    """Stable on one side and not on the other (or oscillating elsewhere): the biggest effect of all."""
+    a, b = _stability_text(da), _stability_text(db)
+    if a is None or b is None or a == b:
+        return None
+    return Change("overall", "overall", "stability", "", a, b, size=100.0 * APPEAR_SIZE)
 
 
 def _sensitivity_key(c: Change) -> str | None:

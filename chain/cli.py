@@ -90,6 +90,9 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("--stages", action="store_true", help="also draw every stage's output node")
     pl.add_argument("--impedance", action="store_true",
                     help="also draw |Zin| and |Zout| against frequency, to PATH with -impedance added")
+    pl.add_argument("--loop", action="store_true",
+                    help="also draw the loop gain and margins of each feedback network, to PATH with "
+                         "-loop-NETWORK added")
 
     f = sub.add_parser("formulas", help="closed-form gain and impedances of each stage (symbolic)",
                        description="Print each stage's gain, input and output impedance as formulas in its "
@@ -350,6 +353,16 @@ def _cmd_plot(args) -> int:
         from chain.plot.bode import impedance
 
         figures.append((extra, impedance(analysis.freq, title=analysis.design.title).figure))
+    if args.loop:
+        from chain.plot.loop import loop_plot
+
+        loops = analysis.stability.loops if analysis.stability is not None else ()
+        if not loops:
+            print("no feedback network closes a loop between stages: no loop gain to draw")
+        for lg in loops:
+            name = str(target.with_name(f"{target.stem}-loop-{lg.path.name}{target.suffix}"))
+            _writable(name, args)
+            figures.append((name, loop_plot(lg, title=analysis.design.title).figure))
     for name, figure in figures:
         _save_figure(figure, name)
         print(f"wrote {name}")

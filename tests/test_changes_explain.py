@@ -37,3 +37,13 @@ def test_an_effect_of_a_removed_part_is_not_pinned_on_a_value_change():
     result = diff(a, b)
     assert _effect(result, "overall", "low band edge").note.endswith("explained by V1.Ck")
     assert "V1.Ck" not in _effect(result, "overall", "high band edge").note
+
+
+def test_diff_says_when_a_voicing_is_unstable():
+    """A stable feedback pair against the squealing four-stage demo: the
+    instability is the first effect listed."""
+    a = analyze(ROOT / "netlists" / "feedback_pair.chain", headroom=False)
+    b = analyze(ROOT / "netlists" / "unstable" / "squeal_four_stage.chain", headroom=False)
+    assert not a.unstable and b.unstable
+    first = diff(a, b).effects[0]
+    assert first.quantity == "stability" and first.old == "stable" and first.new.startswith("UNSTABLE")

@@ -78,3 +78,10 @@ def test_transfer_refuses_a_part_that_is_not_there(capsys):
 
 def test_transfer_of_an_unstable_chain_exits_4(capsys):
     assert main(["transfer", MOTORBOAT]) == EXIT_UNSTABLE
+
+
+def test_plot_loop_writes_one_figure_per_feedback_network(tmp_path, capsys):
+    path = tmp_path / "fp.png"
+    assert main(["plot", str(ROOT / "netlists" / "feedback_pair.chain"), "-o", str(path), "--loop"]) == 0
+    assert (tmp_path / "fp-loop-feedback.png").exists()
+    assert "wrote" in capsys.readouterr().out

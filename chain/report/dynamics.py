@@ -48,6 +48,8 @@ def stability_data(st) -> dict[str, Any] | None:
             "mid_band_db": _num(20.0 * math.log10(abs(lg.t_mid))) if abs(lg.t_mid) > 0 else None,
             "phase_margin_deg": _num(pm_at[1]), "crossover_hz": _num(pm_at[0]),
             "gain_margin_db": _num(gm_at[1]), "phase_crossover_hz": _num(gm_at[0]),
+            "crossovers": [{"f_hz": _num(f), "phase_margin_deg": _num(pm)} for f, pm in lg.crossovers],
+            "phase_crossings": [{"f_hz": _num(f), "gain_margin_db": _num(gm)} for f, gm in lg.phase_crossings],
         })
     return {
         "stable": bool(st.stable),
@@ -102,10 +104,14 @@ def _loop_lines(lp) -> list[str]:
     head = f"loop through network '{lp['network']}' ({' → '.join(lp['stages'])}), cut at {lp['cut_at']}"
     sign = "negative" if lp["negative_feedback"] else "positive"
     mid = f"{lp['mid_band_db']:.1f} dB" if lp["mid_band_db"] is not None else "—"
-    pm = (f"{lp['phase_margin_deg']:.1f}° at {fmt.si(lp['crossover_hz'], 'Hz')}"
-          if lp["phase_margin_deg"] is not None else "none (|T| never crosses 1)")
-    gm = (f"{lp['gain_margin_db']:.1f} dB at {fmt.si(lp['phase_crossover_hz'], 'Hz')}"
-          if lp["gain_margin_db"] is not None else "none (the phase never reaches ±180°)")
+    crossings = lp.get("crossovers") or ([{"f_hz": lp["crossover_hz"], "phase_margin_deg": lp["phase_margin_deg"]}]
+                                         if lp["phase_margin_deg"] is not None else [])
+    phase = lp.get("phase_crossings") or ([{"f_hz": lp["phase_crossover_hz"], "gain_margin_db": lp["gain_margin_db"]}]
+                                          if lp["gain_margin_db"] is not None else [])
+    pm = ", ".join(f"{c['phase_margin_deg']:.1f}° at {fmt.si(c['f_hz'], 'Hz')}" for c in crossings) \
+        or "none (|T| never crosses 1)"
+    gm = ", ".join(f"{c['gain_margin_db']:.1f} dB at {fmt.si(c['f_hz'], 'Hz')}" for c in phase) \
+        or "none (the phase never reaches ±180°)"
     return [head, f"  loop gain at its peak   {mid} ({sign} feedback)",
             f"  phase margin            {pm}", f"  gain margin             {gm}"]
 

@@ -141,3 +141,44 @@ def test_closed_loop_gain_is_open_loop_over_one_plus_loop_gain():
     assert_allclose(closed, a_open / (1.0 + lg.t), rtol=1e-2)
     # and the feedback is worth its name: it takes 3 dB or more
     assert np.all(np.abs(closed) < np.abs(a_open) / 1.4)
+
+
+def test_feedback_pair_demo_shows_loop_gain_and_healthy_margins():
+    """The Wren demo: about 20 dB of negative feedback, crossing 0 dB once
+    below and once above the band with phase margins over 45° (common
+    practice) and no warning."""
+    _, st = demo(ROOT / "netlists" / "feedback_pair.chain")
+    (lg,) = st.loops
+    assert lg.negative and 15.0 < 20 * math.log10(abs(lg.t_mid)) < 25.0
+    (f_low, pm_low), (f_high, pm_high) = lg.crossovers
+    assert f_low < 10.0 and f_high > 40e3
+    assert min(pm_low, pm_high) > 45.0
+    assert st.stable and not [d for d in st.diagnostics if d.code == "W801"]
+
+
+def test_a_slimmer_margin_is_a_warning(tmp_path):
+    """The same pair with a 100n coupling capacitor and a 100n feedback block:
+    the low-frequency crossover keeps under 45° of phase margin → W801."""
+    text = (ROOT / "netlists" / "feedback_pair.chain").read_text()
+    text = text.replace("couple V1 -> V2 cap 22n", "couple V1 -> V2 cap 100n").replace(
+        "fbm -- V1.cathode 470n", "fbm -- V1.cathode 100n")
+    path = tmp_path / "slim.chain"
+    path.write_text(text)
+    _, st = demo(path)
+    assert st.stable
+    (w,) = [d for d in st.diagnostics if d.code == "W801"]
+    assert "phase margin" in w.message and w.subject == "feedback.fb"
+    assert st.loops[0].phase_margin_deg < 45.0
+
+
+def test_loop_plot_draws_the_loop_gain_and_marks_the_crossovers():
+    from chain.plot.loop import loop_plot
+
+    _, st = demo(ROOT / "netlists" / "feedback_pair.chain")
+    (lg,) = st.loops
+    plot = loop_plot(lg, title="t")
+    mag, ph = plot.lines
+    assert np.allclose(mag.get_ydata(), 20 * np.log10(np.abs(lg.t)))
+    assert np.allclose(ph.get_ydata(), lg.phase_deg)
+    notes = [t.get_text() for t in plot.axes[0].texts]
+    assert sum(n.startswith("phase margin") for n in notes) == 2
