@@ -111,10 +111,14 @@ def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic,
 
 def locate(diagnostics, circuit: Circuit, design: Design) -> tuple[Diagnostic, ...]:
     """Diagnostics about a stage or part (``subject``) without a place get the
-    span of the netlist line that made it (from ``circuit.origins``)."""
+    span of the netlist line that made it (from ``circuit.origins``); a supply
+    or rail named as subject gets its own line."""
     out = []
     for d in diagnostics:
-        span = circuit.origins.get(d.subject) if d.subject and d.span is None else None
+        span = None
+        if d.subject and d.span is None:
+            span = next((circuit.origins[k] for k in (d.subject, f"supply.{d.subject}", f"rail.{d.subject}.R")
+                         if k in circuit.origins), None)
         if span is not None and span.line > 0:
             if not span.text and span.line <= len(design.lines):
                 span = replace(span, text=design.lines[span.line - 1])

@@ -35,7 +35,7 @@ from chain.circuit import (
 from chain.errors import Diagnostic, LanguageError, Span, error
 from chain.graph import Digraph, components
 from chain.language.design import Design, Pot, Stage
-from chain.tubes import Ratings, TriodeModel, lookup
+from chain.tubes import FORM_FIELDS, FORMS, Ratings, TriodeModel, lookup
 
 __all__ = ["build", "load", "load_text", "part_names", "pot_fraction", "tube_model", "with_part", "WIPER_OHM"]
 
@@ -45,8 +45,9 @@ WIPER_OHM = 0.1
 
 _RATING_KEYS = {"vp-max": "vp_max_v", "pd-max": "pd_max_w", "ik-max": "ik_max_a",
                 "vhk-max": "vhk_max_v", "rg-max": "rg_max_ohm", "vp0-max": "vp_cold_max_v"}
-_MODEL_KEYS = {"mu": "mu", "ex": "ex", "kg1": "kg1", "kp": "kp", "kvb": "kvb",
-               "cgk": "cgk_f", "cgp": "cgp_f", "cpk": "cpk_f"}
+_CAP_KEYS = {"cgk": "cgk_f", "cgp": "cgp_f", "cpk": "cpk_f"}
+#: tube-line key → TriodeModel field, per model form
+_MODEL_KEYS = {form: {**dict(FORM_FIELDS[form]), **_CAP_KEYS} for form in FORMS}
 
 
 def pot_fraction(taper: str, taper_mid: float, position: float) -> float:
@@ -71,7 +72,18 @@ def pot_fraction(taper: str, taper_mid: float, position: float) -> float:
 
 
 def tube_model(design: Design, name: str) -> TriodeModel:
-    """The model for tube ``name``: a netlist definition or a built-in type."""
+    """The model for tube ``name``: a netlist definition or a built-in type.
+
+    A definition ``tube NAME like BASE [model FORM] key value …`` inherits
+    everything from BASE — model form, the fitted parameters of every form,
+    grid-current parameters, capacitances and ratings — and overrides only
+    the keys it gives.  ``model FORM`` switches to another form; a built-in
+    BASE carries fitted parameters for every form, so ``tube X like 12AX7
+    model dempwolf`` is the 12AX7 fitted with the Dempwolf–Zölzer form.
+    Without ``like`` the definition starts from the published 12AX7 sets of
+    its form with no capacitances and no ratings, and must give the form's
+    main parameters (checked in validation).
+    """
     defs = {t.name: t for t in design.tubes}
     if name not in defs:
         return lookup(name)
@@ -84,12 +96,17 @@ def tube_model(design: Design, name: str) -> TriodeModel:
         template = lookup("12AX7")
         none_ratings = Ratings(**{f.name: (None if f.name != "source" else "netlist")
                                   for f in fields(Ratings)})
-        base = replace(template, cgk_f=0.0, cgp_f=0.0, cpk_f=0.0, ratings=none_ratings, aliases=())
-    model_changes = {_MODEL_KEYS[k]: v for k, v in params.items() if k in _MODEL_KEYS}
+        base = replace(template, cgk_f=0.0, cgp_f=0.0, cpk_f=0.0, ratings=none_ratings, aliases=(), form="koren")
+    form = t.form or base.form
+    keys = _MODEL_KEYS[form]
+    model_changes = {keys[k]: v for k, v in params.items() if k in keys}
     rating_changes = {_RATING_KEYS[k]: v for k, v in params.items() if k in _RATING_KEYS}
     ratings = replace(base.ratings, **rating_changes) if rating_changes else base.ratings
-    src = f"defined in {design.path} line {t.span.line}" + (f", starting from {t.base}" if t.base else "")
-    return replace(base, name=t.name, ratings=ratings, source=src, aliases=(), **model_changes)
+    given = " ".join(k for k in params) or "nothing"
+    src = (f"defined in {design.path} line {t.span.line}, {form} form"
+           + (f", starting from {t.base} (inherits every parameter not given; given: {given})" if t.base
+              else f" (given: {given}; no capacitances or ratings)"))
+    return replace(base, name=t.name, ratings=ratings, source=src, aliases=(), form=form, **model_changes)
 
 
 class _Nodes:

@@ -101,6 +101,23 @@ def _parser() -> argparse.ArgumentParser:
     f.add_argument("stage", nargs="?", metavar="STAGE", help="only this stage")
     f.add_argument("--latex", action="store_true", help="print LaTeX instead of plain text")
 
+    t = sub.add_parser("fit", help="fit a triode model to measured plate-curve points; print a tube line",
+                       description="Fit a triode model form to measured points (CSV with columns vpk_v, vgk_v, "
+                                   "ip_a or ip_ma or ip_ua, optional ig_a/ig_ma), print the residuals per curve "
+                                   "and a 'tube' line ready to paste into a netlist. Bad data: exit 2 with the "
+                                   "file, line and column.")
+    t.add_argument("file", metavar="CSV", help="measured points, one per line")
+    t.add_argument("--form", choices=("koren", "dempwolf"), default="koren",
+                   help="model form to fit (default koren: Koren with contact potential)")
+    t.add_argument("--name", default="MEASURED", help="name of the fitted tube (default MEASURED)")
+    t.add_argument("--like", metavar="TYPE", default="12AX7",
+                   help="built-in type the tube inherits capacitances, ratings and grid current from (default 12AX7)")
+    t.add_argument("--plot", metavar="PATH", help="draw the points against the fitted curves (PNG or SVG)")
+    t.add_argument("--netlist", metavar="FILE",
+                   help="copy this netlist with the tube line added and every stage of the --like type using it")
+    t.add_argument("-o", "--output", metavar="PATH",
+                   help="where to write that copy (default: FILE with -NAME before the suffix)")
+
     h = sub.add_parser("headroom", help="where each stage clips, which first, and how it distorts",
                        description="Large-signal transfer curves at mid-band: clipping points per stage, "
                                    "the first stage to clip, and the harmonic spectrum at the input level.")
@@ -546,7 +563,84 @@ def _cmd_transfer(args) -> int:
     return EXIT_UNSTABLE if unstable else 0
 
 
+def _cmd_fit(args) -> int:
+    import re
+
+    from chain.errors import Diagnostic as _D
+    from chain.tubes import lookup
+    from chain.tubes.fit import fit_points, fit_warnings, read_points, residual_table, tube_line
+
+    try:
+        base = lookup(args.like)
+    except KeyError as exc:
+        raise ChainError([_D("E707", "error", f"--like: {exc}")]) from None
+    if not re.fullmatch(r"[A-Za-z0-9_][A-Za-z0-9_+\-]*", args.name):
+        raise UsageError(f"--name must be a tube name (letters, digits, _ + -), not '{args.name}'")
+    plot_path = _figure_path(args.plot) if args.plot else None
+    data = read_points(args.file)
+    result = fit_points(data, args.form, base=base)
+    print(f"{args.file}: {len(data.points)} points, {args.form} form fitted to "
+          f"{sum(1 for p in data.points if p.split == 'fit')}")
+    print()
+    print(residual_table(result))
+    for w in fit_warnings(result, args.file):
+        print(w.render(), file=sys.stderr)
+    line = tube_line(args.name, result, like=base.name)
+    print()
+    print("tube line (paste into a netlist; capacitances, ratings"
+          + (" and grid current" if not result.grid_fitted else "") + f" come from {base.name}):")
+    print(line)
+    if plot_path:
+        from chain.plot.fit import plot_fit
+
+        figure = plot_fit(data.points, [(f"{args.form} fit", result.model)],
+                          title=f"{args.name}: {Path(args.file).name} against the {args.form} form").figure
+        _save_figure(figure, plot_path)
+        print(f"wrote {plot_path}")
+    if args.netlist:
+        out = args.output or str(Path(args.netlist).with_name(
+            f"{Path(args.netlist).stem}-{args.name}{Path(args.netlist).suffix}"))
+        _write_fitted_netlist(args.netlist, out, line, base.name, args.name)
+    return 0
+
+
+def _write_fitted_netlist(path: str, out: str, line: str, like: str, name: str) -> None:
+    """Copy a netlist with ``line`` added and the stages of type ``like`` switched to ``name``."""
+    import re
+
+    from chain.build import load_text
+    from chain.tubes import lookup
+
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise UsageError(f"cannot read {path}: {exc}") from None
+    lines = text.splitlines()
+    stage_re = re.compile(r"^(\s*stage\s+\S+\s+\S+\s+)(\S+)(.*)$")
+    first_stage, switched = None, 0
+    for i, ln in enumerate(lines):
+        m = stage_re.match(ln)
+        if not m:
+            continue
+        first_stage = i if first_stage is None else first_stage
+        try:
+            same = lookup(m.group(2)).name == like
+        except KeyError:
+            same = False
+        if same:
+            lines[i] = m.group(1) + name + m.group(3)
+            switched += 1
+    if first_stage is None or switched == 0:
+        raise UsageError(f"{path} has no stage using {like}; nothing to switch to {name}")
+    lines.insert(first_stage, line)
+    new = "\n".join(lines) + "\n"
+    load_text(new, out)  # the copy must be a valid netlist before it is written
+    write_atomically(_writable(out), new)
+    print(f"wrote {out} ({switched} stage(s) switched from {like} to {name}); next: chain report {out}")
+
+
 _COMMANDS = {
+    "fit": _cmd_fit,
     "transfer": _cmd_transfer,
     "formulas": _cmd_formulas,
     "headroom": _cmd_headroom,

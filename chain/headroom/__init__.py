@@ -9,7 +9,7 @@ triodes with their full plate- and grid-current model.
 * :func:`transfer_curves` → :class:`TransferCurves` — every stage's input and
   output node, and the chain output, against the swept source voltage;
 * :func:`headroom` → :class:`Headroom` — per stage the grid-conduction and
-  cutoff onsets per half-wave, THD thresholds, output swing, margin at the
+  cutoff onsets and the 1 dB / 3 dB compression points per half-wave, THD thresholds, output swing, margin at the
   stated level; the first stage to clip and a one-line summary; the limits
   of the method;
 * :func:`distortion` → :class:`Distortion` — harmonics 2–9 and THD of a sine
@@ -18,7 +18,9 @@ triodes with their full plate- and grid-current model.
 """
 
 from chain.headroom.clipping import (
+    COMPRESSION_DB,
     CUTOFF,
+    Compression,
     GRID_CONDUCTION,
     LIMITS,
     HalfWaveLimit,
@@ -41,6 +43,8 @@ __all__ = [
     "StageHeadroom",
     "HalfWaveLimit",
     "Onset",
+    "Compression",
+    "COMPRESSION_DB",
     "GRID_CONDUCTION",
     "CUTOFF",
     "LIMITS",

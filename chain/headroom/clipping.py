@@ -10,6 +10,12 @@ half-cycle where the source EMF is positive):
   source impedance start to drop the signal.
 * **cutoff** — the plate current falls below ``cutoff_fraction`` (default
   1 %) of its quiescent value.
+* **compression** — the source peak at which the stage's incremental gain
+  d(output)/d(its input), read along the swept transfer curve, has fallen
+  1 dB and 3 dB below its value at rest (the bench measurement: the gain
+  has halved well before the plate current reaches the cutoff criterion).
+  A gain that rises first (a triode's, as its grid nears 0 V) counts from
+  its value at rest, not from its peak.
 * **THD thresholds** — the source peak at which the THD the stage itself
   adds (:mod:`chain.headroom.distortion`) reaches each of ``thd_levels``
   (default 1 % and 5 %): for a whole sine, and for each half-wave alone.
@@ -49,6 +55,8 @@ __all__ = [
     "LIMITS",
     "dbv",
     "Onset",
+    "Compression",
+    "COMPRESSION_DB",
     "HalfWaveLimit",
     "StageHeadroom",
     "Headroom",
@@ -107,6 +115,36 @@ class Onset:
         return dbv(self.input_v)
 
 
+#: gain drops (dB) at which compression points are reported
+COMPRESSION_DB = (1.0, 3.0)
+
+
+@dataclass(frozen=True, slots=True)
+class Compression:
+    """Where a stage's incremental gain has fallen by ``db`` on one half-wave.
+
+    Attributes
+    ----------
+    db : float
+        Gain drop, dB (1 or 3).
+    input_v : float
+        Source peak, V.
+    stage_input_v : float
+        Excursion of the stage's input node there, V.
+    output_v : float
+        Excursion of the stage's output node there, V.
+    """
+
+    db: float
+    input_v: float
+    stage_input_v: float
+    output_v: float
+
+    @property
+    def input_dbv(self) -> float:
+        return dbv(self.input_v)
+
+
 @dataclass(frozen=True, slots=True)
 class HalfWaveLimit:
     """One stage on one half-wave of the source.
@@ -124,6 +162,8 @@ class HalfWaveLimit:
         :attr:`Headroom.thd_levels` of own THD, V (None: not reached).
     swept_to_v : float
         Largest source magnitude swept on this side, V.
+    compression : tuple[Compression | None, ...]
+        One per :data:`COMPRESSION_DB` (None: not reached in the sweep).
     """
 
     polarity: str
@@ -131,6 +171,7 @@ class HalfWaveLimit:
     cutoff: Onset | None
     thd_input_v: tuple[float | None, ...]
     swept_to_v: float
+    compression: tuple[Compression | None, ...] = ()
 
     @property
     def first(self) -> Onset | None:
@@ -210,6 +251,13 @@ class StageHeadroom:
 
     def half(self, polarity: str) -> HalfWaveLimit:
         return {"positive": self.positive, "negative": self.negative}[polarity]
+
+    def compression(self, db: float) -> Compression | None:
+        """The earlier of the two half-waves' compression points for ``db`` (1 or 3)."""
+        k = COMPRESSION_DB.index(db)
+        found = [h.compression[k] for h in (self.positive, self.negative)
+                 if len(h.compression) > k and h.compression[k] is not None]
+        return min(found, key=lambda c: c.input_v) if found else None
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -338,6 +386,48 @@ def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, pola
     return Onset(mechanism, abs(v), float(volts[0]), float(volts[1])), k - 1
 
 
+def _compression(curves: TransferCurves, stage: StageRecord, polarity: str) -> tuple[Compression | None, ...]:
+    """Compression points of one stage on one half-wave, from the swept curve.
+
+    The incremental gain on each sweep segment is Δ(output)/Δ(input) of the
+    stage's own nodes; the reference is the first segment (the small-signal
+    gain at rest).  The crossing of ``reference · 10^(−dB/20)`` is
+    interpolated linearly in the segment index between the two segments
+    around it (segment midpoints), and the levels there likewise.
+    """
+    idx = _side(curves, polarity)
+    if idx.size < 3:
+        return tuple(None for _ in COMPRESSION_DB)
+    v = np.abs(curves.input_v[idx])
+    x = curves.node_dv[stage.input][idx]
+    y = curves.node_dv[stage.output][idx]
+    dx, dy = np.diff(x), np.diff(y)
+    ok = np.abs(dx) > 1e-12 * max(float(np.abs(x).max()), 1e-30)
+    gain = np.full(dx.size, np.nan)
+    gain[ok] = np.abs(dy[ok] / dx[ok])
+    if not np.isfinite(gain[0]) or gain[0] <= 0.0:
+        return tuple(None for _ in COMPRESSION_DB)
+    mid_v = 0.5 * (v[1:] + v[:-1])
+    mid_x = 0.5 * (x[1:] + x[:-1])
+    mid_y = 0.5 * (y[1:] + y[:-1])
+    out = []
+    for db in COMPRESSION_DB:
+        target = gain[0] * 10.0 ** (-db / 20.0)
+        below = np.flatnonzero(np.isfinite(gain) & (gain <= target))
+        if below.size == 0:
+            out.append(None)
+            continue
+        k = int(below[0])
+        if k == 0:
+            out.append(Compression(db, 0.0, 0.0, 0.0))
+            continue
+        g0, g1 = gain[k - 1], gain[k]
+        t = (g0 - target) / (g0 - g1) if np.isfinite(g0) and g0 != g1 else 1.0
+        lerp = (lambda a: float(a[k - 1] + t * (a[k] - a[k - 1])))
+        out.append(Compression(db, lerp(mid_v), lerp(mid_x), lerp(mid_y)))
+    return tuple(out)
+
+
 def _thd_thresholds(curves: TransferCurves, stage: StageRecord, levels: np.ndarray, thd_levels, *,
                     half: str | None) -> tuple[float | None, ...]:
     if levels.size == 0:
@@ -355,7 +445,8 @@ def _half_wave(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, 
     levels = np.abs(curves.input_v[idx[1:]])
     limit = HalfWaveLimit(polarity=polarity, grid=grid, cutoff=cut,
                           thd_input_v=_thd_thresholds(curves, stage, levels, thd_levels, half=polarity),
-                          swept_to_v=float(levels[-1]) if levels.size else 0.0)
+                          swept_to_v=float(levels[-1]) if levels.size else 0.0,
+                          compression=_compression(curves, stage, polarity))
     first = limit.first
     y = curves.node_dv[stage.output][idx]
     if first is None:
@@ -408,6 +499,8 @@ def _definitions(cutoff_fraction: float, thd_levels) -> tuple[str, ...]:
         "grid conduction: the grid-cathode voltage reaches the grid-current onset of the tube model "
         "(0 V for the built-in types, where the grid draws about 3 µA and rising)",
         f"cutoff: the plate current falls below {100 * cutoff_fraction:g} % of its quiescent value",
+        "compression (1 dB, 3 dB): the stage's incremental gain d(output)/d(its input) has fallen that far "
+        "below its value at rest, on either half-wave",
         f"THD thresholds ({levels}): the distortion the stage adds itself, sqrt(r2² + … + r9²)/y1 with r "
         "the stage output minus its actual input scaled by the gain at the fundamental (a null test); per "
         "half-wave on the odd-symmetric extension of that half-wave",

@@ -89,13 +89,15 @@ class Rail:
 
 @dataclass(frozen=True, slots=True)
 class TubeDef:
-    """A tube model defined in the netlist: a base type (or none) plus
-    parameter overrides, ``(key, value)`` pairs in SI units."""
+    """A tube model defined in the netlist: a base type (or none), a model
+    form (``None``: the base's form) and parameter overrides, ``(key,
+    value)`` pairs in SI units."""
 
     name: str
     base: str | None
     params: tuple[tuple[str, float], ...]
     span: Span = _span()
+    form: str | None = None
 
 
 @dataclass(frozen=True, slots=True)

@@ -37,6 +37,7 @@ from chain.language.design import (
     Supply,
     TubeDef,
 )
+from chain.tubes.model import FORMS
 from chain.units import QuantityError, parse_quantity
 
 __all__ = ["parse_text", "parse_file", "parse_syntax"]
@@ -52,7 +53,9 @@ TERMINAL_SYNONYMS = {"anode": "plate"}
 
 #: units expected for each tube parameter key (None: a plain number)
 TUBE_KEYS = {
-    "mu": None, "ex": None, "kg1": None, "kp": None, "kvb": None,
+    "mu": None, "ex": None, "kg1": None, "kp": None, "kvb": None, "vct": "V",
+    "ig-k": None, "ig-onset": "V", "ig-knee": "V",
+    "g": None, "gamma": None, "c": None, "gg": None, "xi": None, "cg": None, "ig0": "A",
     "cgk": "F", "cgp": "F", "cpk": "F",
     "vp-max": "V", "pd-max": "W", "ik-max": "A", "vhk-max": "V", "rg-max": "ohm", "vp0-max": "V",
 }
@@ -505,9 +508,11 @@ class _Builder:
     def _tube(self, tree, span):
         children = list(tree.children)
         name = children.pop(0)
-        base = None
-        if children and not hasattr(children[0], "data"):
-            base = str(children.pop(0))
+        base = form = None
+        if children and getattr(children[0], "data", None) == "tube_like":
+            base = str(children.pop(0).children[0])
+        if children and getattr(children[0], "data", None) == "tube_form":
+            form = children.pop(0).children[0]
         params = []
         problems = []
         for p in children:
@@ -523,9 +528,14 @@ class _Builder:
                 params.append((key, self.value(val, span, TUBE_KEYS[key], f"tube parameter {key}")))
             except _LineErrors as exc:
                 problems.extend(exc.diagnostics)
+        if form is not None and str(form) not in FORMS:
+            close = difflib.get_close_matches(str(form), list(FORMS), n=1)
+            problems.append(error("E260", f"unknown tube model form '{form}'", self.at(form, span),
+                                  f"did you mean '{close[0]}'?" if close else "known: " + ", ".join(FORMS)))
         if problems:
             raise _LineErrors(problems)
-        self.tubes.append(TubeDef(str(name), base, tuple(params), self.at(name, span)))
+        self.tubes.append(TubeDef(str(name), base, tuple(params), self.at(name, span),
+                                  None if form is None else str(form)))
 
     def _stage(self, tree, span):
         name, kind, tube = tree.children

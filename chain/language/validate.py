@@ -16,6 +16,14 @@ from chain.errors import Diagnostic, LanguageError, Span, error, warning
 from chain.language.design import ANALYSED_KINDS, TERMINALS, Design, Pot, Stage
 from chain.tubes import LIBRARY, lookup
 
+#: tube-line keys of each model form (capacitances and ratings belong to every form)
+FORM_KEYS = {
+    "koren": ("mu", "ex", "kg1", "kp", "kvb", "vct", "ig-k", "ig-onset", "ig-knee"),
+    "dempwolf": ("mu", "g", "gamma", "c", "vct", "gg", "xi", "cg", "ig0"),
+}
+#: keys a tube without 'like' must give, per form
+REQUIRED_KEYS = {"koren": ("mu", "ex", "kg1", "kp", "kvb"), "dempwolf": ("mu", "g", "gamma", "c")}
+
 __all__ = ["check", "RANGES", "network_node_name"]
 
 #: sensible limits per role, SI units: (low, high, what)
@@ -56,7 +64,16 @@ RANGES = {
 #: is a typing slip (a missing prefix, a stray exponent), not a tube.
 TUBE_RANGES = {
     "mu": (1.0, 1000.0, "", "amplification factor mu", False),
-    "ex": (0.5, 3.0, "", "exponent ex", False),
+    "ex": (1.01, 3.0, "", "exponent ex", False),
+    "ig-k": (0.0, 1.0, "", "grid perveance ig-k (A/V^1.5)", True),
+    "ig-knee": (1e-3, 1.0, "V", "grid-current knee ig-knee", False),
+    "g": (1e-7, 1.0, "", "Dempwolf perveance g", False),
+    "gamma": (1.01, 3.0, "", "Dempwolf exponent gamma", False),
+    "c": (0.01, 100.0, "", "Dempwolf smoothing c (1/V)", False),
+    "gg": (1e-9, 1.0, "", "Dempwolf grid perveance gg", False),
+    "xi": (1.01, 3.0, "", "Dempwolf grid exponent xi", False),
+    "cg": (0.01, 100.0, "", "Dempwolf grid smoothing cg (1/V)", False),
+    "ig0": (0.0, 1e-3, "A", "Dempwolf grid offset current ig0", True),
     "kg1": (1.0, 1e6, "", "kg1", False),
     "kp": (0.1, 1e5, "", "kp", False),
     "kvb": (1.0, 1e7, "", "kvb", False),
@@ -230,6 +247,26 @@ class _Checker:
             if cur in seen:
                 self.err("E205", f"rail '{r.name}' is fed in a loop and never reaches a supply", r.span)
 
+    def tube_form(self, name: str, depth: int = 0) -> str:
+        """The model form a tube definition ends up with (its own, its base's, or "koren")."""
+        defs = {t.name: t for t in self.d.tubes}
+        t = defs.get(name)
+        if t is None or depth > len(defs):
+            try:
+                return lookup(name).form
+            except KeyError:
+                return "koren"
+        if t.form is not None:
+            return t.form
+        if t.base is None:
+            return "koren"
+        if t.base == t.name:
+            try:
+                return lookup(t.base).form
+            except KeyError:
+                return "koren"
+        return self.tube_form(t.base, depth + 1)
+
     def check_tubes(self) -> set[str]:
         known = set(LIBRARY) | {t.name for t in self.d.tubes}
         bases = {t.name: t.base for t in self.d.tubes}
@@ -247,15 +284,23 @@ class _Checker:
                 except KeyError:
                     if t.base not in {u.name for u in self.d.tubes}:
                         self.unknown_tube(t.base, t.span, {u.name for u in self.d.tubes})
-            elif {k for k, _ in t.params} < {"mu", "ex", "kg1", "kp", "kvb"} | set():
-                pass
+            form = self.tube_form(t.name)
             if t.base is None:
-                missing = [k for k in ("mu", "ex", "kg1", "kp", "kvb") if k not in dict(t.params)]
+                required = REQUIRED_KEYS[form]
+                missing = [k for k in required if k not in dict(t.params)]
                 if missing:
-                    self.err("E207", f"tube '{t.name}' needs the model parameters {', '.join(missing)} "
+                    self.err("E207", f"tube '{t.name}' needs the {form} model parameters {', '.join(missing)} "
                              "(or 'like TYPE' to start from a built-in type)", t.span)
             for key, value in t.params:
+                other = next((f for f, keys in FORM_KEYS.items() if f != form and key in keys), None)
+                if key not in FORM_KEYS[form] and other is not None:
+                    self.err("E261", f"tube '{t.name}': '{key}' is a parameter of the {other} form, "
+                             f"but this tube uses the {form} form", self._key_span(t.span, key),
+                             f"write 'model {other}' or use the {form} keys: {', '.join(FORM_KEYS[form])}")
                 self.tube_value(t.name, key, value, self._key_span(t.span, key))
+                if key in ("vct", "ig-onset") and not abs(value) <= 5.0:
+                    self.err("E302", f"tube '{t.name}': {key} of {value:g} V is outside the sensible range "
+                             "-5 V to 5 V", self._key_span(t.span, key), subject=t.name)
         return known
 
     def tube_value(self, tube: str, key: str, value: float, span: Span) -> None:

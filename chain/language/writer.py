@@ -42,7 +42,8 @@ def _tube_value(key: str, value: float) -> str:
         return _c(value)
     if key == "rg-max":
         return _r(value)
-    unit = {"vp-max": "V", "vp0-max": "V", "pd-max": "W", "ik-max": "A", "vhk-max": "V"}.get(key, "")
+    unit = {"vp-max": "V", "vp0-max": "V", "pd-max": "W", "ik-max": "A", "vhk-max": "V", "vct": "V",
+            "ig-onset": "V", "ig-knee": "V", "ig0": "A"}.get(key, "")
     return f"{_n(value)}{unit}"
 
 
@@ -70,6 +71,7 @@ def format_design(d: Design) -> str:
         out.append(f"rail {r.name} from {r.feed} drop {_r(r.drop_ohm)}{dec}")
     for t in d.tubes:
         like = f" like {t.base}" if t.base else ""
+        like += f" model {t.form}" if t.form else ""
         params = "".join(f" {k} {_tube_value(k, v)}" for k, v in t.params)
         out.append(f"tube {t.name}{like}{params}")
     if d.source is not None:

@@ -82,8 +82,14 @@ def _part(name, kind, owner, nodes, value, unit, rated_v=None, tube=None) -> dic
 
 def _tube(triode) -> dict[str, Any]:
     m, r = triode.model, triode.model.ratings
+    from chain.tubes import form_parameters
+
     return {
         "type": m.name,
+        "form": m.form,
+        "parameters": {k: num(v) for k, v in form_parameters(m)},
+        "source": m.source,
+        "vct": num(m.vct),
         "mu": num(m.mu), "ex": num(m.ex), "kg1": num(m.kg1), "kp": num(m.kp), "kvb": num(m.kvb),
         "cgk_f": num(m.cgk_f), "cgp_f": num(m.cgp_f), "cpk_f": num(m.cpk_f),
         "grid_perveance_a_v15": num(m.grid_perveance_a_v15), "grid_onset_v": num(m.grid_onset_v),

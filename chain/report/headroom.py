@@ -26,6 +26,7 @@ def _half(h) -> dict[str, Any]:
     return {
         "mechanism": h.mechanism, "grid": _onset(h.grid), "cutoff": _onset(h.cutoff),
         "thd_input_v": [num(v) for v in h.thd_input_v], "swept_to_v": num(h.swept_to_v),
+        "compression": [_onset(c) for c in h.compression],
     }
 
 
@@ -56,6 +57,8 @@ def headroom_data(headroom) -> dict[str, Any] | None:
     """
     if headroom is None:
         return None
+    from chain.headroom.clipping import COMPRESSION_DB
+
     first = headroom.first
     stages = []
     for s in headroom.stages:
@@ -65,6 +68,8 @@ def headroom_data(headroom) -> dict[str, Any] | None:
             "clip_input_v": num(s.clip_input_v), "mechanism": s.mechanism, "polarity": s.first_polarity or None,
             "margin_db": margin, "swing_pos_v": num(s.swing_pos_v), "swing_neg_v": num(s.swing_neg_v),
             "thd_input_v": [num(v) for v in s.thd_input_v],
+            "compression_input_v": [None if c is None else num(c.input_v)
+                                    for c in (s.compression(db) for db in COMPRESSION_DB)],
             "positive": _half(s.positive), "negative": _half(s.negative),
         })
     return {
@@ -77,6 +82,7 @@ def headroom_data(headroom) -> dict[str, Any] | None:
         "thd_levels": [num(t) for t in headroom.thd_levels],
         "overall_thd_input_v": [num(v) for v in headroom.overall_thd_input_v],
         "cutoff_fraction": num(headroom.cutoff_fraction),
+        "compression_db": [num(db) for db in COMPRESSION_DB],
         "stages": stages,
         "distortion": _distortion(headroom.distortion),
         "definitions": list(headroom.definitions),
@@ -130,6 +136,8 @@ def text_lines(h: dict[str, Any], kv: Callable[[str, str], str]) -> list[str]:
         n = s["stage"]
         where = "" if s["mechanism"] == "none" else f", {s['mechanism']}, {s['polarity']} half-wave"
         out.append(kv(f"{n} clips at input", _level(s["clip_input_v"]) + where))
+        for db, v in zip(h["compression_db"], s["compression_input_v"]):
+            out.append(kv(f"{n} gain down {fmt.plain(db)} dB at input", _level(v)))
         out.append(kv(f"{n} margin at stated level", _margin(s["margin_db"])))
         out.append(kv(f"{n} output swing", f"+{fmt.volts(s['swing_pos_v'])} / {fmt.volts(s['swing_neg_v'])}"))
         for t, v in zip(h["thd_levels"], s["thd_input_v"]):
@@ -150,12 +158,15 @@ def markdown_lines(h: dict[str, Any]) -> list[str]:
     """The headroom facts as Markdown tables."""
     from chain.report.fmt import markdown_table as _table
 
-    head = ["stage", "clips at input", "mechanism", "half-wave", "margin", "swing +", "swing −"]
+    head = ["stage", "clips at input", "mechanism", "half-wave"]
+    head += [f"gain −{fmt.plain(db)} dB at input" for db in h["compression_db"]]
+    head += ["margin", "swing +", "swing −"]
     head += [f"input for {_thd_label(t)}" for t in h["thd_levels"]]
     rows = []
     for s in h["stages"]:
-        rows.append([s["stage"], _level(s["clip_input_v"]), s["mechanism"], s["polarity"] or "—",
-                     _margin(s["margin_db"]), fmt.volts(s["swing_pos_v"]), fmt.volts(s["swing_neg_v"])]
+        rows.append([s["stage"], _level(s["clip_input_v"]), s["mechanism"], s["polarity"] or "—"]
+                    + [_level(v) for v in s["compression_input_v"]]
+                    + [_margin(s["margin_db"]), fmt.volts(s["swing_pos_v"]), fmt.volts(s["swing_neg_v"])]
                     + [_level(v) for v in s["thd_input_v"]])
     out = [f"Stated input level {fmt.volts(h['level_v'])} peak ({_dbv(h['level_v'])}).", "",
            f"Summary: {h['summary']}.", ""]

@@ -81,6 +81,9 @@ def bias_table(design: Design, circuit: Circuit, dc) -> str:
     lines.append("rails")
     for name, r in dc.rails.items():
         lines.append(f"  {name:<8}{format_si(r.v, 'V', 4):>10}  draws {format_si(r.i_a, 'A', 4)}")
+    lines.append("")
+    lines.append("tube models")
+    lines.extend(tube_model_lines(circuit))
     rated = [c for c in dc.capacitors.values() if c.rated_v is not None]
     if rated:
         lines.append("")
@@ -96,6 +99,24 @@ def bias_table(design: Design, circuit: Circuit, dc) -> str:
         for d in dc.diagnostics:
             lines.append(f"  {d.severity} {d.code}: {d.message}")
     return "\n".join(lines)
+
+
+def tube_model_lines(circuit: Circuit) -> list[str]:
+    """One entry per tube model in use: its form, parameters and where they come from."""
+    from chain.tubes import form_parameters
+
+    seen: dict[str, list[str]] = {}
+    models = {}
+    for t in circuit.triodes:
+        seen.setdefault(t.model.name, []).append(t.name)
+        models[t.model.name] = t.model
+    out = []
+    for name, users in seen.items():
+        m = models[name]
+        params = " ".join(f"{k} {v:.4g}" for k, v in form_parameters(m))
+        out.append(f"  {name} ({', '.join(users)}): {m.form} form — {params}")
+        out.append(f"    {m.source}")
+    return out
 
 
 def formulas_text(design: Design, results, *, latex: bool = False) -> str:

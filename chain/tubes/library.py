@@ -1,23 +1,14 @@
 """Built-in triode parameter sets, looked up by type designation.
 
-Every value carries its source in a comment beside it.  None of the printed
-sources could be checked while this table was written, so each is marked
-"from memory of <source>"; docs/models.md lists the measured deviations of
-each set from its handbook operating points.
-
-How the Koren parameters were obtained (the same procedure for every type):
-``ex`` fixed at 1.4 (the exponent of the published 12AX7 set in Koren 1996,
-close to the Child–Langmuir 3/2); ``mu, kg1, kp, kvb`` fitted by least
-squares to the logarithms of the handbook plate current, transconductance
-and plate resistance at the handbook typical operating point(s) (the 250 V
-point weighted 4×, a second point 1×), with a weak pull (weight 0.3) of
-``mu`` toward the handbook amplification factor and a penalty (weight 2) on
-variation of gm·rp over the decade of plate current below rated dissipation
-at 250 V; ``kvb`` bounded to 100…30 000 V²; results rounded to 4 significant
-figures.  The sets published in Koren 1996 were the starting point; they were
-not kept because they miss the handbook points (12AX7: −21 % current at
-250 V/−2 V and −80 % at 100 V/−1 V; 12AT7: +28 % current, +31 % gm) or let
-gm·rp drift by ±18 % over that decade (12AU7).
+The model parameters are fitted, reproducibly, to the plate-curve points in
+``chain/tubes/data/<TYPE>.csv`` by :mod:`chain.tubes.fit`; the fitted values
+live in the generated module :mod:`chain.tubes.fitted` (``python -m
+chain.tubes.fit`` rewrites it).  Every type carries a fitted set for each
+model form; :data:`LIBRARY_FORM` says which form the library uses.
+Capacitances and ratings are typed in here, each with its source beside it.
+None of the printed sources could be checked while this table was written,
+so each is marked "from memory of <source>"; docs/models.md shows each type's
+data against each model form and the residuals.
 """
 
 from __future__ import annotations
@@ -27,27 +18,37 @@ import re
 from types import MappingProxyType
 from typing import Mapping
 
+from chain.tubes.fitted import PARAMS
 from chain.tubes.model import Ratings, TriodeModel
 
-__all__ = ["LIBRARY", "UnknownTubeError", "lookup", "names"]
+__all__ = ["LIBRARY", "LIBRARY_FORM", "UnknownTubeError", "lookup", "names"]
 
 _PF = 1e-12
 
-_FIT = (
-    "Koren equation (Koren 1996); mu, kg1, kp, kvb fitted with ex = 1.4 to the handbook "
-    "points {points} (procedure in chain/tubes/library.py and docs/models.md), "
-    "starting from {start}"
-)
+#: The model form each built-in type uses.  The Koren form with its
+#: contact-potential term meets the held-out handbook points of every type
+#: and keeps mu within ±15 % of the handbook from 50 to 300 V and 0.2 to 2 mA;
+#: the Dempwolf–Zölzer form, whose softplus cannot shift the curves by a
+#: contact potential, misses the 12AX7's and 12AU7's second handbook gm by
+#: 20–26 % (docs/models.md, residual tables).
+LIBRARY_FORM = {"12AX7": "koren", "12AT7": "koren", "12AU7": "koren", "12AY7": "koren", "5751": "koren",
+                "6SN7": "koren"}
+
+_DATA = "fitted to the points of chain/tubes/data/{name}.csv by chain.tubes.fit ({sources})"
+
+
+def _fitted(name: str) -> dict:
+    """Keyword arguments of one type's fitted parameters, both forms, and its form."""
+    out = {}
+    for form_params in PARAMS[name].values():
+        out.update(form_params)
+    return {**out, "form": LIBRARY_FORM[name]}
+
 
 # --------------------------------------------------------------------------- 12AX7
 _12AX7 = TriodeModel(
     name="12AX7",
     aliases=("ECC83", "12AX7A", "7025"),
-    mu=113.4,  # fitted; handbook mu 100 (from memory of RCA RC-30, 12AX7)
-    ex=1.4,  # from memory of Koren 1996, 12AX7 set
-    kg1=911.4,  # fitted
-    kp=536.9,  # fitted
-    kvb=24840.0,  # fitted (Koren 1996 used 300)
     cgk_f=1.6 * _PF,  # from memory of RCA RC-30: input capacitance, section 1
     cgp_f=1.7 * _PF,  # from memory of RCA RC-30: grid to plate
     cpk_f=0.46 * _PF,  # from memory of RCA RC-30: output capacitance, section 1 (0.34 pF section 2)
@@ -60,23 +61,14 @@ _12AX7 = TriodeModel(
         vp_cold_max_v=550.0,  # from memory of Philips ECC83 data sheet (plate voltage without current)
         source="from memory of Philips ECC83 data sheet and RCA Receiving Tube Manual RC-30 (12AX7)",
     ),
-    source=_FIT.format(
-        points="250 V/-2 V: 1.2 mA, 1.6 mA/V, 62.5 kOhm and 100 V/-1 V: 0.5 mA, 1.25 mA/V, 80 kOhm "
-        "(from memory of RCA Receiving Tube Manual RC-30)",
-        start="Koren 1996 12AX7 set mu=100, ex=1.4, kg1=1060, kp=600, kvb=300 (from memory), "
-        "which gives -21 % current at 250 V/-2 V",
-    ),
+    source=_DATA.format(name="12AX7", sources="from memory of RCA Receiving Tube Manual RC-30, 12AX7 plate characteristics"),
+    **_fitted("12AX7"),
 )
 
 # --------------------------------------------------------------------------- 12AT7
 _12AT7 = TriodeModel(
     name="12AT7",
     aliases=("ECC81",),
-    mu=61.15,  # fitted; handbook mu 60 (from memory of RCA RC-30, 12AT7)
-    ex=1.4,  # fixed (Koren 1996 used 1.35 for this type)
-    kg1=627.8,  # fitted
-    kp=642.5,  # fitted
-    kvb=13430.0,  # fitted
     cgk_f=2.2 * _PF,  # from memory of RCA RC-30: input capacitance
     cgp_f=1.5 * _PF,  # from memory of RCA RC-30: grid to plate
     cpk_f=0.5 * _PF,  # from memory of RCA RC-30: output capacitance, section 1 (0.4 pF section 2)
@@ -89,23 +81,14 @@ _12AT7 = TriodeModel(
         vp_cold_max_v=550.0,  # from memory of Philips ECC81 data sheet (plate voltage without current)
         source="from memory of Philips ECC81 data sheet and RCA Receiving Tube Manual RC-30 (12AT7)",
     ),
-    source=_FIT.format(
-        points="250 V/-2 V: 10 mA, 5.5 mA/V, 10.9 kOhm and 100 V/-1 V (270 Ohm cathode resistor): "
-        "3.7 mA, 4.0 mA/V, 15 kOhm (from memory of RCA Receiving Tube Manual RC-30)",
-        start="Koren 1996 12AT7 set mu=60, ex=1.35, kg1=460, kp=300, kvb=300 (from memory), "
-        "which gives +28 % current and +31 % gm at 250 V/-2 V",
-    ),
+    source=_DATA.format(name="12AT7", sources="from memory of RCA Receiving Tube Manual RC-30, 12AT7 plate characteristics"),
+    **_fitted("12AT7"),
 )
 
 # --------------------------------------------------------------------------- 12AU7
 _12AU7 = TriodeModel(
     name="12AU7",
     aliases=("ECC82", "12AU7A", "5814A"),
-    mu=16.79,  # fitted; handbook mu 17 (from memory of RCA RC-30, 12AU7)
-    ex=1.4,  # fixed (Koren 1996 used 1.3 for this type)
-    kg1=2599.0,  # fitted
-    kp=739.9,  # fitted
-    kvb=100.0,  # fitted, at the lower bound of the fit
     cgk_f=1.6 * _PF,  # from memory of RCA RC-30: input capacitance
     cgp_f=1.5 * _PF,  # from memory of RCA RC-30: grid to plate
     cpk_f=0.5 * _PF,  # from memory of RCA RC-30: output capacitance, section 1 (0.35 pF section 2)
@@ -118,24 +101,14 @@ _12AU7 = TriodeModel(
         vp_cold_max_v=550.0,  # from memory of Philips ECC82 data sheet (plate voltage without current)
         source="from memory of Philips ECC82 data sheet and RCA Receiving Tube Manual RC-30 (12AU7)",
     ),
-    source=_FIT.format(
-        points="250 V/-8.5 V: 10.5 mA, 2.2 mA/V, 7.7 kOhm and 100 V/0 V: 11.8 mA, 3.1 mA/V, "
-        "6.25 kOhm (from memory of RCA Receiving Tube Manual RC-30)",
-        start="Koren 1996 12AU7 set mu=21.5, ex=1.3, kg1=1180, kp=84, kvb=300 (from memory), "
-        "which meets the 250 V point (-1 % current, +13 % gm) but lets gm*rp vary by +-18 % "
-        "over 1.1-11 mA at 250 V",
-    ),
+    source=_DATA.format(name="12AU7", sources="from memory of RCA Receiving Tube Manual RC-30, 12AU7 plate characteristics"),
+    **_fitted("12AU7"),
 )
 
 # --------------------------------------------------------------------------- 12AY7
 _12AY7 = TriodeModel(
     name="12AY7",
     aliases=("6072", "6072A"),
-    mu=43.31,  # fitted; handbook mu 44 (from memory of RCA RC-30, 12AY7)
-    ex=1.4,  # fixed
-    kg1=1933.0,  # fitted
-    kp=440.6,  # fitted
-    kvb=12670.0,  # fitted
     cgk_f=1.3 * _PF,  # from memory of RCA RC-30: input capacitance (uncertain)
     cgp_f=1.3 * _PF,  # from memory of RCA RC-30: grid to plate (uncertain)
     cpk_f=0.6 * _PF,  # from memory of RCA RC-30: output capacitance (uncertain)
@@ -147,22 +120,14 @@ _12AY7 = TriodeModel(
         rg_max_ohm=None,  # not known
         source="from memory of RCA Receiving Tube Manual RC-30 (12AY7)",
     ),
-    source=_FIT.format(
-        points="250 V/-4 V: 3.0 mA, 1.75 mA/V, 25 kOhm (from memory of RCA Receiving Tube "
-        "Manual RC-30); one point only, so the curve away from it is extrapolation",
-        start="mu=44 (no Koren 1996 set for this type)",
-    ),
+    source=_DATA.format(name="12AY7", sources="from memory of RCA Receiving Tube Manual RC-30, 12AY7 plate characteristics"),
+    **_fitted("12AY7"),
 )
 
 # --------------------------------------------------------------------------- 5751
 _5751 = TriodeModel(
     name="5751",
     aliases=(),
-    mu=68.88,  # fitted; handbook mu 70 (from memory of GE 5751 data sheet)
-    ex=1.4,  # fixed
-    kg1=1897.0,  # fitted
-    kp=645.0,  # fitted
-    kvb=14630.0,  # fitted
     cgk_f=1.6 * _PF,  # taken equal to the 12AX7 (same construction family), not from a 5751 sheet
     cgp_f=1.7 * _PF,  # taken equal to the 12AX7, not from a 5751 sheet
     cpk_f=0.46 * _PF,  # taken equal to the 12AX7, not from a 5751 sheet
@@ -174,22 +139,14 @@ _5751 = TriodeModel(
         rg_max_ohm=None,  # not known
         source="from memory of GE 5751 data sheet",
     ),
-    source=_FIT.format(
-        points="250 V/-3 V: 1.0 mA, 1.2 mA/V, 58 kOhm (from memory of GE 5751 data sheet); "
-        "one point only, so the curve away from it is extrapolation",
-        start="mu=70 (no Koren 1996 set for this type)",
-    ),
+    source=_DATA.format(name="5751", sources="from memory of the GE 5751 data sheet, plate characteristics"),
+    **_fitted("5751"),
 )
 
 # --------------------------------------------------------------------------- 6SN7
 _6SN7 = TriodeModel(
     name="6SN7",
     aliases=("6SN7GTB", "6SN7GTA"),
-    mu=19.9,  # fitted; handbook mu 20 (from memory of RCA RC-30, 6SN7GTB)
-    ex=1.4,  # fixed
-    kg1=1910.0,  # fitted
-    kp=190.6,  # fitted
-    kvb=120.9,  # fitted
     cgk_f=3.0 * _PF,  # from memory of RCA RC-30: input capacitance (uncertain)
     cgp_f=4.0 * _PF,  # from memory of RCA RC-30: grid to plate (uncertain)
     cpk_f=1.2 * _PF,  # from memory of RCA RC-30: output capacitance (uncertain)
@@ -202,11 +159,8 @@ _6SN7 = TriodeModel(
         source="from memory of RCA Receiving Tube Manual RC-30 (6SN7GTB); the older 6SN7GT "
         "has lower ratings and is deliberately not an alias",
     ),
-    source=_FIT.format(
-        points="250 V/-8 V: 9 mA, 2.6 mA/V, 7.7 kOhm and 90 V/0 V: 10 mA, 3.0 mA/V, 6.7 kOhm "
-        "(from memory of RCA Receiving Tube Manual RC-30, 6SN7GTB)",
-        start="mu=20 (no Koren 1996 set remembered for this type)",
-    ),
+    source=_DATA.format(name="6SN7", sources="from memory of RCA Receiving Tube Manual RC-30, 6SN7GTB plate characteristics"),
+    **_fitted("6SN7"),
 )
 
 _ALL = (_12AX7, _12AT7, _12AU7, _12AY7, _5751, _6SN7)

@@ -26,6 +26,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 __all__ = [
+    "FORMS",
+    "FORM_FIELDS",
+    "form_parameters",
     "V_LIMIT_V",
     "Ratings",
     "TriodeModel",
@@ -36,6 +39,21 @@ __all__ = [
     "grid_current",
     "grid_current_and_derivative",
 ]
+
+#: Model forms a :class:`TriodeModel` can use for its plate and grid current:
+#: ``"koren"`` (Koren 1996 with the contact-potential term of Cohen and Hélie
+#: 2010, and the grid-current approximation of :func:`grid_current_and_derivative`)
+#: and ``"dempwolf"`` (Dempwolf and Zölzer 2011, plate and grid current).
+FORMS = ("koren", "dempwolf")
+
+#: Netlist tube-line key → :class:`TriodeModel` field of each form's
+#: parameters (capacitances and ratings are common to all forms).
+FORM_FIELDS = {
+    "koren": (("mu", "mu"), ("ex", "ex"), ("kg1", "kg1"), ("kp", "kp"), ("kvb", "kvb"), ("vct", "vct"),
+              ("ig-k", "grid_perveance_a_v15"), ("ig-onset", "grid_onset_v"), ("ig-knee", "grid_knee_v")),
+    "dempwolf": (("mu", "dz_mu"), ("g", "dz_g"), ("gamma", "dz_gamma"), ("c", "dz_c"), ("vct", "dz_vct"), ("gg", "dz_gg"),
+                 ("xi", "dz_xi"), ("cg", "dz_cg"), ("ig0", "dz_ig0")),
+}
 
 #: Electrode voltages are clipped to ±V_LIMIT_V (1 MV) before evaluation, far
 #: beyond any receiving tube; past the clip the current is constant and its
@@ -149,26 +167,51 @@ class TriodeModel:
     grid_knee_v: float = 0.05
     source: str
     aliases: tuple[str, ...] = field(default=())
+    form: str = "koren"
+    vct: float = 0.0
+    dz_mu: float = 103.2
+    dz_g: float = 2.242e-3
+    dz_gamma: float = 1.26
+    dz_c: float = 3.4
+    dz_vct: float = 0.0
+    dz_gg: float = 6.177e-4
+    dz_xi: float = 1.314
+    dz_cg: float = 9.901
+    dz_ig0: float = 0.0
 
     def __post_init__(self) -> None:
-        positive = ("mu", "kg1", "kp", "kvb", "grid_knee_v")
+        if self.form not in FORMS:
+            raise ValueError(f"{self.name}: form must be one of {', '.join(FORMS)}, got {self.form!r}")
+        positive = ("mu", "kg1", "kp", "kvb", "grid_knee_v", "dz_mu", "dz_g", "dz_c", "dz_gg", "dz_cg")
         for name in positive:
             value = getattr(self, name)
             if not (math.isfinite(value) and value > 0):
                 raise ValueError(f"{self.name}: {name} must be positive and finite, got {value!r}")
-        if not (math.isfinite(self.ex) and 1.0 < self.ex <= 3.0):
-            # ex > 1 keeps dIp/dE1 continuous (zero) at the cutoff edge E1 = 0
-            raise ValueError(f"{self.name}: ex must lie in (1, 3], got {self.ex!r}")
-        for name in ("cgk_f", "cgp_f", "cpk_f", "grid_perveance_a_v15"):
+        for name in ("ex", "dz_gamma", "dz_xi"):
+            # an exponent > 1 keeps the derivative continuous (zero) at the cutoff edge
+            value = getattr(self, name)
+            if not (math.isfinite(value) and 1.0 < value <= 3.0):
+                raise ValueError(f"{self.name}: {name} must lie in (1, 3], got {value!r}")
+        for name in ("cgk_f", "cgp_f", "cpk_f", "grid_perveance_a_v15", "dz_ig0"):
             value = getattr(self, name)
             if not (math.isfinite(value) and value >= 0):
                 raise ValueError(f"{self.name}: {name} must be >= 0 and finite, got {value!r}")
-        if not math.isfinite(self.grid_onset_v):
-            raise ValueError(f"{self.name}: grid_onset_v must be finite, got {self.grid_onset_v!r}")
+        for name in ("grid_onset_v", "vct", "dz_vct"):
+            if not math.isfinite(getattr(self, name)):
+                raise ValueError(f"{self.name}: {name} must be finite, got {getattr(self, name)!r}")
+        for name in ("vct", "dz_vct"):
+            if abs(getattr(self, name)) > 5.0:
+                raise ValueError(f"{self.name}: {name} (contact potential) must lie within ±5 V, "
+                                 f"got {getattr(self, name)!r}")
         if not isinstance(self.ratings, Ratings):
             raise TypeError(f"{self.name}: ratings must be a Ratings, got {type(self.ratings).__name__}")
         if not isinstance(self.aliases, tuple):
             object.__setattr__(self, "aliases", tuple(self.aliases))
+
+
+def form_parameters(model: "TriodeModel") -> tuple[tuple[str, float], ...]:
+    """``(tube-line key, value)`` of every parameter of the model's own form."""
+    return tuple((key, float(getattr(model, attr))) for key, attr in FORM_FIELDS[model.form])
 
 
 @dataclass(frozen=True, slots=True)
@@ -207,21 +250,71 @@ def _clip(v) -> tuple[np.ndarray, np.ndarray]:
 def _koren_terms(model: TriodeModel, vpk: np.ndarray, vgk: np.ndarray):
     """Shared intermediate terms of the Koren equation (arrays)."""
     s = np.sqrt(model.kvb + vpk * vpk)
-    u = model.kp * (1.0 / model.mu + vgk / s)
+    u = model.kp * (1.0 / model.mu + (vgk + model.vct) / s)
     softplus = np.logaddexp(0.0, u)
     logistic = np.exp(u - softplus)
     e1 = vpk / model.kp * softplus
     return s, u, softplus, logistic, e1
 
 
+def _dempwolf_grid(model: TriodeModel, vgk: np.ndarray):
+    """Dempwolf–Zölzer grid current and its derivative (arrays)."""
+    xg = model.dz_cg * vgk
+    spg = np.logaddexp(0.0, xg)
+    sigg = np.exp(xg - spg)
+    base = spg / model.dz_cg
+    ig = model.dz_gg * base**model.dz_xi + model.dz_ig0
+    dig = model.dz_gg * model.dz_xi * base ** (model.dz_xi - 1.0) * sigg
+    return ig, dig
+
+
+def _dempwolf_plate(model: TriodeModel, vpk: np.ndarray, vgk: np.ndarray):
+    """Dempwolf–Zölzer plate current Ik − Ig (clamped at 0) and its partials (arrays)."""
+    x = model.dz_c * (vpk / model.dz_mu + vgk + model.dz_vct)
+    sp = np.logaddexp(0.0, x)
+    sig = np.exp(x - sp)
+    base = sp / model.dz_c
+    ik = model.dz_g * base**model.dz_gamma
+    dik_dx = model.dz_g * model.dz_gamma * base ** (model.dz_gamma - 1.0) * sig
+    ig, dig = _dempwolf_grid(model, vgk)
+    ip = ik - ig
+    on = ip > 0.0
+    return (np.where(on, ip, 0.0), np.where(on, dik_dx - dig, 0.0), np.where(on, dik_dx / model.dz_mu, 0.0))
+
+
 def plate_current_and_derivatives(model: TriodeModel, vpk_v, vgk_v):
     """Plate current and its analytic partial derivatives.
 
-    Koren triode equation (N. Koren, "Improved vacuum tube models for SPICE
-    simulations", Glass Audio vol. 8 no. 5, 1996)::
+    Form ``"koren"``: the Koren triode equation (N. Koren, "Improved vacuum
+    tube models for SPICE simulations", Glass Audio vol. 8 no. 5, 1996) with
+    the contact potential Vct added to the grid voltage as in the improved
+    Koren model of I. Cohen and T. Hélie ("Measures and parameter estimation
+    of triodes, for the real-time simulation of a multi-stage guitar
+    preamplifier", AES 129th Convention, 2010; from memory)::
 
-        E1 = (Vpk/kp) · ln(1 + exp(kp · (1/mu + Vgk / sqrt(kvb + Vpk²))))
+        E1 = (Vpk/kp) · ln(1 + exp(kp · (1/mu + (Vgk + Vct) / sqrt(kvb + Vpk²))))
         Ip = (E1^ex / kg1) · (1 + sgn(E1))     i.e. 2·E1^ex/kg1 for E1 > 0, else 0
+
+    Form ``"dempwolf"``: K. Dempwolf and U. Zölzer, "A physically-motivated
+    triode model for circuit simulations", DAFx-11, Paris 2011 (from
+    memory)::
+
+        Ik = G · (ln(1 + exp(C·(Vpk/mu + Vgk + Vct))) / C)^gamma   cathode current
+        Ig = Gg · (ln(1 + exp(Cg·Vgk)) / Cg)^xi + Ig0              grid current
+        Ip = Ik − Ig,   held at 0 where Ik < Ig (Vpk < 0 with the grid positive)
+        ∂Ik/∂Vgk = G·gamma·(ln(1+e^x)/C)^(gamma−1)·σ(x),  x = C·(Vpk/mu + Vgk + Vct)
+        ∂Ik/∂Vpk = ∂Ik/∂Vgk / mu
+        ∂Ip/∂Vgk = ∂Ik/∂Vgk − dIg/dVgk,   ∂Ip/∂Vpk = ∂Ik/∂Vpk
+
+    (parameters ``dz_mu, dz_g, dz_gamma, dz_c, dz_gg, dz_xi, dz_cg, dz_ig0``).
+    The contact potential Vct (``dz_vct``; tube-line key ``vct``) is
+    chain's addition to the published form, as Cohen and Hélie added it to
+    Koren's: it shifts the plate characteristics along the grid axis without
+    moving the grid-current onset; with Vct = 0 the form is as published.
+    Unlike Koren's, this Ip is not exactly 0 at Vpk = 0 (0.28 mA at
+    Vpk = Vgk = 0 for the published 12AX7 set): the form is meant for
+    Vpk well above 0, where every preamp stage works.  The rest of this
+    docstring is about the Koren form.
 
     The softplus ln(1 + exp(u)) is evaluated as ``logaddexp(0, u)``.
     Derivatives, with s = sqrt(kvb + Vpk²), u the softplus argument and
@@ -258,6 +351,10 @@ def plate_current_and_derivatives(model: TriodeModel, vpk_v, vgk_v):
     vpk, in_p = _clip(vpk_v)
     vgk, in_g = _clip(vgk_v)
     vpk, vgk, in_p, in_g = np.broadcast_arrays(vpk, vgk, in_p, in_g)
+    if model.form == "dempwolf":
+        with np.errstate(under="ignore"):
+            ip, gm, gp = _dempwolf_plate(model, vpk, vgk)
+        return _out(ip), _out(gm * in_g), _out(gp * in_p)
     with np.errstate(under="ignore"):
         s, _u, softplus, logistic, e1 = _koren_terms(model, vpk, vgk)
         conducting = e1 > 0.0
@@ -265,7 +362,7 @@ def plate_current_and_derivatives(model: TriodeModel, vpk_v, vgk_v):
         ip = 2.0 / model.kg1 * e1_pos**model.ex
         dip_de1 = 2.0 * model.ex / model.kg1 * e1_pos ** (model.ex - 1.0)
         de1_dvgk = vpk * logistic / s
-        de1_dvpk = softplus / model.kp - logistic * vgk * (vpk * vpk) / (s * s * s)
+        de1_dvpk = softplus / model.kp - logistic * (vgk + model.vct) * (vpk * vpk) / (s * s * s)
         gm = np.where(conducting, dip_de1 * de1_dvgk, 0.0) * in_g
         gp = np.where(conducting, dip_de1 * de1_dvpk, 0.0) * in_p
     return _out(ip), _out(gm), _out(gp)
@@ -298,6 +395,9 @@ def plate_current(model: TriodeModel, vpk_v, vgk_v):
     vpk, _ = _clip(vpk_v)
     vgk, _ = _clip(vgk_v)
     vpk, vgk = np.broadcast_arrays(vpk, vgk)
+    if model.form == "dempwolf":
+        with np.errstate(under="ignore"):
+            return _out(_dempwolf_plate(model, vpk, vgk)[0])
     with np.errstate(under="ignore"):
         e1 = _koren_terms(model, vpk, vgk)[4]
         ip = 2.0 / model.kg1 * np.where(e1 > 0.0, e1, 0.0) ** model.ex
@@ -335,8 +435,14 @@ def small_signal(model: TriodeModel, vpk_v, vgk_v) -> SmallSignal:
     vpk, _ = _clip(vpk_v)
     vgk, _ = _clip(vgk_v)
     vpk, vgk = np.broadcast_arrays(vpk, vgk)
+    if model.form == "dempwolf":
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rp = np.where(gp > 0.0, 1.0 / np.where(gp > 0.0, gp, 1.0), np.inf)
+            mu = np.where(gp > 0.0, gm / np.where(gp > 0.0, gp, 1.0), np.where(vpk > 0.0, model.dz_mu, 0.0))
+        return SmallSignal(gm_s=_out(gm), rp_ohm=_out(rp), mu=_out(mu))
     with np.errstate(under="ignore", divide="ignore", over="ignore"):
         s = np.sqrt(model.kvb + vpk * vpk)
+        vgk = vgk + model.vct
         u = model.kp * (1.0 / model.mu + vgk / s)
         u_safe = np.maximum(u, _U_TAIL)
         softplus = np.logaddexp(0.0, u_safe)
@@ -349,8 +455,15 @@ def small_signal(model: TriodeModel, vpk_v, vgk_v) -> SmallSignal:
 
 
 def grid_current_and_derivative(model: TriodeModel, vgk_v):
-    """Grid current and its derivative — an ENGINEERING APPROXIMATION.
+    """Grid current and its derivative.
 
+    Form ``"dempwolf"``: the published grid-current law of Dempwolf and
+    Zölzer (DAFx-11, 2011; see :func:`plate_current_and_derivatives`)::
+
+        Ig = Gg · (ln(1 + exp(Cg·Vgk)) / Cg)^xi + Ig0
+        dIg/dVgk = Gg · xi · (ln(1 + exp(Cg·Vgk)) / Cg)^(xi−1) · σ(Cg·Vgk)
+
+    Form ``"koren"`` uses an ENGINEERING APPROXIMATION, described below.
     Not a published model.  A smooth onset followed by a 3/2-power law
     (the Child–Langmuir form, as for any space-charge-limited electrode)::
 
@@ -384,6 +497,10 @@ def grid_current_and_derivative(model: TriodeModel, vgk_v):
         dIg/dVgk (S), >= 0.
     """
     vgk, inside = _clip(vgk_v)
+    if model.form == "dempwolf":
+        with np.errstate(under="ignore"):
+            ig, dig = _dempwolf_grid(model, vgk)
+        return _out(ig), _out(dig * inside)
     w = model.grid_knee_v
     x = (vgk - model.grid_onset_v) / w
     with np.errstate(under="ignore"):

@@ -36,7 +36,18 @@ def test_cathode_follower_distorts_far_less_than_common_cathode_at_same_output(s
     level_cf = level * y_cc / first.stage("V2").output.fundamental_v
     cf = distortion(circuit, dc, level_v=level_cf).stage("V2")
     assert cf.output.fundamental_v == pytest.approx(y_cc, rel=0.02)
-    assert 0.002 < cc.own_thd < 0.05
+    # the stage's own distortion is the 2nd harmonic of a power-law triode
+    # Ip ∝ x^n under load R: H2/H1 = (n−1)/(4·x0) · A/(1 + R/rp), with
+    # x0 = n·Ip/gm the effective grid voltage and A = v·rp/(rp + R) its swing
+    # (derived by hand from the Taylor series of the 3/2-power law, as in any
+    # valve text's load-line distortion estimate); within ±25 %
+    p = dc.points["V1"]
+    n = circuit.triode("V1").model.ex
+    r_load = 220e3
+    swing = level * p.rp_ohm / (p.rp_ohm + r_load)
+    estimate = (n - 1.0) / (4.0 * n * p.ip_a / p.gm_s) * swing / (1.0 + r_load / p.rp_ohm)
+    assert cc.own_thd == pytest.approx(estimate, rel=0.25)
+    assert cc.own_thd < 0.05
     assert cf.own_thd < 0.1 * cc.own_thd
     # the follower passes the stage's distortion on almost unchanged
     assert cf.output.thd == pytest.approx(cc.output.thd, rel=0.1)

@@ -24,7 +24,9 @@ from chain.tubes import (
     small_signal,
 )
 
-MODELS = list(LIBRARY.values())
+# The Koren-form tests run on every type's fitted Koren set (the library
+# carries fitted sets of both forms; its own form is in LIBRARY_FORM).
+MODELS = [dataclasses.replace(m, form="koren") for m in LIBRARY.values()]
 IDS = [m.name for m in MODELS]
 
 # Handbook plate voltage and bias of each type (from memory of RCA Receiving
@@ -92,11 +94,11 @@ def test_child_langmuir_three_halves_power_at_zero_grid(model):
     # e.g. M. Jones, "Valve Amplifiers"): space-charge-limited current grows
     # as the 3/2 power of the effective voltage Vpk/mu + Vgk; fitted triodes
     # show exponents of about 1.3–1.5.  Region: Vgk = 0, Vpk = 50…300 V
-    # (moderate to high current).  Local slope d ln Ip / d ln(Vpk/mu + Vgk)
-    # at Vgk = 0 is Vpk·(∂Ip/∂Vpk)/Ip.
+    # (moderate to high current).  Local slope d ln Ip / d ln x with
+    # x = Vpk/mu + Vgk + Vct (Vct the contact potential) is mu·x·(∂Ip/∂Vpk)/Ip.
     vpk = np.geomspace(50.0, 300.0, 12)
     ip, _gm, gp = plate_current_and_derivatives(model, vpk, 0.0)
-    slope = vpk * gp / ip
+    slope = gp * model.mu * (vpk / model.mu + model.vct) / ip
     assert np.all((slope >= 1.3) & (slope <= 1.55)), slope
 
 
@@ -111,7 +113,7 @@ def test_langmuir_triode_law_reached_far_from_cutoff_at_fixed_bias(model):
     vgk = HANDBOOK_BIAS[model.name]
     vpk = np.array([250.0, 350.0, 500.0, 700.0, 1000.0, 2000.0])
     ip, _gm, gp = plate_current_and_derivatives(model, vpk, vgk)
-    x = vpk / model.mu + vgk
+    x = vpk / model.mu + vgk + model.vct
     slope = gp * x * model.mu / ip
     assert np.all(np.diff(slope) > 0), slope
     assert slope[4] >= 1.3 and slope.max() <= 1.55, slope
@@ -166,12 +168,14 @@ def test_no_plate_current_in_deep_cutoff_or_without_plate_voltage(model):
 
 def test_plate_current_joins_zero_smoothly_at_zero_plate_voltage():
     # Continuity of Ip and of ∂Ip/∂Vpk at Vpk = 0 (needed by a Newton solver):
-    # both tend to 0 as Vpk -> 0+ (Ip ∝ Vpk^ex there, ex > 1).
-    model = lookup("12AX7")
+    # both tend to 0 as Vpk -> 0+ (Ip ∝ Vpk^ex there, ex > 1).  Koren form;
+    # with the contact potential the grid at 0 V acts as +Vct, so at 1 µV
+    # the current is a few pA rather than below 1 pA.
+    model = MODELS[0]
     vpk = np.array([1e-2, 1e-4, 1e-6])
     ip, _gm, gp = plate_current_and_derivatives(model, vpk, 0.0)
     assert np.all(np.diff(ip) < 0) and np.all(np.diff(gp) < 0)
-    assert ip[-1] < 1e-12 and gp[-1] < 1e-6
+    assert ip[-1] < 1e-11 and gp[-1] < 1e-5
 
 
 # ---------------------------------------------------------------- small signal
@@ -179,7 +183,7 @@ def test_plate_current_joins_zero_smoothly_at_zero_plate_voltage():
 
 def test_small_signal_mu_is_gm_times_rp_and_open_plate_when_off():
     # Standard triode relation mu = gm·rp (M. Jones, "Valve Amplifiers", from memory).
-    model = lookup("12AU7")
+    model = MODELS[2]
     vpk = np.array([50.0, 150.0, 250.0, 300.0])
     vgk = np.array([-1.0, -4.0, -8.5, -12.0])
     ss = small_signal(model, vpk, vgk)
@@ -192,11 +196,12 @@ def test_small_signal_mu_stays_finite_where_the_current_underflows():
     # Cutoff: gm and 1/rp vanish together; mu is the limit of their ratio.
     # From the Koren equation with Vpk² ≫ kvb and Vgk = -c·Vpk/mu in the
     # exponential tail: mu_limit = mu·kp/(mu + c·kp) (derived by hand from
-    # the equation in Koren 1996).
-    model = lookup("12AU7")
+    # the equation in Koren 1996; with a contact potential Vct the grid
+    # voltage is Vgk = -c·Vpk/mu - Vct).
+    model = MODELS[2]
     vpk = 1000.0
     for c, underflows in ((3.0, False), (30.0, True)):
-        ss = small_signal(model, vpk, -c * vpk / model.mu)
+        ss = small_signal(model, vpk, -c * vpk / model.mu - model.vct)
         expected = model.mu * model.kp / (model.mu + c * model.kp)
         assert ss.mu == pytest.approx(expected, rel=1e-3)
         if underflows:
@@ -206,7 +211,7 @@ def test_small_signal_mu_stays_finite_where_the_current_underflows():
 
 
 def test_scalar_in_scalar_out_and_arrays_broadcast():
-    model = lookup("12AX7")
+    model = MODELS[0]
     ip = plate_current(model, 250.0, -2.0)
     assert isinstance(ip, float)
     assert isinstance(small_signal(model, 250.0, -2.0), SmallSignal)
@@ -225,17 +230,18 @@ def test_grid_current_negligible_for_negative_grid(model):
     assert np.all(grid_current(model, np.linspace(-100.0, -0.5, 200)) < 1e-9)
 
 
-def test_grid_conductance_of_12ax7_at_plus_one_volt():
-    # Engineering approximation, common practice: a 12AX7 grid in conduction
-    # at about +1 V looks like 1–2 kΩ to the driving circuit.
-    _ig, g = grid_current_and_derivative(lookup("12AX7"), 1.0)
+@pytest.mark.parametrize("form", ["koren", "dempwolf"])
+def test_grid_conductance_of_12ax7_at_plus_one_volt(form):
+    # Common practice: a 12AX7 grid in conduction at about +1 V looks like
+    # 1–2 kΩ to the driving circuit (both forms' grid-current laws).
+    _ig, g = grid_current_and_derivative(dataclasses.replace(lookup("12AX7"), form=form), 1.0)
     assert 1.0 / 2e3 <= g <= 1.0 / 1e3
 
 
 def test_grid_current_follows_three_halves_power_above_onset():
     # The approximation is a 3/2-power (Child–Langmuir) law once the grid is
     # well past its onset: d ln Ig / d ln(Vgk - V0) -> 1.5.
-    model = lookup("12AX7")
+    model = MODELS[0]
     vgk = np.array([1.0, 2.0, 5.0])
     ig, dig = grid_current_and_derivative(model, vgk)
     slope = (vgk - model.grid_onset_v) * dig / ig
@@ -255,7 +261,7 @@ def test_grid_current_derivative_matches_central_differences(model):
 
 
 def test_model_is_frozen_hashable_and_replace_validates():
-    model = lookup("12AX7")
+    model = MODELS[0]
     assert hash(model) == hash(dataclasses.replace(model))
     assert model == dataclasses.replace(model)
     changed = dataclasses.replace(model, mu=95.0)
@@ -280,3 +286,61 @@ def test_model_is_keyword_only_and_aliases_become_a_tuple():
     hash(model)
     with pytest.raises(ValueError):
         Ratings(vp_max_v=-1.0, pd_max_w=None, ik_max_a=None, vhk_max_v=None, rg_max_ohm=None, source="test")
+
+
+# ------------------------------------------------------- Dempwolf–Zölzer form
+
+DZ_MODELS = [dataclasses.replace(m, form="dempwolf") for m in MODELS]
+# the published 12AX7 set of Dempwolf and Zölzer, DAFx-11 (2011), from memory
+DZ_PUBLISHED = dataclasses.replace(lookup("12AX7"), form="dempwolf", dz_mu=103.2, dz_g=2.242e-3, dz_gamma=1.26,
+                                   dz_c=3.4, dz_gg=6.177e-4, dz_xi=1.314, dz_cg=9.901, dz_ig0=8.025e-8,
+                                   dz_vct=0.0)
+
+
+@pytest.mark.parametrize("model", [*DZ_MODELS, DZ_PUBLISHED], ids=[*IDS, "published"])
+def test_dempwolf_derivatives_match_central_differences(model):
+    # As for the Koren form: analytic partials against O(h²) central
+    # differences, rtol 1e-6, over plate voltages 1–400 V and grids -8…+2 V.
+    vpk, vgk = np.meshgrid(np.array([1.0, 20.0, 60.0, 150.0, 250.0, 400.0]),
+                           np.array([-8.0, -4.0, -2.0, -1.0, -0.3, 0.0, 0.5, 2.0]), indexing="ij")
+    _ip, gm, gp = plate_current_and_derivatives(model, vpk, vgk)
+    h_p = 1e-7 * np.abs(vpk)
+    gm_fd = _central_difference(lambda v: plate_current(model, vpk, v), vgk, 1e-7)
+    gp_fd = _central_difference(lambda v: plate_current(model, v, vgk), vpk, h_p)
+    np.testing.assert_allclose(gm, gm_fd, rtol=1e-6, atol=1e-12)
+    np.testing.assert_allclose(gp, gp_fd, rtol=1e-6, atol=1e-14)
+    _ig, dig = grid_current_and_derivative(model, vgk)
+    np.testing.assert_allclose(dig, _central_difference(lambda v: grid_current(model, v), vgk, 1e-7),
+                               rtol=1e-6, atol=1e-14)
+
+
+def test_dempwolf_published_12ax7_values_by_hand():
+    # Dempwolf and Zölzer (DAFx-11, 2011), equations evaluated by hand for the
+    # published 12AX7 set at 250 V/-2 V: x = C·(250/103.2 - 2) = 1.4364,
+    # ln(1 + e^x)/C = 0.48507, Ik = G·0.48507^1.26 = 0.9014 mA; the grid
+    # current there is Ig0 (8.0e-8 A) plus a negligible term; Ip = Ik - Ig.
+    ik = 2.242e-3 * (np.log1p(np.exp(3.4 * (250.0 / 103.2 - 2.0))) / 3.4) ** 1.26
+    assert ik == pytest.approx(0.9014e-3, rel=1e-3)
+    assert plate_current(DZ_PUBLISHED, 250.0, -2.0) == pytest.approx(ik - grid_current(DZ_PUBLISHED, -2.0), rel=1e-12)
+    assert grid_current(DZ_PUBLISHED, -2.0) == pytest.approx(8.025e-8, rel=1e-3)
+    # the form's mu is exact: ∂Ik/∂Vgk = mu·∂Ik/∂Vpk (Ik depends on Vpk/mu + Vgk only)
+    _ip, gm, gp = plate_current_and_derivatives(dataclasses.replace(DZ_PUBLISHED, dz_ig0=0.0), 250.0, -2.0)
+    assert gm / gp == pytest.approx(103.2, rel=1e-4)
+
+
+@pytest.mark.parametrize("model", DZ_MODELS, ids=IDS)
+def test_dempwolf_plate_current_never_negative(model):
+    # Ip = Ik - Ig is held at 0 where the grid takes all the cathode current.
+    vpk, vgk = np.meshgrid(np.linspace(-300.0, 400.0, 57), np.linspace(-30.0, 20.0, 51), indexing="ij")
+    ip, gm, gp = plate_current_and_derivatives(model, vpk, vgk)
+    assert np.all(ip >= 0.0) and np.all(np.isfinite(gm)) and np.all(gp >= 0.0)
+    assert (ip == 0.0).any()
+
+
+def test_form_is_validated():
+    with pytest.raises(ValueError, match="form"):
+        dataclasses.replace(lookup("12AX7"), form="spice")
+    with pytest.raises(ValueError, match="dz_gamma"):
+        dataclasses.replace(lookup("12AX7"), dz_gamma=1.0)
+    with pytest.raises(ValueError, match="vct"):
+        dataclasses.replace(lookup("12AX7"), vct=9.0)
