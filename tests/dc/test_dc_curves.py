@@ -18,7 +18,9 @@ def test_plate_family_rows_follow_the_model():
         assert np.allclose(fam.ip_a[i], plate_current(model, fam.vpk_v, vgk), rtol=1e-12, atol=0.0)
     # triode physics (common practice): current rises with plate voltage and with grid voltage
     assert np.all(np.diff(fam.ip_a, axis=1) >= 0.0)
-    assert np.all(fam.ip_a[:-1, 1:] > fam.ip_a[1:, 1:])
+    # (strictly wherever the lower curve conducts; in deep cutoff both are exactly 0)
+    upper, lower = fam.ip_a[:-1, 1:], fam.ip_a[1:, 1:]
+    assert np.all(upper >= lower) and np.all(upper[lower > 0] > lower[lower > 0])
     # RCA handbook point, 12AX7 at 250 V and −2 V: about 1.2 mA (from memory of RCA RC-30), within 10 %
     ip_250 = np.interp(250.0, fam.vpk_v, fam.ip_a[2])
     assert ip_250 == pytest.approx(1.2e-3, rel=0.1)
