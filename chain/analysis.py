@@ -19,6 +19,9 @@ from chain.about import __version__
 from chain.circuit import Circuit
 from chain.dc import DcSolution, SolveOptions, solve
 from chain.errors import ChainError, Diagnostic
+from chain.headroom import Headroom
+from chain.smallsignal.sensitivity import Ranking
+from chain.smallsignal.stability import Stability
 from chain.language.design import Design
 from chain.smallsignal import (
     CouplingRow,
@@ -28,6 +31,7 @@ from chain.smallsignal import (
     coupling_table,
     linearize,
     overall,
+    reference_response,
     response,
     stage_table,
 )
@@ -51,20 +55,18 @@ class Analysis:
     #: every coupling's transfer at the reference frequency, in netlist order
     couplings: tuple[CouplingRow, ...]
     overall: OverallResult
-    #: large-signal results (:class:`chain.headroom.Headroom`), or None when skipped
-    headroom: object | None
+    #: large-signal results, or None when skipped
+    headroom: Headroom | None
     #: language warnings and operating-point diagnostics
     diagnostics: tuple[Diagnostic, ...]
     #: SHA-256 of the netlist text (hex)
     netlist_sha256: str
     options: SolveOptions
     version: str = __version__
-    #: poles, zeros, unstable poles and feedback loop gains
-    #: (:class:`chain.smallsignal.stability.Stability`), or None when not computed
-    stability: object | None = None
-    #: sensitivity rankings (:class:`chain.smallsignal.sensitivity.Ranking`) of the
-    #: overall gain, the corners and each stage's plate current
-    sensitivity: tuple = ()
+    #: poles, zeros, unstable poles and feedback loop gains, or None when not computed
+    stability: Stability | None = None
+    #: sensitivity rankings of the overall gain, the corners and each stage's plate current
+    sensitivity: tuple[Ranking, ...] = ()
 
     @property
     def unstable(self) -> bool:
@@ -135,9 +137,10 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
     # per-stage impedances are tabulated at the reference frequency only
     freq = response(ss, sweep_frequencies(design), stage_impedances=False)
     s = design.settings
-    rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v)
-    links = coupling_table(circuit, freq, s.reference_hz)
-    total = overall(freq, s.reference_hz)
+    at = reference_response(freq, s.reference_hz)
+    rows = stage_table(circuit, dc, freq, s.reference_hz, s.level_v, at=at)
+    links = coupling_table(circuit, freq, s.reference_hz, at=at)
+    total = overall(freq, s.reference_hz, at=at)
     from chain.smallsignal.stability import stability as check_stability
 
     dynamics = check_stability(ss, ref_hz=s.reference_hz, band_hz=(s.band_low_hz, s.band_high_hz))

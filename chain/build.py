@@ -471,10 +471,8 @@ def load_text(text: str, source: str = "<string>") -> tuple[Design, Circuit, tup
 
 
 def _loaded(design: Design):
-    from chain.language.validate import check
-
-    warnings = check(design)
-    return design, build(design), warnings
+    """The parsed design (validated once, by the parser), its circuit and warnings."""
+    return design, build(design), tuple(design.warnings)
 
 
 #: stage part suffix → (Stage field, Cathode field or None)
@@ -555,4 +553,4 @@ def with_part(design: Design, part: str, value: float) -> Design:
 
 def _edited(design: Design, **changes) -> Design:
     """The design with ``changes``; its text no longer matches, so it is dropped."""
-    return replace(design, lines=(), path=f"{design.path} (modified)", **changes)
+    return replace(design, lines=(), warnings=(), path=f"{design.path} (modified)", **changes)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from types import MappingProxyType
 from typing import Mapping
 
 from chain.errors import Diagnostic
@@ -96,3 +97,11 @@ class DcSolution:
     max_residual_a: float
     options: SolveOptions = field(default_factory=SolveOptions)
     diagnostics: tuple[Diagnostic, ...] = ()
+
+    def __post_init__(self):
+        # frozen all the way down: the per-name tables are read-only views
+        for name in ("points", "rails", "capacitors", "node_v"):
+            value = getattr(self, name)
+            if not isinstance(value, MappingProxyType):
+                object.__setattr__(self, name, MappingProxyType(dict(value)))
+        object.__setattr__(self, "diagnostics", tuple(self.diagnostics))

@@ -259,6 +259,9 @@ class Design:
     path: str = field(default="<string>", compare=False)
     #: the lines of the text, for error display
     lines: tuple[str, ...] = field(default=(), compare=False, repr=False)
+    #: the validation warnings of the parsed text (set by ``parse_text``, so
+    #: that a file is validated once; empty for a design made in Python)
+    warnings: tuple = field(default=(), compare=False, repr=False)
 
     def stage(self, name: str) -> Stage:
         for s in self.stages:
@@ -277,5 +280,6 @@ class Design:
         if not any(s.name == name for s in self.stages):
             raise KeyError(name)
         stages = tuple(replace(s, **changes) if s.name == name else s for s in self.stages)
-        # the result no longer matches the file's text: drop the text, mark the origin
-        return replace(self, stages=stages, lines=(), path=f"{self.path} (modified)")
+        # the result no longer matches the file's text: drop the text and its
+        # warnings, mark the origin
+        return replace(self, stages=stages, lines=(), warnings=(), path=f"{self.path} (modified)")

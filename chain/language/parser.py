@@ -272,8 +272,7 @@ def parse_text(text: str, source: str = "<string>") -> Design:
     from chain.language.validate import check
 
     design = parse_syntax(text, source)
-    check(design)
-    return design
+    return replace(design, warnings=check(design))
 
 
 #: the largest netlist read, bytes (a real preamp is a few kB)

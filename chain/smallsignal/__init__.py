@@ -17,7 +17,16 @@ from chain.smallsignal.model import (
     linearize,
 )
 from chain.smallsignal.response import Response, gain_at, response, transfer_function
-from chain.smallsignal.table import CouplingRow, OverallResult, StageRow, coupling_table, db, overall, stage_table
+from chain.smallsignal.table import (
+    CouplingRow,
+    OverallResult,
+    StageRow,
+    coupling_table,
+    db,
+    overall,
+    reference_response,
+    stage_table,
+)
 
 __all__ = [
     "SmallSignalCircuit",
@@ -38,5 +47,6 @@ __all__ = [
     "OverallResult",
     "stage_table",
     "overall",
+    "reference_response",
     "db",
 ]

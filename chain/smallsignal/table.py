@@ -17,7 +17,7 @@ from chain.smallsignal.shape import ResponseShape, response_shape
 from chain.smallsignal.response import Response, response
 
 __all__ = ["StageRow", "OverallResult", "CouplingRow", "stage_table", "coupling_table", "overall", "db",
-           "NO_SIGNAL_DB", "no_signal_warnings"]
+           "reference_response", "NO_SIGNAL_DB", "no_signal_warnings"]
 
 #: a stage input this far (dB) below the largest signal before it receives no signal: what
 #: reaches it is numerical leakage (a volume control at 0), and the ratio of its output to
@@ -105,15 +105,25 @@ class CouplingRow:
         return math.degrees(np.angle(self.ratio))
 
 
-def coupling_table(circuit: Circuit, resp: Response, f_ref_hz: float) -> tuple[CouplingRow, ...]:
+def reference_response(resp: Response, f_ref_hz: float) -> Response:
+    """The network of ``resp`` solved exactly at ``f_ref_hz`` alone, with every
+    impedance (input, output, per stage): the one solve the stage table, the
+    coupling table and the overall figures share."""
+    return response(resp.ss, [f_ref_hz])
+
+
+def coupling_table(circuit: Circuit, resp: Response, f_ref_hz: float, *,
+                   at: Response | None = None) -> tuple[CouplingRow, ...]:
     """Every coupling's transfer at ``f_ref_hz``, in the order of the netlist.
 
     The ratio of the voltage at the coupling's far end to the voltage at its
     near end, with the whole chain connected (so the load of what follows and
     the source impedance of what drives it are included).  Includes the
-    network into the output, which no stage row shows.
+    network into the output, which no stage row shows.  ``at`` is
+    :func:`reference_response` when the caller has it already.
     """
-    at = response(resp.ss, [f_ref_hz], output_impedances=False, stage_impedances=False)
+    if at is None:
+        at = response(resp.ss, [f_ref_hz], output_impedances=False, stage_impedances=False)
     rows = []
     for name, (frm, to) in circuit.couplings.items():
         ratio = _ratio(at, to, frm)
@@ -122,7 +132,7 @@ def coupling_table(circuit: Circuit, resp: Response, f_ref_hz: float) -> tuple[C
 
 
 def stage_table(circuit: Circuit, dc: DcSolution, resp: Response, f_ref_hz: float,
-                level_v: float) -> tuple[StageRow, ...]:
+                level_v: float, *, at: Response | None = None) -> tuple[StageRow, ...]:
     """One :class:`StageRow` per stage, in signal order.
 
     Parameters
@@ -137,8 +147,11 @@ def stage_table(circuit: Circuit, dc: DcSolution, resp: Response, f_ref_hz: floa
         Reference frequency, Hz.
     level_v
         Source EMF, peak volts; levels scale linearly from it.
+    at
+        :func:`reference_response` when the caller has it already.
     """
-    at = response(resp.ss, [f_ref_hz])
+    if at is None:
+        at = reference_response(resp, f_ref_hz)
     rows = []
     loudest = 1.0  # the source EMF, per volt of itself
     for st in circuit.stages:
@@ -171,7 +184,7 @@ def no_signal_warnings(rows, f_ref_hz: float, level_v: float) -> tuple[Diagnosti
     return tuple(out)
 
 
-def overall(resp: Response, f_ref_hz: float) -> OverallResult:
+def overall(resp: Response, f_ref_hz: float, *, at: Response | None = None) -> OverallResult:
     """Overall gain, corners and impedances.
 
     ``gain`` is ``H(output)`` at ``f_ref_hz`` (solved exactly).  The corners
@@ -180,8 +193,10 @@ def overall(resp: Response, f_ref_hz: float) -> OverallResult:
     dip between them is a dip (``shape``, :func:`chain.smallsignal.shape.response_shape`),
     and a resonant peak (a pickup's) is inside the band, not its reference.
     ``None`` when outside the analysed band or when ``f_ref_hz`` is outside it.
+    ``at`` is :func:`reference_response` when the caller has it already.
     """
-    at = response(resp.ss, [f_ref_hz])
+    if at is None:
+        at = reference_response(resp, f_ref_hz)
     gain = complex(at.output[0])
     f = resp.f_hz
     shape = None
