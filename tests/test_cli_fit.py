@@ -74,3 +74,13 @@ def test_fit_units_off_by_1000(tmp_path, capsys):
 def test_fit_unknown_like_type(tmp_path, capsys):
     assert main(["fit", str(_points(tmp_path)), "--like", "12AX8"]) == 2
     assert "E707" in capsys.readouterr().err
+
+
+def test_readme_example_measurement_fits(tmp_path, capsys):
+    # the README's two commands, on the shipped example file
+    out = tmp_path / "clean-v1x.chain"
+    assert main(["fit", str(ROOT / "netlists" / "measured" / "hot_12ax7.csv"), "--name", "V1X", "--like", "12AX7",
+                 "--netlist", str(ROOT / "netlists" / "clean_two_stage.chain"), "-o", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "tube V1X like 12AX7 model koren mu 96.01 ex 1.401 kg1 1529 kp 3000 kvb 1 vct 0.5575" in text
+    assert main(["report", str(out)]) == 0
