@@ -9,6 +9,7 @@ the function; the figure is a bare :class:`matplotlib.figure.Figure`.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
@@ -16,7 +17,7 @@ import numpy as np
 from chain.plot.bias import PALETTE
 from chain.tubes import plate_current
 
-__all__ = ["FitPlot", "plot_fit"]
+__all__ = ["FitPlot", "plot_fit", "library_docs"]
 
 _STYLES = ("-", "--", ":", "-.")
 
@@ -89,3 +90,52 @@ def plot_fit(points: Sequence, models: Sequence[tuple[str, Any]], *, title: str 
     ax.set_title(title or "plate curves: data against model", fontsize=10, color=PALETTE["text"])
     fig.tight_layout()
     return FitPlot(figure=fig, axes=ax, curves=curves, points=tuple(drawn))
+
+
+def library_docs(folder: Path) -> str:
+    """Plots of every type's data against every form, and the residual tables as Markdown."""
+    from dataclasses import replace
+
+    from chain.fileio import write_atomically
+    from chain.tubes import FORMS
+    from chain.tubes.fit import library_data
+    from chain.tubes.library import LIBRARY, LIBRARY_FORM
+    from chain.tubes.model import small_signal
+
+    out = []
+    for name, model in LIBRARY.items():
+        data = library_data(name)
+        models = [(f"{form}" + (" (library)" if form == LIBRARY_FORM[name] else ""), replace(model, form=form))
+                  for form in FORMS]
+        fig = plot_fit(data.points, models, title=f"{name}: data against both model forms").figure
+        import io
+
+        buf = io.BytesIO()
+        fig.savefig(buf, format="png")
+        write_atomically(folder / f"models-{name}.png", buf.getvalue())
+        n_fit = len(data.subset(split="fit"))
+        out += [f"### {name}", "", f"![{name} data against both forms](models-{name}.png)", "",
+                f"{len(data.points)} points: {n_fit} fitted, {len(data.points) - n_fit} held out "
+                f"(every handbook typical point is held out). Library form: {LIBRARY_FORM[name]}.", "",
+                "| point | split | Ip data | " + " | ".join(f"{f} Ip" for f in FORMS) + " | gm data | "
+                + " | ".join(f"{f} gm" for f in FORMS) + " |",
+                "| --- | --- | --- | " + " | ".join("---" for _ in FORMS) + " | --- | "
+                + " | ".join("---" for _ in FORMS) + " |"]
+        for p in data.points:
+            ips = [float(plate_current(m, p.vpk_v, p.vgk_v)) for _, m in models]
+            cells = [f"{p.kind} {p.vpk_v:g} V, {p.vgk_v:g} V", p.split, f"{p.ip_a * 1e3:.3g} mA"]
+            cells += [f"{ip / p.ip_a - 1:+.1%}" for ip in ips]
+            if p.gm_s:
+                gms = [float(small_signal(m, p.vpk_v, p.vgk_v).gm_s) for _, m in models]
+                cells += [f"{p.gm_s * 1e3:.3g} mA/V"] + [f"{g / p.gm_s - 1:+.1%}" for g in gms]
+            else:
+                cells += ["—"] + ["—" for _ in FORMS]
+            out.append("| " + " | ".join(cells) + " |")
+        out.append("")
+    return "\n".join(out)
+
+
+if __name__ == "__main__":
+    import sys
+
+    print(library_docs(Path(sys.argv[1] if len(sys.argv) > 1 else "docs")))

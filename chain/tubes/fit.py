@@ -497,46 +497,6 @@ def tube_line(name: str, result: FitResult, *, like: str | None = None) -> str:
     return " ".join(parts)
 
 
-def library_docs(folder: Path) -> str:
-    """Plots of every type's data against every form, and the residual tables as Markdown."""
-    from chain.fileio import write_atomically
-    from chain.plot.fit import plot_fit
-    from chain.tubes.library import LIBRARY, LIBRARY_FORM
-    from chain.tubes.model import small_signal
-
-    out = []
-    for name, model in LIBRARY.items():
-        data = library_data(name)
-        models = [(f"{form}" + (" (library)" if form == LIBRARY_FORM[name] else ""), replace(model, form=form))
-                  for form in FORMS]
-        fig = plot_fit(data.points, models, title=f"{name}: data against both model forms").figure
-        import io
-
-        buf = io.BytesIO()
-        fig.savefig(buf, format="png")
-        write_atomically(folder / f"models-{name}.png", buf.getvalue())
-        n_fit = len(data.subset(split="fit"))
-        out += [f"### {name}", "", f"![{name} data against both forms](models-{name}.png)", "",
-                f"{len(data.points)} points: {n_fit} fitted, {len(data.points) - n_fit} held out "
-                f"(every handbook typical point is held out). Library form: {LIBRARY_FORM[name]}.", "",
-                "| point | split | Ip data | " + " | ".join(f"{f} Ip" for f in FORMS) + " | gm data | "
-                + " | ".join(f"{f} gm" for f in FORMS) + " |",
-                "| --- | --- | --- | " + " | ".join("---" for _ in FORMS) + " | --- | "
-                + " | ".join("---" for _ in FORMS) + " |"]
-        for p in data.points:
-            ips = [float(plate_current(m, p.vpk_v, p.vgk_v)) for _, m in models]
-            cells = [f"{p.kind} {p.vpk_v:g} V, {p.vgk_v:g} V", p.split, f"{p.ip_a * 1e3:.3g} mA"]
-            cells += [f"{ip / p.ip_a - 1:+.1%}" for ip in ips]
-            if p.gm_s:
-                gms = [float(small_signal(m, p.vpk_v, p.vgk_v).gm_s) for _, m in models]
-                cells += [f"{p.gm_s * 1e3:.3g} mA/V"] + [f"{g / p.gm_s - 1:+.1%}" for g in gms]
-            else:
-                cells += ["—"] + ["—" for _ in FORMS]
-            out.append("| " + " | ".join(cells) + " |")
-        out.append("")
-    return "\n".join(out)
-
-
 def main(argv=None) -> int:
     """``python -m chain.tubes.fit [--check]``: regenerate chain/tubes/fitted.py."""
     import argparse
@@ -544,13 +504,7 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(prog="python -m chain.tubes.fit",
                                  description="Refit the built-in tube library from chain/tubes/data/*.csv.")
     ap.add_argument("--check", action="store_true", help="only check that fitted.py is up to date (exit 1 if not)")
-    ap.add_argument("--docs", metavar="FOLDER",
-                    help="instead, draw each type's data against each form into FOLDER/models-TYPE.png and print "
-                         "the residual tables (Markdown) for docs/models.md")
     args = ap.parse_args(argv)
-    if args.docs:
-        print(library_docs(Path(args.docs)))
-        return 0
     text = render_fitted_module(fit_library())
     if args.check:
         same = FITTED_MODULE.exists() and FITTED_MODULE.read_text(encoding="utf-8") == text
