@@ -181,6 +181,10 @@ class _Expander:
 
     # -- stages -----------------------------------------------------------------
     def stage(self, s: Stage) -> StageRecord:
+        if s.kind == "cathodyne":
+            return self.cathodyne(s)
+        if s.kind == "long-tailed-pair":
+            return self.long_tailed_pair(s)
         n = s.name
         sp = s.spans
         own = Owner("stage", n)
@@ -220,6 +224,91 @@ class _Expander:
         signal_in = cathode if s.kind == "common-grid" else inp
         signal_out = cathode if s.kind == "cathode-follower" else plate
         return StageRecord(n, s.kind, model.name, (n,), {"in": signal_in}, {"out": signal_out}, s.rail)
+
+    def _model(self, s: Stage) -> TriodeModel:
+        try:
+            return tube_model(self.d, s.tube)
+        except KeyError:
+            self.err("E206", f"unknown tube type '{s.tube}'", s.span)
+            return lookup("12AX7")
+
+    def _tail(self, s: Stage, cathode: str, *, alone: Role) -> str:
+        """The cathode resistors of a two-triode stage; returns where the grid leaks return.
+
+        ``cathode R tail R2``: R from the cathode to the tap (``<stage>.tap``),
+        R2 from the tap to ground, the grid leaks to the tap (the bootstrapped
+        arrangement).  ``cathode R`` alone: R to ground with role ``alone``
+        and the grid leaks to ground.
+        """
+        n, own = s.name, Owner("stage", s.name)
+        cs = s.spans.get("cathode", s.span)
+        k = s.cathode
+        if k.tail_ohm is None:
+            self.add(Resistor(f"{n}.{'Rt' if alone == Role.TAIL_RESISTOR else 'Rk'}", cathode, GROUND, k.r_ohm,
+                              own, alone), cs)
+            return GROUND
+        tap = f"{n}.tap"
+        self.add(Resistor(f"{n}.Rk", cathode, tap, k.r_ohm, own, Role.CATHODE_RESISTOR), cs)
+        self.add(Resistor(f"{n}.Rt", tap, GROUND, k.tail_ohm, own, Role.TAIL_RESISTOR), cs)
+        return tap
+
+    def _grid(self, n: str, leak: float | None, stopper: float | None, ret: str, *, suffix: str,
+              spans: tuple[Span, Span]) -> tuple[str, str]:
+        """A grid leak from the input port to ``ret`` and a stopper into the grid: (input, grid)."""
+        own = Owner("stage", n)
+        inp = f"{n}.in{suffix}"
+        grid = f"{n}.grid{suffix}" if stopper is not None else inp
+        if stopper is not None:
+            self.add(Resistor(f"{n}.Rs{suffix}", inp, grid, stopper, own, Role.GRID_STOPPER), spans[1])
+        if leak is not None:
+            self.add(Resistor(f"{n}.Rg{suffix}", inp, ret, leak, own, Role.GRID_LEAK), spans[0])
+        return inp, grid
+
+    def cathodyne(self, s: Stage) -> StageRecord:
+        """Split-load phase inverter: plate load from the rail, the cathode load
+        (``cathode R`` or ``cathode R tail R2``) to ground; outputs ``plate``
+        and ``cathode``, input ``in`` (top of the grid leak)."""
+        n, sp, own = s.name, s.spans, Owner("stage", s.name)
+        plate, cathode = f"{n}.plate", f"{n}.cathode"
+        self.add(Resistor(f"{n}.RL", s.rail, plate, s.plate_load_ohm, own, Role.PLATE_LOAD), sp.get("plate", s.span))
+        ret = self._tail(s, cathode, alone=Role.CATHODE_RESISTOR)
+        inp, grid = self._grid(n, s.grid_leak_ohm, s.grid_stopper_ohm, ret, suffix="",
+                               spans=(sp.get("grid_leak", s.span), sp.get("grid_stopper", s.span)))
+        model = self._model(s)
+        heater = s.heater_v if s.heater_v is not None else self.d.settings.heater_v
+        self.add(Triode(n, plate, grid, cathode, model, heater, own), s.span)
+        self.terminals[n] = {"plate": plate, "grid": grid, "cathode": cathode, "in": inp,
+                             "tap": ret if ret != GROUND else cathode}
+        return StageRecord(n, s.kind, model.name, (n,), {"in": inp}, {"plate": plate, "cathode": cathode}, s.rail)
+
+    def long_tailed_pair(self, s: Stage) -> StageRecord:
+        """Two triodes ``<stage>a`` and ``<stage>b`` with joined cathodes over a
+        shared tail; outputs ``plate1`` and ``plate2``, inputs ``in`` and
+        ``in2`` (tops of the grid leaks); the second grid may be AC-grounded
+        by a capacitor (``second grid … bypass C``)."""
+        n, sp, own = s.name, s.spans, Owner("stage", s.name)
+        sec = s.second
+        plate1, plate2, cathode = f"{n}.plate1", f"{n}.plate2", f"{n}.cathode"
+        self.add(Resistor(f"{n}.RL", s.rail, plate1, s.plate_load_ohm, own, Role.PLATE_LOAD), sp.get("plate", s.span))
+        self.add(Resistor(f"{n}.RL2", sec.rail, plate2, sec.plate_load_ohm, own, Role.PLATE_LOAD),
+                 sp.get("second_plate", s.span))
+        ret = self._tail(s, cathode, alone=Role.TAIL_RESISTOR)
+        in1, grid1 = self._grid(n, s.grid_leak_ohm, s.grid_stopper_ohm, ret, suffix="",
+                                spans=(sp.get("grid_leak", s.span), sp.get("grid_stopper", s.span)))
+        in2, grid2 = self._grid(n, sec.grid_leak_ohm, sec.grid_stopper_ohm, ret, suffix="2",
+                                spans=(sp.get("second_grid_leak", s.span), sp.get("second_grid_stopper", s.span)))
+        if sec.grid_bypass_f is not None:
+            self.add(Capacitor(f"{n}.Cg2", in2, GROUND, sec.grid_bypass_f, sec.grid_bypass_rated_v, own,
+                               Role.GRID_BYPASS), sp.get("second_grid_bypass", s.span))
+        model = self._model(s)
+        heater = s.heater_v if s.heater_v is not None else self.d.settings.heater_v
+        a, b = f"{n}a", f"{n}b"
+        self.add(Triode(a, plate1, grid1, cathode, model, heater, own), s.span)
+        self.add(Triode(b, plate2, grid2, cathode, model, heater, own), s.span)
+        self.terminals[n] = {"plate1": plate1, "plate2": plate2, "grid1": grid1, "grid2": grid2,
+                             "cathode": cathode, "tap": ret if ret != GROUND else cathode, "in": in1, "in2": in2}
+        return StageRecord(n, s.kind, model.name, (a, b), {"in": in1, "in2": in2},
+                           {"plate1": plate1, "plate2": plate2}, s.rail)
 
     # -- networks ---------------------------------------------------------------
     def resolve(self, name: str, instance: str | None, ports: dict[str, str], span: Span) -> str:
@@ -285,11 +374,13 @@ def build(design: Design) -> Circuit:
     output_node: str | None = None
     couplings: dict[str, tuple[str, str]] = {}
     for c in design.couplings:
-        src = stage_nodes[c.src].output
+        source = stage_nodes[c.src_stage]
+        src = source.outputs[c.src_port] if c.src_port else source.output
         if c.dst == "output":
             dst = "output"
         else:
-            dst = stage_nodes[c.dst].input
+            target = stage_nodes[c.dst_stage]
+            dst = target.inputs[c.dst_port] if c.dst_port else target.input
         if c.kind == "cap":
             name = f"couple.{c.src}-{c.dst}.C"
             x.add(Capacitor(name, src, dst, c.cap_f, c.rated_v, Owner("coupling", c.label), Role.COUPLING), c.span)
@@ -323,12 +414,24 @@ def build(design: Design) -> Circuit:
                   src.span)
 
     out = design.output
-    if out.node is not None:
-        if out.node in stage_nodes:
-            output_node = stage_nodes[out.node].output
+    # the chain's output ports: (label, node, load); a stage named alone gives all its output ports
+    ports: list[tuple[str, str, float, Span]] = []
+    for o in (out, *out.more):
+        if o.node is None:
+            ports.append(("output", output_node, o.load_ohm, o.span))
+        elif o.node in stage_nodes:
+            rec = stage_nodes[o.node]
+            if len(rec.outputs) == 1:
+                ports.append((o.node, rec.output, o.load_ohm, o.span))
+            else:
+                ports += [(f"{o.node}.{p}", node, o.load_ohm, o.span) for p, node in rec.outputs.items()]
         else:
-            output_node = x.resolve(out.node, None, {}, out.span)
-    x.add(Resistor("output.load", output_node, GROUND, out.load_ohm, Owner("output", "output"), Role.LOAD), out.span)
+            ports.append((o.node, x.resolve(o.node, None, {}, o.span), o.load_ohm, o.span))
+    output_node = ports[0][1]
+    for i, (label, node, load, span) in enumerate(ports):
+        x.add(Resistor("output.load" if i == 0 else f"output.load.{label}", node, GROUND, load,
+                       Owner("output", "output"), Role.LOAD), span)
+    output_ports = {label: node for label, node, _, _ in ports}
     for st in design.strays:
         node = stage_nodes[st.node].output if st.node in stage_nodes else x.resolve(st.node, None, {}, st.span)
         if st.farads > 0:
@@ -337,7 +440,8 @@ def build(design: Design) -> Circuit:
 
     if x.problems:
         raise LanguageError(x.problems)
-    circuit = _renamed(design, x, [stage_nodes[n] for n in order], first_in, output_node, couplings)
+    circuit = _renamed(design, x, [stage_nodes[n] for n in order], first_in, output_node, couplings,
+                       output_ports)
     problems = check_topology(circuit, design)
     if problems:
         raise LanguageError(problems)
@@ -349,14 +453,14 @@ def _signal_order(design: Design, x: _Expander) -> list[str]:
     g = Digraph(s.name for s in design.stages)
     spans = {}
     for c in design.couplings:
-        g.add_edge(c.src, c.dst)
-        spans.setdefault((c.src, c.dst), c.span)
-    direct = Digraph(edges=[(c.src, c.dst) for c in design.couplings if c.kind == "direct"])
+        g.add_edge(c.src_stage, c.dst_stage)
+        spans.setdefault((c.src_stage, c.dst_stage), c.span)
+    direct = Digraph(edges=[(c.src_stage, c.dst_stage) for c in design.couplings if c.kind == "direct"])
     for cycle in direct.cycles():
         # report at the loop's first line in the file, starting the loop there
-        members = [c for c in design.couplings if c.kind == "direct" and c.src in cycle]
+        members = [c for c in design.couplings if c.kind == "direct" and c.src_stage in cycle]
         first = min(members, key=lambda c: c.span.line)
-        k = cycle.index(first.src)
+        k = cycle.index(first.src_stage)
         cycle = cycle[k:] + cycle[:k]
         x.err("E315", "loop of direct couplings: " + " -> ".join(cycle + [cycle[0]]), first.span,
               "a direct coupling passes DC; a loop of them has no defined operating point")
@@ -376,7 +480,7 @@ def _signal_order(design: Design, x: _Expander) -> list[str]:
     return [n for n in g.topological_order(reached) if n != "output"]
 
 
-def _renamed(design, x: _Expander, stages, input_node, output_node, couplings) -> Circuit:
+def _renamed(design, x: _Expander, stages, input_node, output_node, couplings, output_ports) -> Circuit:
     f = x.nodes.find
     res = tuple(replace(r, a=f(r.a), b=f(r.b)) for r in x.res)
     caps = tuple(replace(c, a=f(c.a), b=f(c.b)) for c in x.caps)
@@ -394,6 +498,7 @@ def _renamed(design, x: _Expander, stages, input_node, output_node, couplings) -
         output_node=f(output_node),
         rails=rails,
         couplings={k: (f(a), f(b)) for k, (a, b) in couplings.items()},
+        outputs={k: f(v) for k, v in output_ports.items()},
         origins=dict(x.origins),
     )
 
@@ -477,7 +582,32 @@ def _loaded(design: Design):
 
 #: stage part suffix → (Stage field, Cathode field or None)
 _STAGE_PARTS = {"RL": ("plate_load_ohm", None), "Rg": ("grid_leak_ohm", None), "Rs": ("grid_stopper_ohm", None),
-                "Rk": ("cathode", "r_ohm"), "Ck": ("cathode", "bypass_f"), "Rkc": ("cathode", "bypass_series_ohm")}
+                "Rk": ("cathode", "r_ohm"), "Ck": ("cathode", "bypass_f"), "Rkc": ("cathode", "bypass_series_ohm"),
+                "Rt": ("cathode", "tail_ohm")}
+#: a long-tailed pair's second-triode part suffix → Section field
+_SECOND_PARTS = {"RL2": "plate_load_ohm", "Rg2": "grid_leak_ohm", "Rs2": "grid_stopper_ohm",
+                 "Cg2": "grid_bypass_f"}
+
+
+def _stage_part(s: Stage, suffix: str) -> tuple[str, str | None] | None:
+    """Where a stage's part ``suffix`` lives in the design: (Stage or ``"second"`` field, sub-field)."""
+    if s.kind == "long-tailed-pair" and s.cathode is not None and s.cathode.tail_ohm is None:
+        # a pair's lone cathode resistor is its tail (part Rt)
+        if suffix == "Rt":
+            return ("cathode", "r_ohm")
+        if suffix == "Rk":
+            return None
+    if suffix in _SECOND_PARTS:
+        return ("second", _SECOND_PARTS[suffix]) if s.second is not None else None
+    return _STAGE_PARTS.get(suffix)
+
+
+def _stage_part_value(s: Stage, where: tuple[str, str | None] | None) -> float | None:
+    if where is None:
+        return None
+    field, sub = where
+    holder = getattr(s, field) if sub else s
+    return None if holder is None else getattr(holder, sub or field)
 
 
 def part_names(design: Design) -> tuple[str, ...]:
@@ -488,9 +618,8 @@ def part_names(design: Design) -> tuple[str, ...]:
         if r.decouple_f is not None:
             names.append(f"rail.{r.name}.C")
     for s in design.stages:
-        for suffix, (field, sub) in _STAGE_PARTS.items():
-            holder = s.cathode if sub else s
-            if holder is not None and getattr(holder, sub or field) is not None:
+        for suffix in (*_STAGE_PARTS, *_SECOND_PARTS):
+            if _stage_part_value(s, _stage_part(s, suffix)) is not None:
                 names.append(f"{s.name}.{suffix}")
     names += [f"couple.{c.src}-{c.dst}.C" for c in design.couplings if c.kind == "cap"]
     names += [f"{n.name}.{p.name}" for n in design.networks for p in n.parts]
@@ -518,14 +647,12 @@ def with_part(design: Design, part: str, value: float) -> Design:
 
     head, _, tail = part.partition(".")
     stage_names = {s.name for s in design.stages}
-    if head in stage_names and tail in _STAGE_PARTS:
-        field, sub = _STAGE_PARTS[tail]
+    if head in stage_names and _stage_part_value(design.stage(head), _stage_part(design.stage(head), tail)) is not None:
         stage = design.stage(head)
+        field, sub = _stage_part(stage, tail)
         if sub is None:
-            if getattr(stage, field) is not None:
-                return design.with_stage(head, **{field: value})
-        elif stage.cathode is not None and getattr(stage.cathode, sub) is not None:
-            return design.with_stage(head, cathode=replace(stage.cathode, **{sub: value}))
+            return design.with_stage(head, **{field: value})
+        return design.with_stage(head, **{field: replace(getattr(stage, field), **{sub: value})})
     elif head == "supply" and any(s.name == tail for s in design.supplies):
         return _edited(design, supplies=tuple(replace(s, volts=value) if s.name == tail else s
                                               for s in design.supplies))

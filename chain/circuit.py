@@ -119,6 +119,8 @@ class Role(str, Enum):
     GRID_LEAK = "grid leak"
     GRID_STOPPER = "grid stopper"
     TAIL_RESISTOR = "tail resistor"
+    #: a capacitor from a grid (leak top) to ground: the AC-grounded second grid of a long-tailed pair
+    GRID_BYPASS = "grid bypass capacitor"
     TRIODE = "triode"
     # a triode's small-signal elements
     PLATE_RESISTANCE = "plate resistance"
@@ -434,12 +436,16 @@ class Circuit:
     rails: tuple[str, ...] = ()
     #: the user-facing couplings: label -> (from_node, to_node)
     couplings: Mapping[str, tuple[str, str]] = field(default_factory=dict)
+    #: the chain's output ports: label as written (``"PI.cathode"``, or ``"output"``) -> node;
+    #: the first is :attr:`output_node`.  Empty for hand-built circuits (then only ``output_node``).
+    outputs: Mapping[str, str] = field(default_factory=dict)
     #: where each element came from in the netlist (element name → Span)
     origins: Mapping[str, Span] = field(default_factory=dict, compare=False, repr=False)
 
     def __post_init__(self):
         object.__setattr__(self, "couplings", _frozen_map(self.couplings))
         object.__setattr__(self, "origins", _frozen_map(self.origins))
+        object.__setattr__(self, "outputs", _frozen_map(self.outputs or {"output": self.output_node}))
 
     # -- elements --------------------------------------------------------------
     @property

@@ -58,6 +58,7 @@ __all__ = [
     "Compression",
     "COMPRESSION_DB",
     "HalfWaveLimit",
+    "OutputSwing",
     "StageHeadroom",
     "Headroom",
     "headroom",
@@ -103,12 +104,19 @@ class Onset:
         Deviation of the stage's input node there, V (signed).
     output_v : float
         Deviation of the stage's output node there, V (signed).
+    triode : str
+        The triode that reaches the limit (one of the stage's triodes).
+    ports_v : tuple[float, ...]
+        Deviation of each of the stage's output ports there, V (signed; the
+        first is ``output_v``).
     """
 
     mechanism: str
     input_v: float
     stage_input_v: float
     output_v: float
+    triode: str = ""
+    ports_v: tuple[float, ...] = ()
 
     @property
     def input_dbv(self) -> float:
@@ -186,6 +194,29 @@ class HalfWaveLimit:
 
 
 @dataclass(frozen=True, slots=True)
+class OutputSwing:
+    """One output port of a stage up to the stage's clipping point.
+
+    Attributes
+    ----------
+    port, node : str
+        The port's name (``"out"``, ``"plate"``, ``"cathode"``, ``"plate1"`` …) and node.
+    swing_pos_v, swing_neg_v : float
+        The port's excursion above and below its DC point up to each
+        half-wave's limit of the stage (V, >= 0 and <= 0).
+    thd_input_v : tuple[float | None, ...]
+        Source peak at which this port reaches each THD threshold of the
+        stage's own distortion (stage input to this port), V.
+    """
+
+    port: str
+    node: str
+    swing_pos_v: float
+    swing_neg_v: float
+    thd_input_v: tuple[float | None, ...]
+
+
+@dataclass(frozen=True, slots=True)
 class StageHeadroom:
     """Headroom of one stage.
 
@@ -207,6 +238,9 @@ class StageHeadroom:
         ``20·log10(clip input / stated level)``: headroom left at the stated
         input level (negative: already clipping); ``inf`` when the stage
         never clips in the sweep.
+    outputs : tuple[OutputSwing, ...]
+        Every output port (the main one first, the same numbers as
+        ``swing_pos_v``, ``swing_neg_v`` and ``thd_input_v``).
     """
 
     stage: str
@@ -219,6 +253,7 @@ class StageHeadroom:
     swing_pos_v: float
     swing_neg_v: float
     margin_db: float
+    outputs: tuple[OutputSwing, ...] = ()
 
     @property
     def first(self) -> Onset | None:
@@ -345,20 +380,31 @@ def _refine(net: MidBandNetwork, quantity: Callable[[np.ndarray], float], v_a: f
 
 def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, polarity: str, mechanism: str,
            ) -> tuple[Onset | None, int]:
-    """The onset of one mechanism on one side, and the last sweep index before it."""
-    t = net.triode_index(stage.triode)
+    """The onset of one mechanism on one side over all the stage's triodes (the
+    earliest), and the last sweep index before it."""
+    found = [_triode_onset(net, curves, stage, name, polarity, mechanism) for name in stage.triodes]
+    hits = [f for f in found if f[0] is not None]
+    if not hits:
+        return None, min(k for _, k in found)
+    return min(hits, key=lambda f: f[0].input_v)
+
+
+def _triode_onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, triode: str, polarity: str,
+                  mechanism: str) -> tuple[Onset | None, int]:
+    """The onset of one mechanism in one triode on one side, and the last sweep index before it."""
+    t = net.triode_index(triode)
     model = net.circuit.triodes[t].model
     idx = _side(curves, polarity)
-    iq = curves.quiescent_ip_a[stage.triode]
+    iq = curves.quiescent_ip_a[triode]
     threshold = curves.cutoff_fraction * iq
     if mechanism == GRID_CONDUCTION:
         # "active" when >= 0
-        values = curves.vgk_v[stage.triode][idx] - model.grid_onset_v
+        values = curves.vgk_v[triode][idx] - model.grid_onset_v
 
         def quantity(x: np.ndarray) -> float:
             return float(net.triodes(x[None, :])[0][0, t] - model.grid_onset_v)
     else:
-        values = threshold - curves.ip_a[stage.triode][idx]
+        values = threshold - curves.ip_a[triode][idx]
 
         def quantity(x: np.ndarray) -> float:
             return float(threshold - net.triodes(x[None, :])[1][0, t])
@@ -367,7 +413,7 @@ def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, pola
     if active[0]:
         if idx.size < 2 or values[1] >= values[0]:
             # already past the limit at rest, and driven further in on this side
-            return Onset(mechanism, 0.0, 0.0, 0.0), 0
+            return Onset(mechanism, 0.0, 0.0, 0.0, triode, tuple(0.0 for _ in stage.outputs)), 0
         # driven out of it on this side: look for a fresh onset once it has left
         left = np.flatnonzero(~active)
         if left.size == 0:
@@ -377,13 +423,14 @@ def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, pola
     if hit.size == 0:
         return None, int(idx.size - 1)
     k = int(hit[0])
-    nodes = (stage.input, stage.output)
+    nodes = (stage.input, *stage.outputs.values())
     dc_v = net.node_voltages(net.x0[None, :], nodes)[0]
     a, b = int(idx[k - 1]), int(idx[k])
     v, x = _refine(net, quantity, float(curves.input_v[a]), np.asarray(curves.states[a]),
                    float(curves.input_v[b]), np.asarray(curves.states[b]))
     volts = net.node_voltages(x[None, :], nodes)[0] - dc_v
-    return Onset(mechanism, abs(v), float(volts[0]), float(volts[1])), k - 1
+    return Onset(mechanism, abs(v), float(volts[0]), float(volts[1]), triode,
+                 tuple(float(x) for x in volts[1:])), k - 1
 
 
 def _compression(curves: TransferCurves, stage: StageRecord, polarity: str) -> tuple[Compression | None, ...]:
@@ -429,16 +476,30 @@ def _compression(curves: TransferCurves, stage: StageRecord, polarity: str) -> t
 
 
 def _thd_thresholds(curves: TransferCurves, stage: StageRecord, levels: np.ndarray, thd_levels, *,
-                    half: str | None) -> tuple[float | None, ...]:
+                    half: str | None, output: str | None = None) -> tuple[float | None, ...]:
     if levels.size == 0:
         return tuple(None for _ in thd_levels)
-    values = thd_versus_level(curves, stage.input, stage.output, levels, half=half)
+    values = thd_versus_level(curves, stage.input, output or stage.output, levels, half=half)
     return tuple(level_for_thd(levels, values, target) for target in thd_levels)
 
 
+def _reach(curves: TransferCurves, node: str, polarity: str, limit: HalfWaveLimit, k_grid: int, k_cut: int,
+           onset_at: Callable[[Onset], float]) -> tuple[float, float]:
+    """A node's excursion (max, min) on one half-wave up to that half-wave's limit."""
+    idx = _side(curves, polarity)
+    y = curves.node_dv[node][idx]
+    first = limit.first
+    if first is None:
+        reach = y
+    else:
+        last = k_grid if first is limit.grid else k_cut
+        reach = np.append(y[:last + 1], onset_at(first))
+    return float(max(reach.max(), 0.0)), float(min(reach.min(), 0.0))
+
+
 def _half_wave(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, polarity: str,
-               thd_levels) -> tuple[HalfWaveLimit, float, float]:
-    """One half-wave's limits, and the output excursion (max, min) up to its limit."""
+               thd_levels) -> tuple[HalfWaveLimit, dict[str, tuple[float, float]]]:
+    """One half-wave's limits, and each output port's excursion (max, min) up to its limit."""
     grid, k_grid = _onset(net, curves, stage, polarity, GRID_CONDUCTION)
     cut, k_cut = _onset(net, curves, stage, polarity, CUTOFF)
     idx = _side(curves, polarity)
@@ -447,20 +508,16 @@ def _half_wave(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, 
                           thd_input_v=_thd_thresholds(curves, stage, levels, thd_levels, half=polarity),
                           swept_to_v=float(levels[-1]) if levels.size else 0.0,
                           compression=_compression(curves, stage, polarity))
-    first = limit.first
-    y = curves.node_dv[stage.output][idx]
-    if first is None:
-        reach = y
-    else:
-        last = k_grid if first is grid else k_cut
-        reach = np.append(y[:last + 1], first.output_v)
-    return limit, float(max(reach.max(), 0.0)), float(min(reach.min(), 0.0))
+    reaches = {}
+    for i, (port, node) in enumerate(stage.outputs.items()):
+        reaches[port] = _reach(curves, node, polarity, limit, k_grid, k_cut, lambda o, i=i: o.ports_v[i])
+    return limit, reaches
 
 
 def _stage_headroom(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, level_v: float,
                     thd_levels) -> StageHeadroom:
-    pos, hi_p, lo_p = _half_wave(net, curves, stage, "positive", thd_levels)
-    neg, hi_n, lo_n = _half_wave(net, curves, stage, "negative", thd_levels)
+    pos, reach_p = _half_wave(net, curves, stage, "positive", thd_levels)
+    neg, reach_n = _half_wave(net, curves, stage, "negative", thd_levels)
     span = min(pos.swept_to_v, neg.swept_to_v)
     idx = _side(curves, "positive")
     levels = np.abs(curves.input_v[idx[1:]])
@@ -470,10 +527,16 @@ def _stage_headroom(net: MidBandNetwork, curves: TransferCurves, stage: StageRec
         margin = math.inf
     else:
         margin = 20.0 * math.log10(min(found) / level_v) if min(found) > 0.0 else -math.inf
+    outputs = []
+    for port, node in stage.outputs.items():
+        (hi_p, lo_p), (hi_n, lo_n) = reach_p[port], reach_n[port]
+        thd = _thd_thresholds(curves, stage, levels, thd_levels, half=None, output=node)
+        outputs.append(OutputSwing(port, node, max(hi_p, hi_n), min(lo_p, lo_n), thd))
+    main = outputs[0]
     return StageHeadroom(stage=stage.name, kind=stage.kind, input_node=stage.input, output_node=stage.output,
-                         positive=pos, negative=neg,
-                         thd_input_v=_thd_thresholds(curves, stage, levels, thd_levels, half=None),
-                         swing_pos_v=max(hi_p, hi_n), swing_neg_v=min(lo_p, lo_n), margin_db=margin)
+                         positive=pos, negative=neg, thd_input_v=main.thd_input_v,
+                         swing_pos_v=main.swing_pos_v, swing_neg_v=main.swing_neg_v, margin_db=margin,
+                         outputs=tuple(outputs))
 
 
 def _summary(first: StageHeadroom | None, level_v: float) -> str:

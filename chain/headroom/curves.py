@@ -114,11 +114,12 @@ class TransferCurves:
 
 
 def watched_nodes(circuit: Circuit) -> tuple[str, ...]:
-    """Chain input, each stage's input and output, chain output (no repeats)."""
+    """Chain input, each stage's input and outputs, the chain outputs (no repeats)."""
     names = [circuit.input_node]
     for s in circuit.stages:
-        names += [s.input, s.output]
+        names += [s.input, *s.outputs.values()]
     names.append(circuit.output_node)
+    names += list(circuit.outputs.values())
     return tuple(dict.fromkeys(names))
 
 
@@ -143,7 +144,7 @@ def _sweep_side(net: MidBandNetwork, sign: float, *, start_v: float, ratio: floa
                 overdrive: float, cutoff_fraction: float) -> tuple[list[float], list[np.ndarray], str]:
     """March from 0 V to one side; returns (inputs, states, why it stopped)."""
     circuit = net.circuit
-    first = net.triode_index(circuit.stages[0].triode) if circuit.stages else None
+    first = tuple(net.triode_index(t) for t in circuit.stages[0].triodes) if circuit.stages else ()
     vs: list[float] = []
     xs: list[np.ndarray] = []
     v_from, x_from = 0.0, net.x0
@@ -163,7 +164,7 @@ def _sweep_side(net: MidBandNetwork, sign: float, *, start_v: float, ratio: floa
         vs.append(v)
         xs.append(x)
         v_back, x_back, v_from, x_from = v_from, x_from, v, x
-        if first is not None and limit_at is None and _limited(net, x, first, cutoff_fraction):
+        if limit_at is None and any(_limited(net, x, t, cutoff_fraction) for t in first):
             limit_at = magnitude
         if limit_at is not None and magnitude >= overdrive * limit_at:
             why = (f"stage {circuit.stages[0].name} driven {20 * np.log10(overdrive):.0f} dB past its "

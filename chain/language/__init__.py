@@ -17,6 +17,7 @@ from chain.language.design import (
     Part,
     Pot,
     Rail,
+    Section,
     Settings,
     Source,
     Stage,
@@ -28,6 +29,6 @@ from chain.language.parser import parse_file, parse_syntax, parse_text
 
 __all__ = [
     "ANALYSED_KINDS", "STAGE_KINDS", "Cathode", "Coupling", "Design", "Network", "Output", "Part", "Pot",
-    "Rail", "Settings", "Source", "Stage", "Stray", "Supply", "TubeDef",
+    "Rail", "Section", "Settings", "Source", "Stage", "Stray", "Supply", "TubeDef",
     "parse_file", "parse_syntax", "parse_text",
 ]

@@ -22,6 +22,7 @@ __all__ = [
     "Rail",
     "TubeDef",
     "Cathode",
+    "Section",
     "Stage",
     "Part",
     "Pot",
@@ -35,10 +36,29 @@ __all__ = [
 
 #: every stage configuration the grammar knows
 STAGE_KINDS = ("common-cathode", "cathode-follower", "common-grid", "cathodyne", "long-tailed-pair")
-#: the configurations the analysis handles today (two-triode kinds parse but are refused)
-ANALYSED_KINDS = ("common-cathode", "cathode-follower", "common-grid")
-#: stage terminals a network may name as ``STAGE.terminal``
+#: the configurations the analysis handles (all of them)
+ANALYSED_KINDS = STAGE_KINDS
+#: the configurations with two triodes
+TWO_TRIODE_KINDS = ("cathodyne", "long-tailed-pair")
+#: stage terminals a network may name as ``STAGE.terminal`` (single-triode stages)
 TERMINALS = ("plate", "grid", "cathode", "in")
+#: terminals by configuration; a two-triode stage's ``tap`` is the node
+#: between its cathode (bias) resistor and its tail resistor
+KIND_TERMINALS = {
+    "common-cathode": TERMINALS,
+    "cathode-follower": TERMINALS,
+    "common-grid": TERMINALS,
+    "cathodyne": ("plate", "grid", "cathode", "tap", "in"),
+    "long-tailed-pair": ("plate1", "plate2", "grid1", "grid2", "cathode", "tap", "in", "in2"),
+}
+#: the named ports of each configuration: (inputs, outputs), the main one first
+KIND_PORTS = {
+    "common-cathode": (("in",), ("out",)),
+    "cathode-follower": (("in",), ("out",)),
+    "common-grid": (("in",), ("out",)),
+    "cathodyne": (("in",), ("plate", "cathode")),
+    "long-tailed-pair": (("in", "in2"), ("plate1", "plate2")),
+}
 
 _NOWHERE = Span("<none>", 0, 0)
 
@@ -110,6 +130,24 @@ class Cathode:
     bypass_f: float | None = None
     bypass_series_ohm: float | None = None
     bypass_rated_v: float | None = None
+    #: two-triode stages: tail resistor from the tap under ``r_ohm`` to
+    #: ground; the grid leaks return to that tap (None: ``r_ohm`` goes to
+    #: ground and so do the grid leaks)
+    tail_ohm: float | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class Section:
+    """The second triode of a long-tailed pair: its plate load and rail, its
+    grid leak (to the tap, or to ground without a tail), grid stopper, and a
+    capacitor from the top of its grid leak to ground (AC-grounding that grid)."""
+
+    plate_load_ohm: float | None = None
+    rail: str = ""
+    grid_leak_ohm: float | None = None
+    grid_stopper_ohm: float | None = None
+    grid_bypass_f: float | None = None
+    grid_bypass_rated_v: float | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -130,7 +168,10 @@ class Stage:
     heater_v: float | None = None
     span: Span = _span()
     #: where each member line was written: "plate", "cathode", "grid_leak", …
+    #: ("second_plate", "second_grid_leak", … for the second triode)
     spans: dict = field(default_factory=dict, compare=False, repr=False)
+    #: the second triode of a long-tailed pair (its ``second …`` lines)
+    second: Section | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -203,6 +244,26 @@ class Coupling:
             return self.instance or self.network or ""
         return f"{self.src}->{self.dst}"
 
+    @property
+    def src_stage(self) -> str:
+        """The source stage (``PI`` of ``PI.cathode``)."""
+        return self.src.partition(".")[0]
+
+    @property
+    def src_port(self) -> str | None:
+        """The source stage's output port when named (``cathode`` of ``PI.cathode``), else None."""
+        return self.src.partition(".")[2] or None
+
+    @property
+    def dst_stage(self) -> str:
+        """The destination stage (or ``"output"``)."""
+        return self.dst.partition(".")[0]
+
+    @property
+    def dst_port(self) -> str | None:
+        """The destination stage's input port when named (``in2`` of ``PI.in2``), else None."""
+        return self.dst.partition(".")[2] or None
+
 
 @dataclass(frozen=True, slots=True)
 class Source:
@@ -229,6 +290,8 @@ class Output:
     node: str | None
     load_ohm: float | None
     span: Span = _span()
+    #: further output ports named on the same line (``… and PI.cathode load 220k``)
+    more: tuple["Output", ...] = ()
 
 
 @dataclass(frozen=True, slots=True)

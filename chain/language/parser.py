@@ -30,6 +30,7 @@ from chain.language.design import (
     Part,
     Pot,
     Rail,
+    Section,
     Settings,
     Source,
     Stage,
@@ -45,7 +46,7 @@ __all__ = ["parse_text", "parse_file", "parse_syntax"]
 #: statements allowed at the top level, and inside each kind of block
 TOP_LEVEL = {"title", "set_reference", "set_band", "set_level", "set_points", "set_heater", "supply",
              "rail", "tube", "stage", "network", "couple", "input", "output", "stray"}
-STAGE_MEMBERS = {"plate_load", "plate_on", "cathode", "grid", "heater"}
+STAGE_MEMBERS = {"plate_load", "plate_on", "cathode", "grid", "heater", "second"}
 NETWORK_MEMBERS = {"part", "pot", "rheostat", "pot_unlabelled"}
 
 #: other words of the trade for a stage terminal
@@ -119,7 +120,7 @@ def _expected_names(exc) -> set[str]:
 
 
 #: the words that may start a line inside each kind of block
-BLOCK_WORDS = {"stage": ("plate", "cathode", "grid", "heater"),
+BLOCK_WORDS = {"stage": ("plate", "cathode", "grid", "heater", "second"),
                "network": ("resistor", "capacitor", "inductor", "pot", "rheostat")}
 
 
@@ -583,21 +584,49 @@ class _Builder:
 
     def _output(self, tree, span):
         children = list(tree.children)
+        more = [c for c in children if getattr(c, "data", None) == "output_more"]
+        children = [c for c in children if getattr(c, "data", None) != "output_more"]
         node = str(children.pop(0)) if len(children) == 2 else None
-        self.outputs.append(Output(node, self.value(children[0], span, "ohm", "output load"), span))
+        extra = []
+        for m in more:
+            name, val = m.children
+            extra.append(Output(str(name), self.value(val, span, "ohm", "output load"), self.at(name, span)))
+        if extra and node is None:
+            raise _LineErrors([error("E274", "an output line with several ports names each of them",
+                                     self.at(more[0].children[0], span),
+                                     "write 'output PI.plate load 220k and PI.cathode load 220k'")])
+        self.outputs.append(Output(node, self.value(children[0], span, "ohm", "output load"), span,
+                                   tuple(extra)))
 
     def _stray(self, tree, span):
         node, val = tree.children
         self.strays.append(Stray(str(node), self.value(val, span, "F", "stray capacitance"), self.at(node, span)))
 
     # -- stage members --------------------------------------------------------
+    #: while a ``second …`` line is read: the prefix of its member keys
+    _prefix = ""
+
     def _member(self, key: str, value, span: Span) -> None:
         _, stage = self.block
+        key = self._prefix + key
         if key in stage:
             raise _LineErrors([error("E108", f"stage {stage['name']} already has its {key.replace('_', ' ')}", span,
                                      "give each part once per stage")])
         stage[key] = value
         stage.setdefault("spans", {})[key] = span
+
+    def _second(self, tree, span):
+        _, stage = self.block
+        if stage.get("kind") != "long-tailed-pair":
+            raise _LineErrors([error("E270", f"'second' lines belong to a long-tailed pair, not to a "
+                                     f"{stage.get('kind', 'broken')} stage", span,
+                                     "only a long-tailed pair has a second triode with its own plate and grid")])
+        member = tree.children[0]
+        self._prefix = "second_"
+        try:
+            getattr(self, "_" + member.data)(member, span)
+        finally:
+            self._prefix = ""
 
     def _plate_load(self, tree, span):
         val, rail = tree.children
@@ -610,6 +639,10 @@ class _Builder:
         r, *rest = tree.children
         rk = self.value(r, span, "ohm", "cathode resistor")
         ck = rkc = rated = None
+        if rest and rest[0].data == "tail":
+            tail = self.value(rest[0].children[0], span, "ohm", "tail resistor")
+            self._member("cathode", Cathode(rk, tail_ohm=tail), span)
+            return
         if rest:
             by = rest[0].children
             ck = self.value(by[0], span, "F", "bypass capacitor")
@@ -626,6 +659,15 @@ class _Builder:
                 self._member("grid_leak", self.value(item.children[0], span, "ohm", "grid leak"), span)
             elif item.data == "grid_stopper":
                 self._member("grid_stopper", self.value(item.children[0], span, "ohm", "grid stopper"), span)
+            elif item.data == "grid_bypass":
+                if not self._prefix:
+                    raise _LineErrors([error("E270", "only the second grid of a long-tailed pair takes a bypass "
+                                             "capacitor", span,
+                                             "write 'second grid leak 1M bypass 100n' under a long-tailed pair")])
+                c = self.value(item.children[0], span, "F", "grid bypass capacitor")
+                rated = (self.value(item.children[1].children[0], span, "V", "voltage rating")
+                         if len(item.children) > 1 else None)
+                self._member("grid_bypass", (c, rated), span)
             else:
                 self._member("grid_ground", True, span)
 
@@ -725,9 +767,19 @@ class _Builder:
         stages = []
         for st in self.stages:
             load, rail = st.get("plate", (None, ""))
+            second = None
+            if any(k.startswith("second_") for k in st):
+                if "second_grid_ground" in st:
+                    problems.append(error("E270", f"stage {st['name']}: the second grid of a long-tailed pair is "
+                                          "not tied to ground; AC-ground it with 'second grid leak 1M bypass 100n'",
+                                          st["spans"]["second_grid_ground"]))
+                load2, rail2 = st.get("second_plate", (None, ""))
+                bypass_f, bypass_v = st.get("second_grid_bypass", (None, None))
+                second = Section(load2, rail2, st.get("second_grid_leak"), st.get("second_grid_stopper"),
+                                 bypass_f, bypass_v)
             stages.append(Stage(st["name"], st["kind"], st["tube"], load, rail, st.get("cathode"),
                                 st.get("grid_leak"), st.get("grid_stopper"), st.get("grid_ground", False),
-                                st.get("heater"), st["span"], dict(st.get("spans", {}))))
+                                st.get("heater"), st["span"], dict(st.get("spans", {})), second))
         stage_names = {st["name"] for st in self.stages}
 
         def node(name: str | None) -> str | None:

@@ -13,7 +13,7 @@ import difflib
 import math
 
 from chain.errors import Diagnostic, LanguageError, Span, error, warning
-from chain.language.design import ANALYSED_KINDS, TERMINALS, Design, Pot, Stage
+from chain.language.design import KIND_PORTS, KIND_TERMINALS, TERMINALS, TWO_TRIODE_KINDS, Design, Pot, Stage
 from chain.tubes import LIBRARY, lookup
 
 #: tube-line keys of each model form (capacitances and ratings belong to every form)
@@ -55,6 +55,8 @@ RANGES = {
     "rated": (1.0, 10e3, "voltage rating"),
     "heater": (-500.0, 500.0, "heater potential"),
     "band": (0.1, 10e6, "band edge"),
+    "tail": (1.0, 1e6, "tail resistor"),
+    "grid_bypass": (1e-12, 100e-6, "grid bypass capacitor"),
 }
 
 #: sensible limits of each ``tube`` line key, SI units: (low, high, unit, what, zero allowed).
@@ -92,7 +94,8 @@ _SI_UNITS = {"supply": "V", "supply_impedance": "Ω", "drop": "Ω", "decouple": 
              "cathode": "Ω", "bypass": "F", "bypass_series": "Ω", "grid_leak": "Ω", "grid_stopper": "Ω",
              "coupling": "F", "resistor": "Ω", "capacitor": "F", "inductor": "H", "pot": "Ω",
              "source_r": "Ω", "pickup_r": "Ω", "pickup_l": "H", "pickup_c": "F", "cable": "F", "load": "Ω",
-             "stray": "F", "reference": "Hz", "level": "V", "rated": "V", "heater": "V", "band": "Hz"}
+             "stray": "F", "reference": "Hz", "level": "V", "rated": "V", "heater": "V", "band": "Hz",
+             "tail": "Ω", "grid_bypass": "F"}
 
 
 def _fmt(value: float, unit: str) -> str:
@@ -182,6 +185,13 @@ class _Checker:
                 self.err("E202", f"'{name}' is a reserved word and cannot name a stage, network or rail",
                          span or d.supplies[0].span)
 
+        all_names = {s.name for s in d.stages} | set(net_names) | set(rail_names)
+        for s in d.stages:
+            if s.kind == "long-tailed-pair":
+                for t in (f"{s.name}a", f"{s.name}b"):
+                    if t in all_names:
+                        self.err("E275", f"stage '{s.name}' names its triodes {s.name}a and {s.name}b, but "
+                                 f"'{t}' is taken", s.span, "rename one of them")
         self.check_settings()
         self.check_supplies(rail_names)
         tube_names = self.check_tubes()
@@ -332,9 +342,6 @@ class _Checker:
 
     def check_stage(self, s: Stage, rail_names, tube_names):
         sp = s.spans
-        if s.kind not in ANALYSED_KINDS:
-            self.err("E208", f"stage '{s.name}': {s.kind} stages are part of the language but not analysed yet",
-                     s.span, "use common-cathode, cathode-follower or common-grid")
         try:
             lookup(s.tube)
         except KeyError:
@@ -355,8 +362,9 @@ class _Checker:
             self.in_range("bypass", s.cathode.bypass_f, cs, s.name)
             self.in_range("bypass_series", s.cathode.bypass_series_ohm, cs, s.name)
             self.in_range("rated", s.cathode.bypass_rated_v, cs, s.name)
-        elif s.kind in ("cathode-follower", "common-grid"):
+        elif s.kind in ("cathode-follower", "common-grid", *TWO_TRIODE_KINDS):
             self.err("E306", f"stage '{s.name}': a {s.kind} stage needs a cathode resistor", s.span)
+        self.check_two_triode(s, rail_names)
         self.in_range("grid_leak", s.grid_leak_ohm, sp.get("grid_leak", s.span), s.name)
         self.in_range("grid_stopper", s.grid_stopper_ohm, sp.get("grid_stopper", s.span), s.name)
         if s.heater_v is not None:
@@ -370,6 +378,41 @@ class _Checker:
             self.err("E308", f"stage '{s.name}': the common-grid stage's grid needs 'grid ground' or a grid leak",
                      s.span)
 
+    def check_two_triode(self, s: Stage, rail_names):
+        """The members only a cathodyne or a long-tailed pair may have, and what those need."""
+        sp = s.spans
+        cs = sp.get("cathode", s.span)
+        k = s.cathode
+        if s.kind not in TWO_TRIODE_KINDS:
+            if k is not None and k.tail_ohm is not None:
+                self.err("E271", f"stage '{s.name}': a tail resistor belongs to a cathodyne or a long-tailed "
+                         f"pair, not to a {s.kind} stage", cs,
+                         "write 'cathode R' or 'cathode R bypass C'")
+            return
+        if k is not None:
+            self.in_range("tail", k.tail_ohm, cs, s.name)
+            if k.bypass_f is not None:
+                self.err("E271", f"stage '{s.name}': the cathode of a {s.kind} is not bypassed here", cs,
+                         "write 'cathode R' or 'cathode R tail R2' (the grid leaks return to the tap "
+                         "between them)")
+        if s.kind == "cathodyne":
+            return
+        sec = s.second
+        if sec is None or not sec.rail:
+            self.err("E272", f"stage '{s.name}': a long-tailed pair needs the second triode's plate line",
+                     s.span, "add 'second plate 100k from B+'")
+            return
+        if sec.rail not in rail_names:
+            self.unknown("E204", "supply or rail", sec.rail, sp.get("second_plate", s.span), rail_names)
+        if sec.plate_load_ohm is None:
+            self.err("E272", f"stage '{s.name}': the second triode of a long-tailed pair needs a plate load",
+                     sp.get("second_plate", s.span))
+        self.in_range("plate_load", sec.plate_load_ohm, sp.get("second_plate", s.span), s.name)
+        self.in_range("grid_leak", sec.grid_leak_ohm, sp.get("second_grid_leak", s.span), s.name)
+        self.in_range("grid_stopper", sec.grid_stopper_ohm, sp.get("second_grid_stopper", s.span), s.name)
+        self.in_range("grid_bypass", sec.grid_bypass_f, sp.get("second_grid_bypass", s.span), s.name)
+        self.in_range("rated", sec.grid_bypass_rated_v, sp.get("second_grid_bypass", s.span), s.name)
+
     def check_node_ref(self, name, span, stage_names, net_names, rail_names, local):
         """A node written in a network (``local`` = that network's name) or a stray line."""
         if name == "gnd" or name in rail_names:
@@ -377,8 +420,9 @@ class _Checker:
         if "." in name:
             head, tail = name.split(".", 1)
             if head in stage_names:
-                if tail not in TERMINALS:
-                    self.unknown("E209", f"terminal of stage {head}", tail, span, TERMINALS)
+                terminals = KIND_TERMINALS.get(self.d.stage(head).kind, TERMINALS)
+                if tail not in terminals:
+                    self.unknown("E209", f"terminal of stage {head}", tail, span, terminals)
                 return
             if head in net_names or head in self._instances():
                 return
@@ -387,6 +431,17 @@ class _Checker:
         if local is None:
             self.unknown("E211", "node", name, span, list(rail_names) + ["gnd"],
                          "name a stage terminal such as V1.plate, a rail, or a network node as net.node")
+
+    def check_port(self, stage: str, port: str | None, side: int, span: Span):
+        """``side`` 1: an output port of ``stage``; 0: an input port."""
+        if port is None:
+            return
+        kind = self.d.stage(stage).kind
+        ports = KIND_PORTS[kind][side]
+        if port not in ports:
+            what = "output" if side else "input"
+            self.err("E273", f"stage '{stage}' ({kind}) has no {what} port '{port}'", span,
+                     f"its {what} ports: " + ", ".join(ports))
 
     def _instances(self):
         return {c.instance for c in self.d.couplings if c.instance}
@@ -429,12 +484,16 @@ class _Checker:
     def check_couplings(self, stage_names, net_names):
         instances: dict[str, Span] = {}
         for c in self.d.couplings:
-            if c.src not in stage_names:
+            if c.src_stage not in stage_names:
                 self.unknown("E215", "stage", c.src, c.span, stage_names)
-            if c.dst != "output" and c.dst not in stage_names:
+            else:
+                self.check_port(c.src_stage, c.src_port, 1, c.span)
+            if c.dst != "output" and c.dst_stage not in stage_names:
                 self.unknown("E215", "stage", c.dst, c.span, list(stage_names) + ["output"])
-            if c.src == c.dst:
-                self.err("E216", f"stage '{c.src}' is coupled to itself", c.span)
+            elif c.dst != "output":
+                self.check_port(c.dst_stage, c.dst_port, 0, c.span)
+            if c.src_stage == c.dst_stage:
+                self.err("E216", f"stage '{c.src_stage}' is coupled to itself", c.span)
             if c.kind == "cap":
                 self.in_range("coupling", c.cap_f, c.span)
                 self.in_range("rated", c.rated_v, c.span)
@@ -451,9 +510,13 @@ class _Checker:
         # each stage is fed by at most one coupling
         fed: dict[str, Span] = {}
         for c in self.d.couplings:
-            if c.dst in fed:
-                self.err("E219", f"'{c.dst}' is fed by two couplings (line {fed[c.dst].line} and here)", c.span)
-            fed[c.dst] = c.span
+            dst = c.dst
+            if c.dst_stage in stage_names and c.dst_port is not None \
+                    and c.dst_port == KIND_PORTS[self.d.stage(c.dst_stage).kind][0][0]:
+                dst = c.dst_stage  # "PI.in" is the stage's main input, "PI"
+            if dst in fed:
+                self.err("E219", f"'{c.dst}' is fed by two couplings (line {fed[dst].line} and here)", c.span)
+            fed[dst] = c.span
         if self.d.source is not None and self.d.source.into in fed:
             self.err("E219", f"stage '{self.d.source.into}' is fed by the input and by a coupling", fed[self.d.source.into])
 
@@ -482,10 +545,18 @@ class _Checker:
             self.err("E222", "say where the output is taken: 'output V2 load 1M', or couple a stage to 'output'", out.span)
         if out.node is not None and to_output:
             self.err("E222", "the output is fed by a coupling already; write 'output load …' without a node", out.span)
-        if out.node is not None:
-            rails = [s.name for s in d.supplies] + [r.name for r in d.rails]
-            if out.node not in stage_names:
-                self.check_node_ref(out.node, out.span, stage_names, net_names, rails, local=None)
+        rails = [s.name for s in d.supplies] + [r.name for r in d.rails]
+        seen: dict[str, Span] = {}
+        for o in (out, *out.more):
+            if o is not out:
+                self.in_range("load", o.load_ohm, o.span)
+            if o.node is None:
+                continue
+            if o.node in seen:
+                self.err("E274", f"output '{o.node}' is named twice on the output line", o.span)
+            seen[o.node] = o.span
+            if o.node not in stage_names:
+                self.check_node_ref(o.node, o.span, stage_names, net_names, rails, local=None)
 
 
 def _designation(name: str) -> str:

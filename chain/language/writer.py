@@ -94,7 +94,9 @@ def format_design(d: Design) -> str:
         if st.cathode is not None:
             k = st.cathode
             by = ""
-            if k.bypass_f is not None:
+            if k.tail_ohm is not None:
+                by = f" tail {_r(k.tail_ohm)}"
+            elif k.bypass_f is not None:
                 series = f" series {_r(k.bypass_series_ohm)}" if k.bypass_series_ohm is not None else ""
                 by = f" bypass {_c(k.bypass_f)}{series}{_rated(k.bypass_rated_v)}"
             out.append(f"  cathode {_r(k.r_ohm)}{by}")
@@ -104,6 +106,20 @@ def format_design(d: Design) -> str:
             out.append(f"  grid stopper {_r(st.grid_stopper_ohm)}")
         if st.grid_ground:
             out.append("  grid ground")
+        if st.second is not None:
+            sec = st.second
+            if sec.rail:
+                out.append(f"  second plate {_r(sec.plate_load_ohm)} from {sec.rail}"
+                           if sec.plate_load_ohm is not None else f"  second plate on {sec.rail}")
+            items = []
+            if sec.grid_leak_ohm is not None:
+                items.append(f"leak {_r(sec.grid_leak_ohm)}")
+            if sec.grid_stopper_ohm is not None:
+                items.append(f"stopper {_r(sec.grid_stopper_ohm)}")
+            if sec.grid_bypass_f is not None:
+                items.append(f"bypass {_c(sec.grid_bypass_f)}{_rated(sec.grid_bypass_rated_v)}")
+            if items:
+                out.append("  second grid " + " ".join(items))
         if st.heater_v is not None:
             out.append(f"  heater {_v(st.heater_v, 'V')}")
     for n in d.networks:
@@ -124,7 +140,8 @@ def format_design(d: Design) -> str:
         out.append(f"couple {c.src} -> {c.dst} {how}")
     if d.output is not None:
         node = f" {d.output.node}" if d.output.node else ""
-        out.append(f"output{node} load {_r(d.output.load_ohm)}")
+        more = "".join(f" and {m.node} load {_r(m.load_ohm)}" for m in d.output.more)
+        out.append(f"output{node} load {_r(d.output.load_ohm)}{more}")
     for st in d.strays:
         out.append(f"stray {st.node} {_c(st.farads)}")
     return "\n".join(out) + "\n"

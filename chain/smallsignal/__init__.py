@@ -18,11 +18,14 @@ from chain.smallsignal.model import (
 )
 from chain.smallsignal.response import Response, gain_at, response, transfer_function
 from chain.smallsignal.table import (
+    ChainOutput,
     CouplingRow,
     OverallResult,
+    PortRow,
     StageRow,
     coupling_table,
     db,
+    output_balance,
     overall,
     reference_response,
     stage_table,
@@ -42,6 +45,9 @@ __all__ = [
     "ResponseShape",
     "response_shape",
     "StageRow",
+    "PortRow",
+    "ChainOutput",
+    "output_balance",
     "CouplingRow",
     "coupling_table",
     "OverallResult",

@@ -32,11 +32,20 @@ Definitions (every quantity per volt of signal-source EMF, frequency in Hz):
     part of another triode touching the node (its ``rp``, its ``gm`` current)
     is removed with it.  What remains upstream (the earlier stages, the
     source impedance, any feedback network named for the stage) stays.
+``port_zout_ohm[stage][port]``
+    The same at every output port of a stage (a cathodyne's ``plate`` and
+    ``cathode``, a long-tailed pair's ``plate1`` and ``plate2``): the parts
+    touching that port's node are removed as above, everything on the other
+    port stays connected.  ``stage_zout_ohm[stage]`` is the main port's.
+``output_zout_ohm[label]``
+    The driving-point impedance at each output port of the chain
+    (``circuit.outputs``), source zeroed and the loads on that port's node
+    removed; ``zout_ohm`` is the first one's.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, field, fields
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
@@ -80,6 +89,10 @@ class Response:
     ss: SmallSignalCircuit
     #: "modal" or "direct": how the node transfers were solved
     method: str = "modal"
+    #: stage name → output port → that port's output impedance, ohm; empty when not computed
+    port_zout_ohm: Mapping[str, Mapping[str, np.ndarray]] = field(default_factory=dict)
+    #: chain output label → output impedance there, ohm; empty when not computed
+    output_zout_ohm: Mapping[str, np.ndarray] = field(default_factory=dict)
 
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, Response):
@@ -92,7 +105,7 @@ class Response:
                 if not np.array_equal(a, b):
                     return False
             elif isinstance(a, Mapping):
-                if a.keys() != b.keys() or not all(np.array_equal(a[k], b[k]) for k in a):
+                if not _maps_equal(a, b):
                     return False
             elif a != b:
                 return False
@@ -151,19 +164,28 @@ def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto",
 
     zout = None
     stage_zout = {}
+    port_zout: dict[str, dict[str, np.ndarray]] = {}
+    output_zout: dict[str, np.ndarray] = {}
     if output_impedances:
-        load = [st for st in mna.stamps if st.kind != "V" and st.role == Role.LOAD]
-        zout = _frozen(_port_impedance(mna, mna.index[ss.node_of[circuit.output_node]], load, s,
-                                       method))
+        for label, out_node in circuit.outputs.items():
+            node = mna.index[ss.node_of[out_node]]
+            load = [st for st in mna.stamps if st.kind != "V" and st.role == Role.LOAD and st.touches(node)]
+            output_zout[label] = _frozen(_port_impedance(mna, node, load, s, method))
+        zout = next(iter(output_zout.values()))  # the first output is circuit.output_node
         for st in circuit.stages if stage_impedances else ():
             me = Owner("stage", st.name)
-            node = mna.index[ss.node_of[st.output]]
-            removed = [e for e in mna.stamps
-                       if e.kind != "V" and e.owner != me and e.owner.kind != "rail" and e.touches(node)]
-            stage_zout[st.name] = _frozen(_port_impedance(mna, node, removed, s, method))
+            ports = {}
+            for port, port_node in st.outputs.items():
+                node = mna.index[ss.node_of[port_node]]
+                removed = [e for e in mna.stamps
+                           if e.kind != "V" and e.owner != me and e.owner.kind != "rail" and e.touches(node)]
+                ports[port] = _frozen(_port_impedance(mna, node, removed, s, method))
+            port_zout[st.name] = ports
+            stage_zout[st.name] = next(iter(ports.values()))
     return Response(
         f_hz=_frozen(f), h=h, zin_ohm=_frozen(zin), zout_ohm=zout,
         stage_zin_ohm=stage_zin, stage_zout_ohm=stage_zout, ss=ss, method=used,
+        port_zout_ohm=port_zout, output_zout_ohm=output_zout,
     )
 
 
@@ -202,6 +224,13 @@ def gain_at(resp: Response, node: str, f_hz: ArrayLike) -> complex | np.ndarray:
 
 
 # -- helpers ------------------------------------------------------------------
+
+
+def _maps_equal(a: Mapping, b: Mapping) -> bool:
+    """Mappings of arrays (or of mappings of arrays) equal element by element."""
+    if a.keys() != b.keys():
+        return False
+    return all(_maps_equal(a[k], b[k]) if isinstance(a[k], Mapping) else np.array_equal(a[k], b[k]) for k in a)
 
 
 def _frequencies(f_hz: ArrayLike) -> np.ndarray:

@@ -16,14 +16,37 @@ from chain.smallsignal.corners import response_corners
 from chain.smallsignal.shape import ResponseShape, response_shape
 from chain.smallsignal.response import Response, response
 
-__all__ = ["StageRow", "OverallResult", "CouplingRow", "stage_table", "coupling_table", "overall", "db",
-           "reference_response", "NO_SIGNAL_DB", "no_signal_warnings"]
+__all__ = ["StageRow", "PortRow", "ChainOutput", "OverallResult", "CouplingRow", "stage_table", "coupling_table",
+           "overall", "db", "output_balance", "reference_response", "NO_SIGNAL_DB", "no_signal_warnings"]
 
 #: a stage input this far (dB) below the largest signal before it receives no signal: what
 #: reaches it is numerical leakage (a volume control at 0), and the ratio of its output to
 #: that leakage is no gain.  No working coupling loses 100 dB at the reference frequency
 #: (common practice: a volume control's range is some 60 dB).
 NO_SIGNAL_DB = -100.0
+
+
+@dataclass(frozen=True, slots=True)
+class PortRow:
+    """One output port of a stage at the reference frequency, everything connected."""
+
+    #: the port's name (``"out"``; ``"plate"``/``"cathode"``; ``"plate1"``/``"plate2"``) and node
+    port: str
+    node: str
+    #: H(port)/H(stage input), V/V (complex) and dB
+    gain: complex
+    gain_db: float
+    #: output impedance at the port (see chain.smallsignal.response), ohm
+    zout_ohm: complex
+    #: gain from the source EMF to the port, V/V and dB
+    cumulative_gain: complex
+    cumulative_db: float
+    #: peak signal at the port for the given source level, V
+    level_out_v: float
+
+    @property
+    def phase_deg(self) -> float:
+        return math.degrees(np.angle(self.gain))
 
 
 @dataclass(frozen=True, slots=True)
@@ -59,10 +82,44 @@ class StageRow:
     #: peak signal at the stage input and output for the given source level, V
     level_in_v: float
     level_out_v: float
+    #: every output port, the main one first (one entry for a single-output stage)
+    outputs: tuple[PortRow, ...] = ()
+    #: the stage's triodes (names in Circuit.triodes), the one the signal enters first
+    triodes: tuple[str, ...] = ()
+    #: two-output stages: H(second output)/H(first output) (see :func:`output_balance`), else None
+    balance: complex | None = None
 
     @property
     def phase_deg(self) -> float:
         """Phase of the loaded gain, degrees in (−180, 180]."""
+        return math.degrees(np.angle(self.gain))
+
+    @property
+    def balance_db(self) -> float | None:
+        """``20·log10|H2/H1|``: how much larger the second output is, dB (None for one output)."""
+        return None if self.balance is None else db(self.balance)
+
+    @property
+    def balance_deg(self) -> float | None:
+        """Phase of the second output against the first, degrees in (−180, 180]; 180 for ideal
+        antiphase (None for one output)."""
+        return None if self.balance is None else math.degrees(np.angle(self.balance))
+
+
+@dataclass(frozen=True, slots=True)
+class ChainOutput:
+    """One output port of the chain (``circuit.outputs``) at the reference frequency."""
+
+    label: str
+    node: str
+    #: source EMF to this output, V/V (complex) and dB
+    gain: complex
+    gain_db: float
+    #: output impedance there, source zeroed and this port's load removed, ohm
+    zout_ohm: complex
+
+    @property
+    def phase_deg(self) -> float:
         return math.degrees(np.angle(self.gain))
 
 
@@ -82,6 +139,8 @@ class OverallResult:
     zout_ohm: complex
     #: band edges, peaks, dips and shelves (None when f_ref is outside the band)
     shape: ResponseShape | None = None
+    #: every output of the chain, the main one (``gain``, ``zout_ohm``) first
+    outputs: tuple[ChainOutput, ...] = ()
 
     @property
     def phase_deg(self) -> float:
@@ -207,10 +266,29 @@ def overall(resp: Response, f_ref_hz: float, *, at: Response | None = None) -> O
         low, high = response_corners(resp, ref_hz=f_ref_hz)
     else:
         low, high = None, None
+    outputs = []
+    for label, node in resp.ss.circuit.outputs.items():
+        g = complex(at.h[node][0])
+        outputs.append(ChainOutput(label, node, g, db(g), complex(at.output_zout_ohm[label][0])))
     return OverallResult(
         f_ref_hz=float(f_ref_hz), gain=gain, gain_db=db(gain), f_low_hz=low, f_high_hz=high,
-        zin_ohm=complex(at.zin_ohm[0]), zout_ohm=complex(at.zout_ohm[0]), shape=shape,
+        zin_ohm=complex(at.zin_ohm[0]), zout_ohm=complex(at.zout_ohm[0]), shape=shape, outputs=tuple(outputs),
     )
+
+
+def output_balance(resp: Response, stage: StageRecord) -> np.ndarray | None:
+    """``H(second output)/H(first output)`` of a two-output stage over ``resp.f_hz`` (complex).
+
+    For a phase inverter the ideal is ``−1``: equal size (0 dB) and antiphase
+    (180°).  Its magnitude in dB is the imbalance, its angle the phase
+    difference between the outputs.  None for a stage with one output.
+    """
+    if len(stage.outputs) < 2:
+        return None
+    first, second = list(stage.outputs.values())[:2]
+    h1, h2 = np.asarray(resp.h[first]), np.asarray(resp.h[second])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(h1 != 0, h2 / np.where(h1 != 0, h1, 1), complex("nan"))
 
 
 def _row(circuit: Circuit, dc: DcSolution, at: Response, st: StageRecord,
@@ -220,6 +298,16 @@ def _row(circuit: Circuit, dc: DcSolution, at: Response, st: StageRecord,
     h_out = complex(at.h[st.output][0])
     gain = _ratio(at, st.output, st.input)
     coupling, ratio = _feeding_coupling(circuit, at, st)
+    ports = []
+    for port, node in st.outputs.items():
+        h = complex(at.h[node][0])
+        g = _ratio(at, node, st.input)
+        ports.append(PortRow(port, node, g, db(g), complex(at.port_zout_ohm[st.name][port][0]), h, db(h),
+                             abs(h) * level_v))
+    balance = None
+    if len(ports) >= 2:
+        balance = ports[1].cumulative_gain / ports[0].cumulative_gain if ports[0].cumulative_gain != 0 \
+            else complex("nan")
     return StageRow(
         stage=st.name, kind=st.kind, tube=st.tube,
         vp_v=op.vp_v, vk_v=op.vk_v, ip_a=op.ip_a, gm_s=op.gm_s, rp_ohm=op.rp_ohm, mu=op.mu,
@@ -230,6 +318,7 @@ def _row(circuit: Circuit, dc: DcSolution, at: Response, st: StageRecord,
         coupling_db=None if ratio is None else db(ratio),
         cumulative_gain=h_out, cumulative_db=db(h_out),
         level_in_v=abs(h_in) * level_v, level_out_v=abs(h_out) * level_v,
+        outputs=tuple(ports), triodes=tuple(st.triodes), balance=balance,
     )
 
 

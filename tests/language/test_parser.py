@@ -135,7 +135,7 @@ def test_a_misspelt_member_is_offered_only_the_words_of_its_block():
     with pytest.raises(LanguageError) as info:
         parse("stage V1 common-cathode 12AX7\n  cathod 1k5\nnetwork n\n  resistr r a -- b 1k\n")
     first, second = info.value.diagnostics
-    assert first.message == "unexpected 'cathod': expected 'cathode', 'grid', 'heater', 'plate'"
+    assert first.message == "unexpected 'cathod': expected 'cathode', 'grid', 'heater', 'plate', 'second'"
     assert second.message == "unexpected 'resistr': expected 'capacitor', 'inductor', 'pot', 'resistor', 'rheostat'"
     assert second.hint == "did you mean 'resistor'?"
 

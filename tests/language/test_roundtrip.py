@@ -4,6 +4,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from chain.language import Cathode, Coupling, Design, Network, Output, Part, Pot, Rail, Settings, Source, Stage, Supply
+from chain.language.design import Section
 from chain.language import parse_syntax
 from chain.language.writer import format_design
 
@@ -19,19 +20,31 @@ def cathodes(draw):
     bypass = draw(st.none() | farads)
     return Cathode(draw(ohms), bypass,
                    draw(st.none() | ohms) if bypass is not None else None,
-                   draw(st.none() | st.sampled_from([25.0, 63.0])) if bypass is not None else None)
+                   draw(st.none() | st.sampled_from([25.0, 63.0])) if bypass is not None else None,
+                   draw(st.none() | ohms) if bypass is None else None)
+
+
+@st.composite
+def sections(draw):
+    """The second triode of a long-tailed pair (its plate line is always written)."""
+    bypass = draw(st.none() | farads)
+    return Section(draw(st.none() | ohms), "B1", draw(st.none() | ohms), draw(st.none() | ohms), bypass,
+                   draw(st.none() | st.just(100.0)) if bypass is not None else None)
 
 
 @st.composite
 def designs(draw):
     stage_names = draw(st.lists(names, min_size=1, max_size=4, unique=True))
+    kinds = [draw(st.sampled_from(["common-cathode", "cathode-follower", "common-grid", "cathodyne",
+                                   "long-tailed-pair"])) for _ in stage_names]
     stages = tuple(
-        Stage(n, draw(st.sampled_from(["common-cathode", "cathode-follower", "common-grid"])),
+        Stage(n, kind,
               draw(st.sampled_from(["12AX7", "12AT7", "ECC83", "12AU7"])),
               draw(st.none() | ohms), "B1", draw(st.none() | cathodes()),
               draw(st.none() | ohms), draw(st.none() | ohms), draw(st.booleans()),
-              draw(st.none() | st.floats(min_value=0, max_value=100, allow_nan=False)))
-        for n in stage_names)
+              draw(st.none() | st.floats(min_value=0, max_value=100, allow_nan=False)),
+              second=draw(sections()) if kind == "long-tailed-pair" else None)
+        for n, kind in zip(stage_names, kinds))
     taper = draw(st.sampled_from(["linear", "audio"]))
     # a linear pot's mid-rotation fraction is 1/2 by definition
     mid = 0.5 if taper == "linear" else draw(st.floats(min_value=0.01, max_value=0.49, allow_nan=False))
@@ -56,7 +69,9 @@ def designs(draw):
             Source("ideal", stage_names[0]),
             Source("resistance", stage_names[0], 10e3),
             Source("pickup", stage_names[0], 6500.0, 2.5, 120e-12, 470e-12)])),
-        output=Output(None, draw(ohms)),
+        output=draw(st.sampled_from([Output(None, 1e6),
+                                     Output(f"{stage_names[-1]}.plate", 220e3,
+                                            more=(Output(f"{stage_names[-1]}.cathode", 270e3),))])),
     )
 
 
