@@ -93,6 +93,9 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("--loop", action="store_true",
                     help="also draw the loop gain and margins of each feedback network, to PATH with "
                          "-loop-NETWORK added")
+    pl.add_argument("--balance", action="store_true",
+                    help="also draw the balance of each two-output stage (phase inverter) against frequency, "
+                         "to PATH with -balance added")
 
     f = sub.add_parser("formulas", help="closed-form gain and impedances of each stage (symbolic)",
                        description="Print each stage's gain, input and output impedance as formulas in its "
@@ -289,7 +292,7 @@ def _cmd_bias(args) -> int:
     plot_path = _figure_path(args.plot, args) if args.plot else None
     design, circuit, warnings = load(args.file)
     if plot_path:
-        for name in _figure_names(plot_path, [st.name for st in circuit.stages]):
+        for name in _figure_names(plot_path, _bias_figure_names(circuit)):
             _writable(name, args)
     dc = solve(circuit)
     print(bias_table(design, circuit, dc))
@@ -315,25 +318,33 @@ def _bias_stability(design, circuit, dc):
     return [d for d in locate(st.diagnostics, circuit, design) if d.code == "E801"]
 
 
+def _bias_figure_names(circuit) -> list[str]:
+    """One name per triode: its stage's, or for a stage of several triodes the triode's own."""
+    return [st.name if len(st.triodes) == 1 else t for st in circuit.stages for t in st.triodes]
+
+
 def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
-    """One plate-characteristics figure per stage: PATH itself for a single
-    stage, else PATH with -STAGE before the suffix."""
+    """One plate-characteristics figure per triode: PATH itself for a single
+    triode, else PATH with -STAGE (or, for a stage of several triodes,
+    -TRIODE) before the suffix."""
     import numpy as np
 
     from chain.dc import plate_family, stage_lines
     from chain.plot.bias import plot_characteristics
 
-    paths = _figure_names(plot_path, [st.name for st in circuit.stages])
     figures = []
-    for st, path in zip(circuit.stages, paths):
-        point = dc.points[st.triode]
-        line, bias = stage_lines(circuit, dc, st.name)
+    pairs = [(st, t) for st in circuit.stages for t in st.triodes]
+    paths = _figure_names(plot_path, _bias_figure_names(circuit))
+    for (st, triode), path in zip(pairs, paths):
+        point = dc.points[triode]
+        line, bias = stage_lines(circuit, dc, st.name if len(st.triodes) == 1 else triode)
         top = float(line.vpk_v.max())
-        model = circuit.triode(st.triode).model
+        model = circuit.triode(triode).model
         step = 0.5 if point.vgk_v > -3 else 2.0
         vgks = np.round(np.arange(0.0, min(point.vgk_v * 3.0, -4 * step) - step / 2, -step), 2)
         family = plate_family(model, vgks, top * 1.15)
-        plot = plot_characteristics(family, line, point, bias=bias, title=f"{st.name} ({st.tube})")
+        title = f"{st.name} ({st.tube})" if len(st.triodes) == 1 else f"{st.name}: {triode} ({st.tube})"
+        plot = plot_characteristics(family, line, point, bias=bias, title=title)
         figures.append((path, plot))
     written = []
     for path, plot in figures:  # draw everything first, then write: nothing half-done
@@ -352,8 +363,8 @@ def _bode_nodes(analysis, with_stages: bool):
     out = analysis.circuit.output_node
     if not with_stages:
         return None
-    nodes = [s.output for s in analysis.circuit.stages if s.output != out]
-    return [*dict.fromkeys(nodes), out]
+    nodes = [n for s in analysis.circuit.stages for n in s.outputs.values() if n != out]
+    return [*dict.fromkeys(nodes), *analysis.circuit.outputs.values()]
 
 
 def _cmd_plot(args) -> int:
@@ -362,8 +373,11 @@ def _cmd_plot(args) -> int:
     path = _figure_path(args.output or str(Path(args.file).with_suffix(".png")), args)
     target = Path(path)
     extra = str(target.with_name(f"{target.stem}-impedance{target.suffix}"))
+    balance_path = str(target.with_name(f"{target.stem}-balance{target.suffix}"))
     if args.impedance:
         _writable(extra, args)
+    if args.balance:
+        _writable(balance_path, args)
     analysis = analyze(args.file, headroom=False)
     figures = [(path, chain_bode(analysis, nodes=_bode_nodes(analysis, args.stages)).figure)]
     if args.impedance:
@@ -380,6 +394,14 @@ def _cmd_plot(args) -> int:
             name = str(target.with_name(f"{target.stem}-loop-{lg.path.name}{target.suffix}"))
             _writable(name, args)
             figures.append((name, loop_plot(lg, title=analysis.design.title).figure))
+    if args.balance:
+        from chain.plot.bode import balance
+
+        pairs = [s for s in analysis.circuit.stages if len(s.outputs) >= 2]
+        if not pairs:
+            raise UsageError(f"--balance: {args.file} has no stage with two outputs (a cathodyne or a "
+                             "long-tailed pair)")
+        figures.append((balance_path, balance(analysis.freq, pairs, title=analysis.design.title).figure))
     for name, figure in figures:
         _save_figure(figure, name)
         print(f"wrote {name}")

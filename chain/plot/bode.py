@@ -14,7 +14,7 @@ from typing import Sequence
 
 import numpy as np
 
-__all__ = ["BodePlot", "ImpedancePlot", "bode", "impedance", "PALETTE"]
+__all__ = ["BodePlot", "ImpedancePlot", "BalancePlot", "bode", "impedance", "balance", "PALETTE"]
 
 #: trace colours, in order: dark enough for print, distinguishable in grey
 PALETTE = ("#1d3557", "#b5651d", "#2a7f62", "#7b2d5b", "#6b6b12", "#a23b2a", "#3d6f9e", "#555555")
@@ -52,8 +52,9 @@ def bode(response, *, nodes: Sequence[str] | None = None,
     response
         A :class:`chain.smallsignal.Response`.
     nodes
-        Node names to trace (per volt of source EMF); default: the output
-        node only.  Pass stage output nodes for per-stage traces.
+        Node names to trace (per volt of source EMF); default: the chain's
+        outputs (one, or both sides of a phase inverter).  Pass stage output
+        nodes for per-stage traces.
     corners
         ``(f_low_hz, f_high_hz)`` to mark, either may be None.
     extrema
@@ -79,7 +80,8 @@ def bode(response, *, nodes: Sequence[str] | None = None,
     from matplotlib.ticker import EngFormatter, MultipleLocator
 
     circuit = response.ss.circuit
-    wanted = (circuit.output_node,) if nodes is None else tuple(nodes)
+    wanted = tuple(dict.fromkeys((circuit.output_node, *circuit.outputs.values()))) if nodes is None \
+        else tuple(nodes)
     unknown = [n for n in wanted if n not in response.h]
     if unknown:
         raise KeyError(f"no such node(s) in the response: {', '.join(unknown)}")
@@ -151,10 +153,16 @@ def _mark_unstable(mag_ax, ph_ax, text: str, lines) -> None:
 
 
 def _labels(circuit, nodes: Sequence[str]) -> list[str]:
-    outs = {st.output: st.name for st in circuit.stages}
+    outs = {}
+    for st in circuit.stages:
+        for port, node in st.outputs.items():
+            outs.setdefault(node, st.name if len(st.outputs) == 1 else f"{st.name} {port}")
+    chain_outs = {node: label for label, node in circuit.outputs.items()} if len(circuit.outputs) > 1 else {}
     labels = []
     for node in nodes:
-        if node == circuit.output_node:
+        if node in chain_outs:
+            labels.append(f"output {chain_outs[node]}")
+        elif node == circuit.output_node:
             labels.append(f"output ({node})")
         elif node in outs:
             labels.append(f"{outs[node]} out ({node})")
@@ -246,3 +254,68 @@ def impedance(response, *, title: str = "") -> ImpedancePlot:
     if title:
         ax.set_title(title, fontsize=11, loc="left")
     return ImpedancePlot(fig, ax, tuple(lines))
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class BalancePlot:
+    """The balance figure: ``lines`` (imbalance in dB) and ``phase_lines``
+    (phase difference in degrees), one per two-output stage, in ``stages`` order."""
+
+    figure: object
+    axes: tuple
+    lines: tuple
+    phase_lines: tuple
+    stages: tuple[str, ...]
+
+
+def balance(response, stages, *, title: str = "") -> BalancePlot:
+    """Balance of every two-output stage against frequency.
+
+    Upper panel: ``20·log10|H2/H1|`` in dB (second output against the first,
+    0 dB ideal); lower panel: the phase of ``H2/H1`` in degrees, drawn in
+    0…360° so that antiphase (the ideal of a phase inverter) is the 180°
+    line.  ``H2/H1`` is :func:`chain.smallsignal.output_balance`.
+
+    Parameters
+    ----------
+    response
+        A :class:`chain.smallsignal.Response`.
+    stages
+        :class:`chain.circuit.StageRecord` s; those with one output are skipped.
+    title
+        Figure title.
+    """
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import EngFormatter
+
+    from chain.smallsignal import output_balance
+
+    fig = Figure(figsize=(7.5, 4.8), layout="constrained")
+    mag_ax, ph_ax = fig.subplots(2, 1, sharex=True)
+    f = np.asarray(response.f_hz)
+    lines, phase_lines, names = [], [], []
+    for k, st in enumerate(s for s in stages if len(s.outputs) >= 2):
+        ratio = output_balance(response, st)
+        first, second = list(st.outputs)[:2]
+        label = f"{st.name}: {second} against {first}"
+        style = dict(color=PALETTE[k % len(PALETTE)], linestyle=DASHES[k % len(DASHES)], linewidth=1.8)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            lines.append(mag_ax.semilogx(f, 20.0 * np.log10(np.abs(ratio)), label=label, **style)[0])
+        phase_lines.append(ph_ax.semilogx(f, np.degrees(np.angle(ratio)) % 360.0, label=label, **style)[0])
+        names.append(st.name)
+    for a, ideal in ((mag_ax, 0.0), (ph_ax, 180.0)):
+        a.axhline(ideal, color=CORNER_COLOUR, linestyle=(0, (4, 3)), linewidth=1.0)
+        a.grid(True, which="major", color="#c8c8c8", linewidth=0.7)
+        a.grid(True, which="minor", color="#e6e6e6", linewidth=0.4)
+        a.tick_params(labelsize=9)
+    mag_ax.set_ylabel("Imbalance (dB)")
+    ph_ax.set_ylabel("Phase difference (°)")
+    ph_ax.set_xlabel("Frequency")
+    ph_ax.xaxis.set_major_formatter(EngFormatter(unit="Hz"))
+    if f.size:
+        mag_ax.set_xlim(f[0], f[-1])
+    if lines:
+        mag_ax.legend(loc="best", fontsize=8, frameon=False)
+    if title:
+        mag_ax.set_title(title, fontsize=11, loc="left")
+    return BalancePlot(fig, (mag_ax, ph_ax), tuple(lines), tuple(phase_lines), tuple(names))

@@ -250,3 +250,27 @@ def _signed_db(x: float | None) -> str:
 
     text = fmt.db(x)
     return text if text.startswith(("-", "—")) or x is None else "+" + text
+
+
+def port_past_clip(data: dict[str, Any], r: dict[str, Any], port: dict[str, Any]) -> float | None:
+    """The clip level of a further output port of stage row ``r`` (a phase
+    inverter's second output), or None when it is not past clipping; as
+    :func:`past_clip` for the main output: the port's own swing where the
+    stage clips when the stage itself clips, else the clip level at the
+    stage input times the port's gain."""
+    past = past_clip(data).get(r["stage"])
+    if past is None:
+        return None
+    x_in = past[0]
+    h = data.get("headroom") or {}
+    row = next((x for x in h.get("stages", ()) if x["stage"] == r["stage"]), {})
+    clip = row.get("clip_input_v")
+    if clip is not None and h["level_v"] > clip:
+        ports = {o["port"]: o for o in row.get("outputs", ())}
+        o = ports.get(port["port"])
+        if o is not None:
+            swings = [abs(v) for v in (o["swing_pos_v"], o["swing_neg_v"]) if v is not None]
+            return max(swings) if swings else None
+    if x_in is None:
+        return None
+    return x_in * math.hypot(port["gain"]["re"], port["gain"]["im"])

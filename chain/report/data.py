@@ -177,6 +177,14 @@ def _stages(analysis) -> list[dict[str, Any]]:
             "coupling": r.coupling, "coupling_ratio": cx(r.coupling_ratio), "coupling_db": num(r.coupling_db),
             "cumulative_gain": cx(r.cumulative_gain), "cumulative_db": num(r.cumulative_db),
             "level_in_v": num(r.level_in_v), "level_out_v": num(r.level_out_v),
+            "triodes": list(r.triodes) or [by_stage.get(r.stage, r.stage)],
+            "outputs": [{
+                "port": o.port, "node": o.node, "gain": cx(o.gain), "gain_db": num(o.gain_db),
+                "phase_deg": _deg(o.gain), "zout_ohm": cx(o.zout_ohm), "cumulative_gain": cx(o.cumulative_gain),
+                "cumulative_db": num(o.cumulative_db), "level_out_v": num(o.level_out_v),
+            } for o in r.outputs],
+            "balance": None if r.balance is None else {
+                "ratio": cx(r.balance), "db": num(r.balance_db), "phase_deg": _deg(r.balance)},
         })
     return out
 
@@ -202,6 +210,8 @@ def _overall(analysis) -> dict[str, Any]:
         "f_low_hz": num(o.f_low_hz), "f_high_hz": num(o.f_high_hz), "corner_reference": ref,
         **_shape(o.shape),
         "zin_ohm": cx(o.zin_ohm), "zout_ohm": cx(o.zout_ohm),
+        "outputs": [{"label": x.label, "node": x.node, "gain": cx(x.gain), "gain_db": num(x.gain_db),
+                     "phase_deg": _deg(x.gain), "zout_ohm": cx(x.zout_ohm)} for x in o.outputs],
     }
 
 

@@ -19,7 +19,8 @@ __all__ = ["headroom_data", "first_clip", "text_lines", "markdown_lines"]
 def _onset(o) -> dict[str, Any] | None:
     if o is None:
         return None
-    return {"input_v": num(o.input_v), "stage_input_v": num(o.stage_input_v), "output_v": num(o.output_v)}
+    return {"input_v": num(o.input_v), "stage_input_v": num(o.stage_input_v), "output_v": num(o.output_v),
+            "triode": o.triode or None}
 
 
 def _half(h) -> dict[str, Any]:
@@ -71,6 +72,10 @@ def headroom_data(headroom) -> dict[str, Any] | None:
             "compression_input_v": [None if c is None else num(c.input_v)
                                     for c in (s.compression(db) for db in COMPRESSION_DB)],
             "positive": _half(s.positive), "negative": _half(s.negative),
+            "triode": None if s.first is None else (s.first.triode or None),
+            "outputs": [{"port": o.port, "node": o.node, "swing_pos_v": num(o.swing_pos_v),
+                         "swing_neg_v": num(o.swing_neg_v), "thd_input_v": [num(v) for v in o.thd_input_v]}
+                        for o in s.outputs],
         })
     return {
         "level_v": num(headroom.level_v),
@@ -135,13 +140,23 @@ def text_lines(h: dict[str, Any], kv: Callable[[str, str], str]) -> list[str]:
     for s in h["stages"]:
         n = s["stage"]
         where = "" if s["mechanism"] == "none" else f", {s['mechanism']}, {s['polarity']} half-wave"
+        if s["mechanism"] != "none" and s.get("triode") and s["triode"] != n:
+            where += f" (triode {s['triode']})"
         out.append(kv(f"{n} clips at input", _level(s["clip_input_v"]) + where))
         for db, v in zip(h["compression_db"], s["compression_input_v"]):
             out.append(kv(f"{n} gain down {fmt.plain(db)} dB at input", _level(v)))
         out.append(kv(f"{n} margin at stated level", _margin(s["margin_db"])))
-        out.append(kv(f"{n} output swing", f"+{fmt.volts(s['swing_pos_v'])} / {fmt.volts(s['swing_neg_v'])}"))
-        for t, v in zip(h["thd_levels"], s["thd_input_v"]):
-            out.append(kv(f"{n} input for {_thd_label(t)}", _level(v)))
+        ports = s.get("outputs") or []
+        if len(ports) <= 1:
+            out.append(kv(f"{n} output swing", f"+{fmt.volts(s['swing_pos_v'])} / {fmt.volts(s['swing_neg_v'])}"))
+            for t, v in zip(h["thd_levels"], s["thd_input_v"]):
+                out.append(kv(f"{n} input for {_thd_label(t)}", _level(v)))
+            continue
+        for o in ports:
+            out.append(kv(f"{n} {o['port']} output swing",
+                          f"+{fmt.volts(o['swing_pos_v'])} / {fmt.volts(o['swing_neg_v'])}"))
+            for t, v in zip(h["thd_levels"], o["thd_input_v"]):
+                out.append(kv(f"{n} {o['port']}: input for {_thd_label(t)}", _level(v)))
     d = h["distortion"]
     if d is not None:
         lvl = fmt.volts(d["level_v"])
@@ -164,10 +179,17 @@ def markdown_lines(h: dict[str, Any]) -> list[str]:
     head += [f"input for {_thd_label(t)}" for t in h["thd_levels"]]
     rows = []
     for s in h["stages"]:
-        rows.append([s["stage"], _level(s["clip_input_v"]), s["mechanism"], s["polarity"] or "—"]
-                    + [_level(v) for v in s["compression_input_v"]]
-                    + [_margin(s["margin_db"]), fmt.volts(s["swing_pos_v"]), fmt.volts(s["swing_neg_v"])]
-                    + [_level(v) for v in s["thd_input_v"]])
+        mechanism = s["mechanism"]
+        if mechanism != "none" and s.get("triode") and s["triode"] != s["stage"]:
+            mechanism += f" ({s['triode']})"
+        ports = s.get("outputs") or []
+        for o in ports if len(ports) > 1 else [None]:
+            swing = (s["swing_pos_v"], s["swing_neg_v"]) if o is None else (o["swing_pos_v"], o["swing_neg_v"])
+            rows.append([s["stage"] if o is None else f"{s['stage']} {o['port']}", _level(s["clip_input_v"]),
+                         mechanism, s["polarity"] or "—"]
+                        + [_level(v) for v in s["compression_input_v"]]
+                        + [_margin(s["margin_db"]), fmt.volts(swing[0]), fmt.volts(swing[1])]
+                        + [_level(v) for v in (s["thd_input_v"] if o is None else o["thd_input_v"])])
     out = [f"Stated input level {fmt.volts(h['level_v'])} peak ({_dbv(h['level_v'])}).", "",
            f"Summary: {h['summary']}.", ""]
     out += _table(head, rows)

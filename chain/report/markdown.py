@@ -13,7 +13,8 @@ import chain.report.fmt as fmt
 from chain.report.fmt import markdown_escape as _esc
 from chain.report.fmt import markdown_table as _table
 from chain.report.dynamics import unstable_banner
-from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, shape_lines, spot_response
+from chain.report.base import (Renderer, corner_reference, past_clip, pd_rating, port_past_clip, shape_lines,
+                               spot_response)
 
 __all__ = ["MarkdownRenderer"]
 
@@ -70,10 +71,19 @@ class MarkdownRenderer(Renderer):
     def stages(self, data: dict[str, Any]) -> list[str]:
         s = data["settings"]
         out = [f"## Stages at {fmt.si(s['reference_hz'], 'Hz')}, {fmt.volts(s['level_v'])} peak input", ""]
-        out += _table(["stage", "configuration", "tube", "Vp", "Vk", "Ip", "gm", "rp", "mu"], [
-            [r["stage"], r["kind"], r["tube"], fmt.volts(r["vp_v"]), fmt.volts(r["vk_v"]), fmt.amps(r["ip_a"]),
-             fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"), fmt.plain(r["mu"])]
-            for r in data["stages"]], set(range(3, 9)))
+        points = {p["triode"]: p for p in data["operating_points"]}
+        op_rows = []
+        for r in data["stages"]:
+            op_rows.append([r["stage"], r["kind"], r["tube"], fmt.volts(r["vp_v"]), fmt.volts(r["vk_v"]),
+                            fmt.amps(r["ip_a"]), fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"),
+                            fmt.plain(r["mu"])])
+            for t in r.get("triodes", [])[1:]:
+                p = points[t]
+                op_rows.append([f"{r['stage']}: {t}", "", "", fmt.volts(p["vp_v"]), fmt.volts(p["vk_v"]),
+                                fmt.amps(p["ip_a"]), fmt.si(p["gm_s"], "S"), fmt.si(p["rp_ohm"], "Ω"),
+                                fmt.plain(p["mu"])])
+        out += _table(["stage", "configuration", "tube", "Vp", "Vk", "Ip", "gm", "rp", "mu"], op_rows,
+                      set(range(3, 9)))
         out.append("")
         past = past_clip(data)
 
@@ -82,13 +92,32 @@ class MarkdownRenderer(Renderer):
             return fmt.volts(r["level_in_v" if i == 0 else "level_out_v"]) if clip is None else \
                 f"past clip {fmt.volts(clip)}"
 
+        def port_level(r, o):
+            clip = port_past_clip(data, r, o)
+            return fmt.volts(o["level_out_v"]) if clip is None else f"past clip {fmt.volts(clip)}"
+
+        gain_rows = []
+        for r in data["stages"]:
+            ports = r.get("outputs", [])
+            label = r["stage"] if len(ports) <= 1 else f"{r['stage']}.{ports[0]['port']}"
+            gain_rows.append([
+                label, fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
+                fmt.polar(r["zin_ohm"], "Ω"), fmt.polar(r["zout_ohm"], "Ω"), r["coupling"] or "—",
+                "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]), fmt.db(r["cumulative_db"]),
+                level(r, 0), level(r, 1)])
+            for o in ports[1:]:
+                gain_rows.append([
+                    f"{r['stage']}.{o['port']}", fmt.plain(fmt.mag(o["gain"])), fmt.db(o["gain_db"]),
+                    fmt.deg(o["phase_deg"]), "—", fmt.polar(o["zout_ohm"], "Ω"), "—", "—",
+                    fmt.db(o["cumulative_db"]), "—", port_level(r, o)])
         out += _table(["stage", "gain V/V", "gain", "phase", "Zin", "Zout", "fed through", "coupling loss",
-                       "cumulative", "in (peak)", "out (peak)"], [
-            [r["stage"], fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
-             fmt.polar(r["zin_ohm"], "Ω"), fmt.polar(r["zout_ohm"], "Ω"), r["coupling"] or "—",
-             "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]), fmt.db(r["cumulative_db"]),
-             level(r, 0), level(r, 1)]
-            for r in data["stages"]], {1, 2, 3, 7, 8, 9, 10})
+                       "cumulative", "in (peak)", "out (peak)"], gain_rows, {1, 2, 3, 7, 8, 9, 10})
+        for r in data["stages"]:
+            if r.get("balance") is not None:
+                first, second = r["outputs"][0]["port"], r["outputs"][1]["port"]
+                b = r["balance"]
+                out += ["", f"Balance of {r['stage']}, {second} against {first}: {fmt.db(b['db'])}, "
+                        f"phase {fmt.deg(b['phase_deg'])} (ideal 0 dB and 180°)."]
         if past:
             out += ["", "Past clip X: at the stated input level this stage or one before it clips; the "
                     "small-signal level would be meaningless, X is the peak the signal reaches there as clipping "
@@ -105,11 +134,13 @@ class MarkdownRenderer(Renderer):
         points = {p["triode"]: p for p in data["operating_points"]}
         rows = []
         for r in data["stages"]:
-            p = points.get(r["triode"], {})
-            pd, rating = p.get("pd_w"), pd_rating(data, r["triode"])
-            use = "—" if pd is None or not rating else fmt.pct(pd / rating)
-            rows.append([r["stage"], fmt.volts(p.get("vg_v")), fmt.amps(p.get("ig_a")), fmt.si(pd, "W"),
-                         "—" if not rating else fmt.si(rating, "W"), use])
+            for i, t in enumerate(r.get("triodes") or [r["triode"]]):
+                p = points.get(t, {})
+                pd, rating = p.get("pd_w"), pd_rating(data, t)
+                use = "—" if pd is None or not rating else fmt.pct(pd / rating)
+                rows.append([r["stage"] if i == 0 else f"{r['stage']}: {t}", fmt.volts(p.get("vg_v")),
+                             fmt.amps(p.get("ig_a")), fmt.si(pd, "W"), "—" if not rating else fmt.si(rating, "W"),
+                             use])
         return ["### Grid and dissipation", ""] + _table(
             ["stage", "Vg", "Ig", "Pd", "Pd rating", "use of rating"], rows, {1, 2, 3, 4, 5})
 
@@ -124,6 +155,9 @@ class MarkdownRenderer(Renderer):
             ["input impedance (source load)", fmt.polar(o["zin_ohm"], "Ω")],
             ["output impedance", fmt.polar(o["zout_ohm"], "Ω")],
         ]
+        for x in (o.get("outputs") or [])[1:]:
+            rows += [[f"gain to output `{x['label']}`", fmt.gain(x["gain"], x["gain_db"])],
+                     [f"output impedance at `{x['label']}`", fmt.polar(x["zout_ohm"], "Ω")]]
         return [f"## Overall: source EMF to the output (node `{o['output_node']}`)", ""] + _table(
             ["quantity", "value"], rows)
 

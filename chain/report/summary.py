@@ -25,7 +25,10 @@ def check_summary(design: Design, circuit: Circuit) -> str:
     kind = {"ideal": "ideal source", "resistance": f"source of {format_si(src.r_ohm, 'Ω')}",
             "pickup": "pickup"}[src.kind]
     lines.append(f"  input:    {kind} into {src.into}")
-    lines.append(f"  output:   node {circuit.output_node}, load {format_si(design.output.load_ohm, 'Ω')}")
+    loads = {p.a: p.ohms for p in circuit.parts(kind="output")}
+    for label, node in circuit.outputs.items():
+        load = loads.get(node, design.output.load_ohm)
+        lines.append(f"  output:   node {node}, load {format_si(load, 'Ω')}")
     pots, halves = _pot_counts(design)
     counts = [(len(circuit.resistors) - halves, "resistor"), (pots, "pot"), (len(circuit.capacitors), "capacitor"),
               (len(circuit.inductors), "inductor"), (len(circuit.triodes), "triode")]
@@ -71,9 +74,12 @@ def bias_table(design: Design, circuit: Circuit, dc) -> str:
     head = f"{'stage':<8}{'kind':<18}{'tube':<12}{'Vp':>10}{'Vg':>10}{'Vk':>10}{'Ip':>10}{'Pd':>10}{'gm':>11}{'rp':>10}{'mu':>7}"
     lines.append(head)
     lines.append("-" * len(head))
-    for st in circuit.stages:
-        p = dc.points[st.triode]
-        lines.append(f"{st.name:<8}{st.kind:<18}{st.tube:<12}{_v(p.vp_v):>10}"
+    rows = [(st, i, t) for st in circuit.stages for i, t in enumerate(st.triodes)]
+    for st, i, t in rows:
+        p = dc.points[t]
+        # a stage's further triodes (a long-tailed pair's second) on indented rows of their own
+        name, kind, tube = (st.name, st.kind, st.tube) if i == 0 else (f"  {t}", "", "")
+        lines.append(f"{name:<8}{kind:<18}{tube:<12}{_v(p.vp_v):>10}"
                      f"{_v(p.vg_v):>10}{_v(p.vk_v):>10}"
                      f"{format_si(p.ip_a, 'A', 4):>10}{format_si(p.pd_w, 'W', 3):>10}"
                      f"{format_si(p.gm_s, 'A/V', 3):>11}{format_si(p.rp_ohm, 'Ω', 3):>10}{p.mu:>7.1f}")

@@ -19,7 +19,8 @@ from typing import Any
 
 import chain.report.fmt as fmt
 from chain.report.dynamics import unstable_banner
-from chain.report.base import Renderer, corner_reference, past_clip, pd_rating, shape_lines, spot_response
+from chain.report.base import (Renderer, corner_reference, past_clip, pd_rating, port_past_clip, shape_lines,
+                               spot_response)
 
 __all__ = ["TextRenderer"]
 
@@ -58,6 +59,39 @@ def _signal(small_signal_v: float | None, clip_v: float | None, by: str) -> str:
     if clip_v is None:
         return f"{fmt.volts(small_signal_v)} peak"
     return f"past clipping ({by} clips): about {fmt.volts(clip_v)} peak at most"
+
+
+def _pair_lines(data: dict[str, Any], r: dict[str, Any], points: dict[str, Any]) -> list[str]:
+    """The facts a stage with several triodes or outputs adds: each further
+    triode's operating point, each output port, and the balance."""
+    n = r["stage"]
+    out: list[str] = []
+    for t in r.get("triodes", [])[1:]:
+        p = points[t]
+        out += [
+            _kv(f"{t} plate voltage Vp", fmt.volts(p["vp_v"])),
+            _kv(f"{t} grid voltage Vg", fmt.volts(p["vg_v"])),
+            _kv(f"{t} cathode voltage Vk", fmt.volts(p["vk_v"])),
+            _kv(f"{t} plate current Ip", fmt.amps(p["ip_a"])),
+            _kv(f"{t} grid current Ig", fmt.amps(p["ig_a"])),
+            _kv(f"{t} plate dissipation Pd", fmt.si(p["pd_w"], "W")),
+            _kv(f"{t} transconductance gm", fmt.si(p["gm_s"], "S")),
+            _kv(f"{t} plate resistance rp", fmt.si(p["rp_ohm"], "Ω")),
+            _kv(f"{t} amplification mu", fmt.plain(p["mu"])),
+        ]
+    ports = r.get("outputs", [])
+    if len(ports) > 1:
+        for o in ports:
+            out += [
+                _kv(f"{n} {o['port']} output gain", fmt.gain(o["gain"], o["gain_db"])),
+                _kv(f"{n} {o['port']} output impedance", fmt.polar(o["zout_ohm"], "Ω")),
+                _kv(f"{n} {o['port']} signal at output",
+                    _signal(o["level_out_v"], port_past_clip(data, r, o), n)),
+            ]
+        b = r["balance"]
+        out.append(_kv(f"{n} balance {ports[1]['port']}/{ports[0]['port']}",
+                       f"{fmt.db(b['db'])}, phase {fmt.deg(b['phase_deg'])} (ideal 0 dB, 180°)"))
+    return out
 
 
 class TextRenderer(Renderer):
@@ -117,6 +151,7 @@ class TextRenderer(Renderer):
         s = data["settings"]
         lines = _title(f"Stages at {fmt.si(s['reference_hz'], 'Hz')}, "
                        f"{fmt.volts(s['level_v'])} peak input, in signal order")
+        points = {p["triode"]: p for p in data["operating_points"]}
         w1 = [6, 17, 12, 9, 9, 9, 9, 9, 6]
         lines.append(_row(["stage", "configuration", "tube", "Vp", "Vk", "Ip", "gm", "rp", "mu"], w1,
                           set(range(3, 9))))
@@ -124,21 +159,41 @@ class TextRenderer(Renderer):
             lines.append(_row([r["stage"], r["kind"], r["tube"], fmt.volts(r["vp_v"]), fmt.volts(r["vk_v"]),
                                fmt.amps(r["ip_a"]), fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"),
                                fmt.plain(r["mu"])], w1, set(range(3, 9))))
+            for t in r.get("triodes", [])[1:]:
+                p = points[t]
+                lines.append(_row([f"  {t}", "", "", fmt.volts(p["vp_v"]), fmt.volts(p["vk_v"]),
+                                   fmt.amps(p["ip_a"]), fmt.si(p["gm_s"], "S"), fmt.si(p["rp_ohm"], "Ω"),
+                                   fmt.plain(p["mu"])], w1, set(range(3, 9))))
         lines.append("")
-        w2 = [6, 8, 9, 7, 10, 10, 10, 9, 16, 16]
+        several = [r for r in data["stages"] if len(r.get("outputs", [])) > 1]
+        label_w = max([6] + [len(f"{r['stage']}.{o['port']}") for r in several for o in r["outputs"]])
+        w2 = [label_w, 8, 9, 7, 10, 10, 10, 9, 16, 16]
         lines.append(_row(["stage", "gain V/V", "gain", "phase", "|Zin|", "|Zout|", "coupling", "total",
                            "in pk", "out pk"], w2, set(range(1, 10))))
         past = past_clip(data)
         for r in data["stages"]:
             v_in, v_out, _, _ = past.get(r["stage"], (None, None, "", ""))
+            ports = r.get("outputs", [])
+            label = r["stage"] if len(ports) <= 1 else f"{r['stage']}.{ports[0]['port']}"
             lines.append(_row([
-                r["stage"], fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
+                label, fmt.plain(fmt.mag(r["gain"])), fmt.db(r["gain_db"]), fmt.deg(r["phase_deg"]),
                 fmt.si(fmt.mag(r["zin_ohm"]), "Ω"), fmt.si(fmt.mag(r["zout_ohm"]), "Ω"),
                 "—" if r["coupling_db"] is None else fmt.db(r["coupling_db"]),
                 fmt.db(r["cumulative_db"]), _level(r["level_in_v"], v_in), _level(r["level_out_v"], v_out),
             ], w2, set(range(1, 10))))
+            for o in ports[1:]:
+                lines.append(_row([
+                    f"{r['stage']}.{o['port']}", fmt.plain(fmt.mag(o["gain"])), fmt.db(o["gain_db"]),
+                    fmt.deg(o["phase_deg"]), "", fmt.si(fmt.mag(o["zout_ohm"]), "Ω"), "",
+                    fmt.db(o["cumulative_db"]), "", _level(o["level_out_v"], port_past_clip(data, r, o)),
+                ], w2, set(range(1, 10))))
         lines.append("(coupling: the loss of the network feeding the stage; total: gain from the source "
                      "EMF to the stage output)")
+        for r in several:
+            first, second = r["outputs"][0]["port"], r["outputs"][1]["port"]
+            b = r["balance"]
+            lines.append(f"({r['stage']} balance, {second} against {first}: {fmt.db(b['db'])}, "
+                         f"phase {fmt.deg(b['phase_deg'])}; ideal 0 dB and 180°)")
         if past:
             lines.append("(past clip X: at the stated input level this stage or one before it clips; the "
                          "small-signal level would be meaningless, X is the peak the signal reaches there as "
@@ -194,6 +249,7 @@ class TextRenderer(Renderer):
                 _kv(f"{n} signal at input", _signal(r["level_in_v"], clip[0], clip[2])),
                 _kv(f"{n} signal at output", _signal(r["level_out_v"], clip[1], clip[3])),
             ]
+            out += _pair_lines(data, r, points)
         return out
 
     # -- whole chain ------------------------------------------------------------
@@ -209,6 +265,11 @@ class TextRenderer(Renderer):
             _kv("input impedance (source load)", fmt.polar(o["zin_ohm"], "Ω")),
             _kv("output impedance", fmt.polar(o["zout_ohm"], "Ω")),
         ]
+        for x in (o.get("outputs") or [])[1:]:
+            lines += [
+                _kv(f"gain to output {x['label']}", fmt.gain(x["gain"], x["gain_db"])),
+                _kv(f"output impedance at {x['label']}", fmt.polar(x["zout_ohm"], "Ω")),
+            ]
         return lines
 
     def response(self, data: dict[str, Any]) -> list[str]:
