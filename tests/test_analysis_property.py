@@ -16,7 +16,7 @@ from chain.units import QuantityError, parse_quantity
 DEMOS = [p.read_text(encoding="utf-8") for p in sorted((Path(__file__).parents[1] / "netlists").glob("*.chain"))]
 #: part values of stage, rail and network lines (not settings, pots or the source)
 VALUE = re.compile(r"(?<=\s)(\d[\w.]*)")
-SCALED = ("  plate ", "  cathode ", "  grid ", "rail ", "  resistor ", "  capacitor ", "couple ")
+SCALED = ("  plate ", "  second ", "  cathode ", "  grid ", "rail ", "  resistor ", "  capacitor ", "couple ")
 
 
 def scaled(text: str, factors: list[float]) -> str:
@@ -50,5 +50,6 @@ def test_scaled_demos_are_analysed_or_refused_cleanly(demo, factors):
         return
     assert a.dc.max_residual_a < 1e-9
     for row in a.stages:
-        op = a.dc.points[row.stage]
-        assert op.ip_a >= 0.0 and op.vp_v > op.vk_v - 1e-9
+        for triode in row.triodes:
+            op = a.dc.points[triode]
+            assert op.ip_a >= 0.0 and op.vp_v > op.vk_v - 1e-9

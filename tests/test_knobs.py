@@ -47,6 +47,8 @@ KNOBS = [
     ("clean_two_stage.chain", "volume.level", "volume"),
     ("voicings/clean_bright.chain", "volume.level", "volume"),
     ("voicings/clean_dark.chain", "volume.level", "volume"),
+    ("splitter_cathodyne.chain", "volume.level", "volume"),
+    ("splitter_long_tail.chain", "volume.level", "volume"),
 ]
 
 

@@ -57,6 +57,33 @@ stray V1.plate 50p
 """
 
 
+#: a cathodyne with the bootstrapped grid leak (returned to the tap between bias and tail resistor)
+CATHODYNE = """\
+title "flat cathodyne"
+supply HT 330V
+input into PI resistance 47k
+stage PI cathodyne 12AU7
+  plate 22k from HT
+  cathode 1k tail 21k
+  grid leak 1M
+output PI.plate load 470k and PI.cathode load 470k
+"""
+
+#: a long-tailed pair: bias and tail resistors, the second grid AC-grounded through a capacitor
+LONG_TAIL = """\
+title "flat long-tailed pair"
+supply HT 350V
+input into PI resistance 10k
+stage PI long-tailed-pair 12AX7
+  plate 82k from HT
+  second plate 100k from HT
+  cathode 820 tail 10k
+  grid leak 1M stopper 4k7
+  second grid leak 1M bypass 47n
+output PI load 220k
+"""
+
+
 def _solved(text):
     circuit = build(parse_text(text))
     dc = solve(circuit)
@@ -67,11 +94,12 @@ def _solved(text):
 DEMO = (Path(__file__).parents[2] / "netlists" / "clean_two_stage.chain").read_text(encoding="utf-8")
 
 
-@pytest.mark.parametrize("text", [ONE_STAGE, TWO_STAGE, DEMO], ids=["one-stage", "two-stage", "demo-clean"])
+@pytest.mark.parametrize("text", [ONE_STAGE, TWO_STAGE, DEMO, CATHODYNE, LONG_TAIL],
+                         ids=["one-stage", "two-stage", "demo-clean", "cathodyne", "long-tailed-pair"])
 def test_flat_lcapy_solve_agrees_with_engine(text):
     circuit, dc, resp = _solved(text)
-    nodes = [circuit.output_node, circuit.input_node,
-             *(s.output for s in circuit.stages), *(t.grid for t in circuit.triodes)]
+    nodes = [circuit.output_node, circuit.input_node, *circuit.outputs.values(),
+             *(n for s in circuit.stages for n in s.outputs.values()), *(t.grid for t in circuit.triodes)]
     nodes = list(dict.fromkeys(nodes))
     sol = flat_solve(circuit, dc, nodes)
     for node in nodes:
