@@ -20,7 +20,7 @@ def _onset(o) -> dict[str, Any] | None:
     if o is None:
         return None
     return {"input_v": num(o.input_v), "stage_input_v": num(o.stage_input_v), "output_v": num(o.output_v),
-            "triode": o.triode or None}
+            "triode": getattr(o, "triode", "") or None}  # a compression point names no triode
 
 
 def _half(h) -> dict[str, Any]:
