@@ -545,14 +545,22 @@ class NetworkSystem:
         t = len(self.triode_names)
         if t == 0:
             return x_base
+        # Only each triode's own vpk and vgk are needed, and they are linear in the
+        # currents: vpk = base_pk + Dpk @ current (Dpk: t × t), so one Gauss-Seidel
+        # step costs O(t) instead of forming every node voltage, O(N·t)
+        dpad = np.zeros((self._n + 1, t))
+        dpad[:self._n] = self._d[:self._n]
+        dpk = dpad[self._p] - dpad[self._k]
+        dgk = dpad[self._g] - dpad[self._k]
+        v = self._padded_v(x_base)
+        base_pk = v[self._p] - v[self._k]
+        base_gk = v[self._g] - v[self._k]
         current = np.zeros(t)
         for _ in range(_GUESS_SWEEPS):
             change = 0.0
             for i in self._order:
-                x_o = x_base + self._d @ current - self._d[:, i] * current[i]
-                v = self._padded_v(x_o)
-                vpk0 = v[self._p[i]] - v[self._k[i]]
-                vgk0 = v[self._g[i]] - v[self._k[i]]
+                vpk0 = base_pk[i] + dpk[i] @ current - dpk[i, i] * current[i]
+                vgk0 = base_gk[i] + dgk[i] @ current - dgk[i, i] * current[i]
                 new = _load_point(self._models[i], vpk0, self._dvpk[i], vgk0, self._dvgk[i])
                 change = max(change, abs(new - current[i]))
                 current[i] = new

@@ -195,7 +195,7 @@ def pencil_eigen(mna: Mna, *, vectors: bool = False):
         alpha, beta = eig(gs, -cs, right=False, homogeneous_eigvals=True)
     keep = _finite(alpha, beta)
     s = alpha[keep] / beta[keep] * S0
-    order = np.lexsort((s.imag, np.abs(s)))
+    order = np.lexsort((s.imag, _magnitude_key(s)))
     s = s[order]
     if not vectors:
         return s
@@ -280,7 +280,16 @@ def zeros(mna: Mna, node: int) -> np.ndarray:
     alpha, beta = eig(gs, -cs, right=False, homogeneous_eigvals=True)
     keep = _finite(alpha, beta)
     z = alpha[keep] / beta[keep] * S0
-    return z[np.lexsort((z.imag, np.abs(z)))]
+    return z[np.lexsort((z.imag, _magnitude_key(z)))]
+
+
+def _magnitude_key(s: np.ndarray) -> np.ndarray:
+    """``|s|`` rounded to 9 significant digits: the two members of a conjugate
+    pair differ in their last bits of ``|s|``, and must sort by their
+    imaginary part (negative first), not by rounding noise."""
+    mag = np.abs(s)
+    with np.errstate(divide="ignore"):
+        return np.round(np.log10(mag), 9)
 
 
 def _cancel(p: list[complex], z: list[complex]) -> tuple[list[complex], list[complex]]:
