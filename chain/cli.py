@@ -163,8 +163,40 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+class _AfterOneSecond:
+    """A logging filter passing records only once the command has run for a second:
+    progress of slow steps, and silence on fast ones."""
+
+    def __init__(self):
+        import time
+
+        self._clock = time.monotonic
+        self._start = time.monotonic()
+
+    def filter(self, record) -> bool:
+        return self._clock() - self._start >= 1.0
+
+
+def _show_progress() -> None:
+    """Send ``chain.progress`` messages to standard error, after the first second."""
+    import logging
+
+    log = logging.getLogger("chain.progress")
+    if not any(getattr(h, "_chain", False) for h in log.handlers):
+        handler = logging.StreamHandler(sys.stderr)
+        handler.setFormatter(logging.Formatter("chain: %(message)s"))
+        handler._chain = True  # type: ignore[attr-defined]
+        log.addHandler(handler)
+        log.setLevel(logging.INFO)
+        log.propagate = False
+    for h in log.handlers:
+        if getattr(h, "_chain", False):
+            h.filters = [_AfterOneSecond()]
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit status."""
+    _show_progress()
     parser = _parser()
     try:
         args = parser.parse_args(argv)

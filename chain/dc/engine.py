@@ -51,6 +51,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Mapping, cast
 
+import logging
 import numpy as np
 
 from chain.circuit import GROUND, TRIODE_KCL, Circuit, Unions
@@ -83,6 +84,9 @@ _ARMIJO = 1e-4
 _MAX_HALVINGS = 12
 #: Gauss–Seidel sweeps of the stage-by-stage starting guess
 _GUESS_SWEEPS = 6
+#: progress of slow steps (which fallback runs and why); the command line
+#: shows these on standard error once a command has run for a second
+PROGRESS = logging.getLogger("chain.progress")
 #: Newton iterations allowed from a caller's guess before the stage-by-stage guess takes over
 _GUESS_MAX_ITER = 40
 
@@ -627,7 +631,18 @@ class NetworkSystem:
             if ok:
                 return x, total, self._max_node_residual(f)
             worst = _better(worst, (x, f), self._n)
-        for strategy in (self._source_stepping, self._gmin_stepping, self._scipy_root):
+        why = "Newton's method did not converge from the stage-by-stage starting point"
+        if worst is not None:
+            fn = np.abs(worst[1][:self._n])
+            if fn.size and np.any(np.isfinite(fn)):
+                k = int(np.nanargmax(np.where(np.isfinite(fn), fn, -1.0)))
+                why += f" (largest current imbalance {fn[k]:.3g} A at node '{self.nodes[k]}')"
+        for strategy, what in ((self._source_stepping, "source stepping: every source ramped up from 0 V"),
+                               (self._gmin_stepping, "gmin stepping: a large conductance to ground at every "
+                                                     "node, reduced decade by decade"),
+                               (self._scipy_root, "a hybrid (dogleg) root finder, the last resort")):
+            PROGRESS.info("DC solve of %d unknowns: %s; trying %s", self.size, why, what)
+            why = "that did not converge either"
             x, it, ok, f = strategy(signal_v, options)
             total += it
             if ok:
