@@ -241,6 +241,16 @@ class StageHeadroom:
     outputs : tuple[OutputSwing, ...]
         Every output port (the main one first, the same numbers as
         ``swing_pos_v``, ``swing_neg_v`` and ``thd_input_v``).
+    own_thd_at_clip : float or None
+        The stage's own THD (what it adds itself) at its clipping onset, a
+        ratio; None when it never clips or the onset lies outside the
+        symmetric sweep.
+    output_thd_at_clip : float or None
+        The THD at the stage's output at that onset (cumulative: everything
+        from the source up to and including this stage), a ratio.
+    swept_to_v : float
+        The largest source peak both half-waves were swept to, V: a THD
+        threshold not reached is not reached up to here.
     """
 
     stage: str
@@ -254,6 +264,9 @@ class StageHeadroom:
     swing_neg_v: float
     margin_db: float
     outputs: tuple[OutputSwing, ...] = ()
+    own_thd_at_clip: float | None = None
+    output_thd_at_clip: float | None = None
+    swept_to_v: float = math.nan
 
     @property
     def first(self) -> Onset | None:
@@ -339,6 +352,13 @@ class Headroom:
     curves: TransferCurves
     distortion: Distortion | None
     elapsed_s: float
+
+    @property
+    def first_thd(self) -> StageHeadroom | None:
+        """The first stage to reach the lowest THD threshold of its own
+        (``thd_input_v[0]``) as the input rises; None when none does."""
+        reaching = [r for r in self.stages if r.thd_input_v and r.thd_input_v[0] is not None]
+        return min(reaching, key=lambda r: r.thd_input_v[0]) if reaching else None
 
     def stage(self, name: str) -> StageHeadroom:
         for s in self.stages:
@@ -533,27 +553,59 @@ def _stage_headroom(net: MidBandNetwork, curves: TransferCurves, stage: StageRec
         thd = _thd_thresholds(curves, stage, levels, thd_levels, half=None, output=node)
         outputs.append(OutputSwing(port, node, max(hi_p, hi_n), min(lo_p, lo_n), thd))
     main = outputs[0]
+    own_at_clip = output_at_clip = None
+    if found and 0.0 < min(found) <= span:
+        at = np.array([min(found)])
+        own_at_clip = _finite(thd_versus_level(curves, stage.input, stage.output, at)[0])
+        output_at_clip = _finite(thd_versus_level(curves, None, stage.output, at)[0])
     return StageHeadroom(stage=stage.name, kind=stage.kind, input_node=stage.input, output_node=stage.output,
                          positive=pos, negative=neg, thd_input_v=main.thd_input_v,
                          swing_pos_v=main.swing_pos_v, swing_neg_v=main.swing_neg_v, margin_db=margin,
-                         outputs=tuple(outputs))
+                         outputs=tuple(outputs), own_thd_at_clip=own_at_clip, output_thd_at_clip=output_at_clip,
+                         swept_to_v=span)
 
 
-def _summary(first: StageHeadroom | None, level_v: float) -> str:
+def _finite(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
+
+
+def _summary(first: StageHeadroom | None, level_v: float, first_thd: StageHeadroom | None = None,
+             thd_level: float | None = None) -> str:
+    """One sentence: the first clipping onset, the stage's own THD there, and —
+    when another stage gets there first — the first stage to reach the lowest
+    THD threshold of its own."""
     if first is None:
-        return "no stage clips within the sweep (neither grid conduction nor cutoff was reached)"
-    onset = first.first
-    if onset.input_v == 0.0:
-        return (f"first to clip: stage {first.stage}, by {onset.mechanism}, already at rest "
-                f"({first.first_polarity} half-wave: the DC operating point is past the limit)")
-    text = (f"first to clip: stage {first.stage}, by {onset.mechanism}, at {format_si(onset.input_v, 'V')} "
-            f"peak at the input ({onset.input_dbv:.1f} dBV; {first.first_polarity} half-wave; "
-            f"{format_si(abs(onset.stage_input_v), 'V')} peak at its own input {first.input_node})")
-    if first.margin_db >= 0.0:
-        text += f"; {first.margin_db:.1f} dB above the stated level of {format_si(level_v, 'V')} peak"
+        text = "no stage clips within the sweep (neither grid conduction nor cutoff was reached)"
     else:
-        text += f"; the stated level of {format_si(level_v, 'V')} peak is {-first.margin_db:.1f} dB past it"
+        onset = first.first
+        if onset.input_v == 0.0:
+            return (f"first to clip: stage {first.stage}, by {onset.mechanism}, already at rest "
+                    f"({first.first_polarity} half-wave: the DC operating point is past the limit)")
+        text = (f"first to clip: stage {first.stage}, by {onset.mechanism} (onset), at "
+                f"{format_si(onset.input_v, 'V')} peak at the input ({onset.input_dbv:.1f} dBV; "
+                f"{first.first_polarity} half-wave; {format_si(abs(onset.stage_input_v), 'V')} peak at its own "
+                f"input {first.input_node})")
+        if first.margin_db >= 0.0:
+            text += f"; {first.margin_db:.1f} dB above the stated level of {format_si(level_v, 'V')} peak"
+        else:
+            text += f"; the stated level of {format_si(level_v, 'V')} peak is {-first.margin_db:.1f} dB past it"
+        if first.own_thd_at_clip is not None:
+            text += f"; its own THD there is {_pct(first.own_thd_at_clip)}"
+    if thd_level is not None:
+        pct = f"{100 * thd_level:g} %"
+        if first_thd is None:
+            text += f"; no stage reaches {pct} THD of its own in the sweep"
+        elif first is None or first_thd is not first:
+            text += (f"; first to reach {pct} THD of its own: stage {first_thd.stage}, at "
+                     f"{format_si(first_thd.thd_input_v[0], 'V')} peak at the input")
+        else:
+            text += f" and it is also the first to reach {pct} THD of its own, at " \
+                    f"{format_si(first_thd.thd_input_v[0], 'V')} peak at the input"
     return text
+
+
+def _pct(ratio: float) -> str:
+    return f"{100 * ratio:.3g} %"
 
 
 def _definitions(cutoff_fraction: float, thd_levels) -> tuple[str, ...]:
@@ -564,9 +616,15 @@ def _definitions(cutoff_fraction: float, thd_levels) -> tuple[str, ...]:
         f"cutoff: the plate current falls below {100 * cutoff_fraction:g} % of its quiescent value",
         "compression (1 dB, 3 dB): the stage's incremental gain d(output)/d(its input) has fallen that far "
         "below its value at rest, on either half-wave",
-        f"THD thresholds ({levels}): the distortion the stage adds itself, sqrt(r2² + … + r9²)/y1 with r "
-        "the stage output minus its actual input scaled by the gain at the fundamental (a null test); per "
-        "half-wave on the odd-symmetric extension of that half-wave",
+        f"own THD and its thresholds ({levels}): the distortion a stage adds itself, sqrt(r2² + … + r9²)/y1 "
+        "with r the stage output minus its actual input scaled by the gain at the fundamental (a null test); "
+        "per half-wave on the odd-symmetric extension of that half-wave",
+        "THD at a stage output (cumulative): the ordinary THD of the signal there for a pure sine at the "
+        "source, i.e. everything added from the source up to and including that stage; the chain output's "
+        "THD is the cumulative THD at the output",
+        "clipping onset and THD: an onset is where a mechanism begins (the grid starts to draw current, the "
+        "plate current starts to cut off); a soft onset (grid current through a small source resistance) "
+        "adds little distortion at first, so a stage can clip first while its own THD there is still small",
         "levels are source (EMF) peaks; dBV of the rms value of a sine with that peak",
     )
 
@@ -634,7 +692,10 @@ def headroom(circuit: Circuit, dc: DcSolution, *, level_v: float, f_ref_hz: floa
     else:
         overall_thd = tuple(None for _ in thd_levels)
     spec = distortion_in(net, level_v=level_v, points=spectrum_points) if spectrum else None
-    return Headroom(level_v=float(level_v), stages=rows, first=first, summary=_summary(first, level_v),
+    reaching = [r for r in rows if r.thd_input_v and r.thd_input_v[0] is not None]
+    first_thd = min(reaching, key=lambda r: r.thd_input_v[0]) if reaching else None
+    summary = _summary(first, level_v, first_thd, thd_levels[0] if thd_levels else None)
+    return Headroom(level_v=float(level_v), stages=rows, first=first, summary=summary,
                     thd_levels=thd_levels, overall_thd_input_v=overall_thd,
                     cutoff_fraction=float(cutoff_fraction), definitions=_definitions(cutoff_fraction, thd_levels),
                     limits=LIMITS, curves=curves, distortion=spec, elapsed_s=time.perf_counter() - t0)

@@ -244,7 +244,12 @@ def plot_harmonics(dist, *, stages: Sequence[str] | None = None, own: bool = Fal
         values = np.array(db, dtype=float)
         shown = np.where(np.isfinite(values), np.maximum(values, floor_db), floor_db)
         colour = COLOURS[k % len(COLOURS)] if label != "output" else _TEXT
-        name = f"{label}: THD {100 * ratio:.3g} %" if label != "output" else f"chain output: THD {100 * ratio:.3g} %"
+        if label == "output":
+            name = f"chain output: THD {100 * ratio:.3g} % (cumulative)"
+        elif own:
+            name = f"{label} own: THD {100 * ratio:.3g} %"
+        else:
+            name = f"{label} output: THD {100 * ratio:.3g} % (cumulative)"
         bars[label] = ax.bar(harmonics - 0.4 + width * (k + 0.5), shown - floor_db, width=width * 0.92,
                              bottom=floor_db, color=colour, label=name)
         levels[label] = tuple(float(v) for v in values)
@@ -253,10 +258,9 @@ def plot_harmonics(dist, *, stages: Sequence[str] | None = None, own: bool = Fal
     ax.set_xlabel("harmonic")
     ax.set_ylabel("level relative to the fundamental (dB)")
     ax.set_ylim(floor_db, 0.0)
-    what = "added by each stage" if own else "at each stage output"
-    ax.set_title(title if title is not None else
-                 f"harmonics {what}, {format_si(dist.level_v, 'V')} peak sine at the input",
-                 color=_TEXT, fontsize=11)
+    what = "added by each stage alone (own THD)" if own else "at each stage output (cumulative THD)"
+    subtitle = f"harmonics {what}, {format_si(dist.level_v, 'V')} peak sine at the input"
+    ax.set_title(subtitle if title is None else f"{title}\n{subtitle}", color=_TEXT, fontsize=11)
     _style(ax)
-    fig.legend(loc="outside lower center", ncol=min(len(series), 3), fontsize=8, frameon=False)
+    fig.legend(loc="outside lower center", ncol=min(len(series), 2), fontsize=8, frameon=False)
     return HarmonicsPlot(figure=fig, axes=ax, bars=bars, levels_db=levels, floor_db=float(floor_db))

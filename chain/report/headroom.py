@@ -71,18 +71,23 @@ def headroom_data(headroom) -> dict[str, Any] | None:
             "thd_input_v": [num(v) for v in s.thd_input_v],
             "compression_input_v": [None if c is None else num(c.input_v)
                                     for c in (s.compression(db) for db in COMPRESSION_DB)],
+            "own_thd_at_clip": num(s.own_thd_at_clip), "output_thd_at_clip": num(s.output_thd_at_clip),
+            "swept_to_v": num(s.swept_to_v),
             "positive": _half(s.positive), "negative": _half(s.negative),
             "triode": None if s.first is None else (s.first.triode or None),
             "outputs": [{"port": o.port, "node": o.node, "swing_pos_v": num(o.swing_pos_v),
                          "swing_neg_v": num(o.swing_neg_v), "thd_input_v": [num(v) for v in o.thd_input_v]}
                         for o in s.outputs],
         })
+    first_thd = headroom.first_thd
     return {
         "level_v": num(headroom.level_v),
         "first_stage": None if first is None else first.stage,
         "first_clip_input_v": None if first is None else num(first.clip_input_v),
         "first_mechanism": None if first is None else first.mechanism,
         "first_polarity": None if first is None else first.first_polarity,
+        "first_thd_stage": None if first_thd is None else first_thd.stage,
+        "first_thd_input_v": None if first_thd is None else num(first_thd.thd_input_v[0]),
         "summary": headroom.summary,
         "thd_levels": [num(t) for t in headroom.thd_levels],
         "overall_thd_input_v": [num(v) for v in headroom.overall_thd_input_v],
@@ -111,8 +116,10 @@ def _dbv(peak_v: float | None) -> str:
     return f"{dbv(peak_v):.2f} dBV"
 
 
-def _level(v: float | None) -> str:
-    return "not reached" if v is None else f"{fmt.volts(v)} peak ({_dbv(v)})"
+def _level(v: float | None, swept_to_v: float | None = None) -> str:
+    if v is None:
+        return "not reached" if swept_to_v is None else f"not reached up to {fmt.volts(swept_to_v)} peak"
+    return f"{fmt.volts(v)} peak ({_dbv(v)})"
 
 
 def _thd_label(t: float) -> str:
@@ -128,15 +135,23 @@ def _margin(m: float | None) -> str:
 
 
 def text_lines(h: dict[str, Any], kv: Callable[[str, str], str]) -> list[str]:
-    """The headroom facts, one a line (``kv(label, value)`` formats a line)."""
+    """The headroom facts, one a line (``kv(label, value)`` formats a line).
+
+    "Own THD" is what a stage adds itself; "THD at … output (cumulative)" is
+    everything from the source up to there (definitions in the report)."""
+    first_pct = _thd_label(h["thd_levels"][0]).replace(" THD", "") if h["thd_levels"] else ""
     out = [
         kv("stated input level", f"{fmt.volts(h['level_v'])} peak ({_dbv(h['level_v'])})"),
         kv("first stage to clip", "none" if h["first_stage"] is None else
-           f"{h['first_stage']}, by {h['first_mechanism']}, {h['first_polarity']} half-wave"),
+           f"{h['first_stage']}, by {h['first_mechanism']} (onset), {h['first_polarity']} half-wave"),
         kv("first-clip input level", _level(h["first_clip_input_v"])),
     ]
+    if first_pct and "first_thd_stage" in h:
+        out.append(kv(f"first to reach {first_pct} own THD",
+                      "none" if h["first_thd_stage"] is None else
+                      f"{h['first_thd_stage']}, at {_level(h['first_thd_input_v'])}"))
     for t, v in zip(h["thd_levels"], h["overall_thd_input_v"]):
-        out.append(kv(f"output: input for {_thd_label(t)}", _level(v)))
+        out.append(kv(f"input for {_thd_label(t)}, chain output", _level(v) + ("; cumulative THD" if v else "")))
     for s in h["stages"]:
         n = s["stage"]
         where = "" if s["mechanism"] == "none" else f", {s['mechanism']}, {s['polarity']} half-wave"
@@ -149,24 +164,37 @@ def text_lines(h: dict[str, Any], kv: Callable[[str, str], str]) -> list[str]:
         ports = s.get("outputs") or []
         if len(ports) <= 1:
             out.append(kv(f"{n} output swing", f"+{fmt.volts(s['swing_pos_v'])} / {fmt.volts(s['swing_neg_v'])}"))
+            _thd_at_onset(out, kv, n, s)
             for t, v in zip(h["thd_levels"], s["thd_input_v"]):
-                out.append(kv(f"{n} input for {_thd_label(t)}", _level(v)))
+                out.append(kv(f"{n} input for {_thd_label(t).replace(' THD', ' own THD')}",
+                              _level(v, s.get("swept_to_v"))))
             continue
+        _thd_at_onset(out, kv, n, s)
         for o in ports:
             out.append(kv(f"{n} {o['port']} output swing",
                           f"+{fmt.volts(o['swing_pos_v'])} / {fmt.volts(o['swing_neg_v'])}"))
             for t, v in zip(h["thd_levels"], o["thd_input_v"]):
-                out.append(kv(f"{n} {o['port']}: input for {_thd_label(t)}", _level(v)))
+                out.append(kv(f"{n} {o['port']}: input for {_thd_label(t).replace(' THD', ' own THD')}",
+                              _level(v, s.get("swept_to_v"))))
     d = h["distortion"]
     if d is not None:
         lvl = fmt.volts(d["level_v"])
-        out.append(kv(f"output THD at {lvl} peak", _thd(d["overall"]["thd"])))
+        out.append(kv(f"chain output THD at {lvl} peak", _thd(d["overall"]["thd"]) + " (cumulative)"))
         for s in d["stages"]:
             out.append(kv(f"{s['stage']} own THD at {lvl} peak", _thd(s["own_thd"])))
+            out.append(kv(f"{s['stage']} cumulative THD at {lvl} pk", _thd(s["output"]["thd"])))
     out.append(kv("summary", h["summary"]))
     out += [f"definition: {x}" for x in h["definitions"]]
     out += [f"limit: {x}" for x in h["limits"]]
     return out
+
+
+def _thd_at_onset(out: list[str], kv, n: str, s: dict[str, Any]) -> None:
+    """A stage's own and cumulative THD at its clipping onset, when known."""
+    if s.get("own_thd_at_clip") is not None:
+        out.append(kv(f"{n} own THD at clip onset", _thd(s["own_thd_at_clip"])))
+    if s.get("output_thd_at_clip") is not None:
+        out.append(kv(f"{n} cumulative THD at onset", _thd(s["output_thd_at_clip"])))
 
 
 def markdown_lines(h: dict[str, Any]) -> list[str]:
@@ -175,8 +203,8 @@ def markdown_lines(h: dict[str, Any]) -> list[str]:
 
     head = ["stage", "clips at input", "mechanism", "half-wave"]
     head += [f"gain −{fmt.plain(db)} dB at input" for db in h["compression_db"]]
-    head += ["margin", "swing +", "swing −"]
-    head += [f"input for {_thd_label(t)}" for t in h["thd_levels"]]
+    head += ["margin", "swing +", "swing −", "own THD at onset", "output THD at onset (cumulative)"]
+    head += [f"input for {_thd_label(t).replace(' THD', ' own THD')}" for t in h["thd_levels"]]
     rows = []
     for s in h["stages"]:
         mechanism = s["mechanism"]
@@ -188,15 +216,19 @@ def markdown_lines(h: dict[str, Any]) -> list[str]:
             rows.append([s["stage"] if o is None else f"{s['stage']} {o['port']}", _level(s["clip_input_v"]),
                          mechanism, s["polarity"] or "—"]
                         + [_level(v) for v in s["compression_input_v"]]
-                        + [_margin(s["margin_db"]), fmt.volts(swing[0]), fmt.volts(swing[1])]
-                        + [_level(v) for v in (s["thd_input_v"] if o is None else o["thd_input_v"])])
+                        + [_margin(s["margin_db"]), fmt.volts(swing[0]), fmt.volts(swing[1]),
+                           _thd(s.get("own_thd_at_clip")), _thd(s.get("output_thd_at_clip"))]
+                        + [_level(v, s.get("swept_to_v"))
+                           for v in (s["thd_input_v"] if o is None else o["thd_input_v"])])
     out = [f"Stated input level {fmt.volts(h['level_v'])} peak ({_dbv(h['level_v'])}).", "",
            f"Summary: {h['summary']}.", ""]
     out += _table(head, rows)
     d = h["distortion"]
     if d is not None:
-        out += ["", f"THD at {fmt.volts(d['level_v'])} peak: output {_thd(d['overall']['thd'])}; "
-                + "; ".join(f"{s['stage']} own {_thd(s['own_thd'])}" for s in d["stages"]) + "."]
+        out += ["", f"THD at {fmt.volts(d['level_v'])} peak: chain output {_thd(d['overall']['thd'])} "
+                "(cumulative); "
+                + "; ".join(f"{s['stage']} own {_thd(s['own_thd'])}, at its output {_thd(s['output']['thd'])} "
+                            "(cumulative)" for s in d["stages"]) + "."]
     out += [""] + [f"* definition: {x}" for x in h["definitions"]]
     out += [f"* limit: {x}" for x in h["limits"]]
     return out

@@ -304,3 +304,12 @@ def test_the_headroom_command_says_headroom(capsys):
 
     assert main(["headroom", str(ROOT / "netlists" / "clean_two_stage.chain")]) == 0
     assert capsys.readouterr().out.startswith("chain headroom: Kestrel clean channel\n")
+
+
+def test_every_thd_figure_says_whether_it_is_the_stage_own_or_cumulative(demos_headroom):
+    text = render(demos_headroom["lead_four_stage"], fmt="text", sections=("headroom",))
+    facts = [line for line in text.splitlines() if "THD" in line and not line.startswith(("definition", "summary"))]
+    assert facts
+    for line in facts:
+        assert "own THD" in line or "cumulative" in line, line
+    assert "first to reach 1 % own THD       V3" in text
