@@ -364,6 +364,14 @@ class _Checker:
             self.in_range("rated", s.cathode.bypass_rated_v, cs, s.name)
         elif s.kind in ("cathode-follower", "common-grid", *TWO_TRIODE_KINDS):
             self.err("E306", f"stage '{s.name}': a {s.kind} stage needs a cathode resistor", s.span)
+        elif s.kind == "common-cathode":
+            # common practice: with the cathode grounded the grid sits at 0 V and biases
+            # itself by the grid current it draws through the grid leak (grid-leak bias)
+            self.warn("W210", f"stage '{s.name}' has no cathode resistor: its cathode is at 0 V and it biases "
+                      "by the grid current it draws through its grid leak (grid-leak bias); the operating "
+                      "point then rests on the tube model's grid-current law", s.span,
+                      "add 'cathode 1k5 bypass 22u' for cathode bias, or keep it and use a grid leak of "
+                      "several megohms as grid-leak bias needs", s.name)
         self.check_two_triode(s, rail_names)
         self.in_range("grid_leak", s.grid_leak_ohm, sp.get("grid_leak", s.span), s.name)
         self.in_range("grid_stopper", s.grid_stopper_ohm, sp.get("grid_stopper", s.span), s.name)

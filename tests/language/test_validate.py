@@ -45,3 +45,13 @@ def test_a_version_suffix_is_offered_the_base_type():
     with pytest.raises(LanguageError) as info:
         parse_text(BASE.format(tube="12AX7WA"))
     assert info.value.diagnostics[0].hint == "did you mean '12AX7'?"
+
+
+def test_a_common_cathode_stage_without_cathode_resistor_is_said_to_bias_by_grid_current():
+    # common practice: a grounded cathode with a large grid leak is grid-leak bias
+    text = BASE.format(tube="12AX7").replace("  cathode 1k5\n", "").replace("grid leak 1M", "grid leak 10M")
+    design = parse_text(text)
+    from chain.language.validate import check
+
+    (w,) = [d for d in check(design) if d.code == "W210"]
+    assert w.severity == "warning" and "grid current" in w.message and w.span.line == 3
