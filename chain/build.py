@@ -399,8 +399,17 @@ def build(design: Design) -> Circuit:
 
     src = design.source
     first_in = stage_nodes[src.into].input
-    emf = first_in if src.kind == "ideal" or (src.kind == "resistance" and src.r_ohm == 0) else "input.emf"
     own = Owner("input", "input")
+    # the node the source network ends on: the stage input, or the near end of
+    # the input coupling capacitor
+    src_out = first_in if src.cap_f is None else "input.out"
+    if src.cap_f is not None:
+        label = f"input->{src.into}"
+        x.add(Capacitor("input.Cc", src_out, first_in, src.cap_f, src.cap_rated_v, Owner("coupling", label),
+                        Role.COUPLING), src.span)
+        couplings[label] = (src_out, first_in)
+    emf = src_out if src.kind == "ideal" or (src.kind == "resistance" and src.r_ohm == 0) else "input.emf"
+    first_in = src_out
     x.add(VoltageSource("input", emf, GROUND, 0.0, Role.SIGNAL, own), src.span)
     if src.kind == "resistance" and src.r_ohm > 0:
         x.add(Resistor("input.R", emf, first_in, src.r_ohm, own, Role.SOURCE_RESISTANCE), src.span)

@@ -125,7 +125,8 @@ def _parser() -> argparse.ArgumentParser:
                        description="Large-signal transfer curves at mid-band: clipping points per stage, "
                                    "the first stage to clip, and the harmonic spectrum at the input level.")
     h.add_argument("file", metavar="FILE")
-    h.add_argument("--level", metavar="VOLTS", help="input level, peak (e.g. 150mV); default: the netlist's")
+    h.add_argument("--level", metavar="LEVEL",
+                   help="input level: peak volts (150mV), rms (100mVrms) or dB (-20dBV, -10dBu); default: the netlist's")
     h.add_argument("--plot", metavar="PATH", help="draw the transfer curves and the harmonic spectrum to "
                    "PATH with -transfer and -harmonics added before the suffix (.png or .svg)")
 
@@ -541,12 +542,12 @@ def _cmd_compare(args) -> int:
 def _cmd_headroom(args) -> int:
     from chain.analysis import analyze
     from chain.report import render
-    from chain.units import QuantityError, parse_quantity
+    from chain.units import QuantityError, parse_level
 
     level = None
     if args.level is not None:
         try:
-            level = parse_quantity(args.level, "V")
+            level = parse_level(args.level)
         except QuantityError as exc:
             raise UsageError(f"--level {args.level}: {exc.message}") from None
         from chain.language.validate import RANGES

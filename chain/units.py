@@ -46,6 +46,8 @@ __all__ = [
     "PREFIXES",
     "QuantityError",
     "parse_quantity",
+    "parse_level",
+    "DBU_REF_V_RMS",
     "format_si",
     "format_rkm",
 ]
@@ -425,3 +427,45 @@ def format_rkm(value: float, kind: str = "R", *, digits: int | None = None) -> s
         return sign + whole + ("." + frac if frac else "")
     whole, frac = _split_point(ds, q - eng)
     return sign + whole + letters[eng] + frac
+
+
+#: 0 dBu in volts rms: 1 mW into 600 ohm, sqrt(0.6) V (the audio-engineering reference)
+DBU_REF_V_RMS = math.sqrt(0.6)
+
+
+def parse_level(text: str, form: str | None = None) -> float:
+    """A signal level as its peak voltage, V.
+
+    ``text`` is a voltage (``150m``, ``0.15V``; ``100mVrms`` says rms in the
+    value itself) or a level in dB: ``-20dBV`` (dB re 1 V rms) or ``-10dBu``
+    (dB re :data:`DBU_REF_V_RMS`, 0.7746 V rms).  ``form`` is ``"peak"``
+    (the default for voltages) or ``"rms"``.  A sine's peak is √2 times its
+    rms value; dB levels are rms by definition.
+
+    Raises
+    ------
+    QuantityError
+        for a malformed number, or a dB level said to be a peak.
+    """
+    t = text.strip()
+    low = t.lower()
+    for suffix, ref in (("dbv", 1.0), ("dbu", DBU_REF_V_RMS)):
+        if low.endswith(suffix):
+            number = t[:-len(suffix)]
+            try:
+                db = float(number)
+            except ValueError:
+                raise QuantityError(text, 0, f"'{number}' is not a number of dB",
+                                    "write a level such as -20dBV or -10dBu") from None
+            if form == "peak":
+                raise QuantityError(text, 0, f"a level in {t[-3:]} is an rms level, not a peak",
+                                    f"write '{t}' alone, or give the peak voltage")
+            if not math.isfinite(db):
+                raise QuantityError(text, 0, "the level must be finite")
+            return ref * 10.0 ** (db / 20.0) * math.sqrt(2.0)
+    if low.endswith("rms"):
+        if form == "peak":
+            raise QuantityError(text, len(t) - 3, "the value says rms and the line says peak")
+        t, form = t[:-3], "rms"
+    volts = parse_quantity(t, "V")
+    return volts * math.sqrt(2.0) if form == "rms" else volts

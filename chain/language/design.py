@@ -271,7 +271,8 @@ class Source:
 
     ``kind`` is ``ideal``, ``resistance`` (``r_ohm``) or ``pickup``
     (winding resistance ``r_ohm`` and inductance ``l_h`` in series, its own
-    capacitance ``c_f`` and the cable's ``cable_f`` across the output)."""
+    capacitance ``c_f`` and the cable's ``cable_f`` across the output);
+    ``cap_f`` couples it to the stage through a capacitor."""
 
     kind: str
     into: str
@@ -279,6 +280,9 @@ class Source:
     l_h: float = 0.0
     c_f: float = 0.0
     cable_f: float = 0.0
+    #: coupling capacitor between the source and the first stage, F (None: DC-coupled)
+    cap_f: float | None = None
+    cap_rated_v: float | None = None
     span: Span = _span()
 
 

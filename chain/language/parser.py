@@ -39,7 +39,7 @@ from chain.language.design import (
     TubeDef,
 )
 from chain.tubes.model import FORMS
-from chain.units import QuantityError, parse_quantity
+from chain.units import QuantityError, parse_level, parse_quantity
 
 __all__ = ["parse_text", "parse_file", "parse_syntax"]
 
@@ -480,7 +480,14 @@ class _Builder:
         self.settings["band"] = ((lo, hi), span)
 
     def _set_level(self, tree, span):
-        self.settings["level_v"] = (self.value(tree.children[0], span, "V", "input level"), span)
+        token = tree.children[0].children[0]
+        form = str(tree.children[1].data) if len(tree.children) > 1 else None
+        try:
+            peak_v = parse_level(str(token), form)
+        except QuantityError as exc:
+            raise _LineErrors([error("E110", f"bad input level '{token}': {exc.message}",
+                                     replace(span, column=_col(token, span) + exc.column), exc.hint)]) from None
+        self.settings["level_v"] = (peak_v, span)
 
     def _set_points(self, tree, span):
         self.settings["points"] = (self.value(tree.children[0], span, None, "number of points"), span)
@@ -565,13 +572,18 @@ class _Builder:
             self.couplings.append(Coupling(kind="network", network=net, instance=inst, **common))
 
     def _input(self, tree, span):
-        into, src = tree.children
+        into, src, *link = tree.children
+        cap = {}
+        if link:
+            value, *rated = link[0].children
+            cap = {"cap_f": self.value(value, span, "F", "input coupling capacitor"),
+                   "cap_rated_v": self.value(rated[0].children[0], span, "V", "voltage rating") if rated else None}
         kind = src.data
         if kind == "ideal":
-            self.sources.append(Source("ideal", str(into), span=self.at(into, span)))
+            self.sources.append(Source("ideal", str(into), span=self.at(into, span), **cap))
         elif kind == "resistance":
             self.sources.append(Source("resistance", str(into), self.value(src.children[0], span, "ohm", "source resistance"),
-                                       span=self.at(into, span)))
+                                       span=self.at(into, span), **cap))
         else:
             r, l, c, *cable = src.children
             self.sources.append(Source(
@@ -580,7 +592,7 @@ class _Builder:
                 l_h=self.value(l, span, "H", "pickup inductance"),
                 c_f=self.value(c, span, "F", "pickup capacitance"),
                 cable_f=self.value(cable[0], span, "F", "cable capacitance") if cable else 0.0,
-                span=self.at(into, span)))
+                span=self.at(into, span), **cap))
 
     def _output(self, tree, span):
         children = list(tree.children)

@@ -528,6 +528,21 @@ class _Checker:
         if self.d.source is not None and self.d.source.into in fed:
             self.err("E219", f"stage '{self.d.source.into}' is fed by the input and by a coupling", fed[self.d.source.into])
 
+    def check_common_grid_drive(self, src, stage_names):
+        """E325: a common-grid stage takes the signal at its cathode; a source
+        with no resistance of its own, DC-coupled, holds that cathode at 0 V
+        (no bias, several mA): refuse it and say what to add."""
+        if src.into not in stage_names or src.cap_f is not None:
+            return
+        if self.d.stage(src.into).kind != "common-grid":
+            return
+        if src.kind == "ideal" or (src.kind == "resistance" and src.r_ohm == 0.0):
+            self.err("E325", f"the input drives the cathode of common-grid stage '{src.into}' with no resistance "
+                     "and no capacitor: the source would hold the cathode at 0 V at DC, leaving the stage "
+                     "without bias", src.span,
+                     "couple the input through a capacitor so the cathode resistor sets the bias: "
+                     f"'input into {src.into} {src.kind}{' 0' if src.kind == 'resistance' else ''} cap 10u'")
+
     def check_source_output(self, stage_names, net_names):
         d = self.d
         src = d.source
@@ -543,6 +558,10 @@ class _Checker:
                 self.in_range("pickup_l", src.l_h, src.span)
                 self.in_range("pickup_c", src.c_f, src.span, zero_ok=True)
                 self.in_range("cable", src.cable_f, src.span, zero_ok=True)
+            if src.cap_f is not None:
+                self.in_range("coupling", src.cap_f, src.span)
+                self.in_range("rated", src.cap_rated_v, src.span)
+            self.check_common_grid_drive(src, stage_names)
         out = d.output
         to_output = [c for c in d.couplings if c.dst == "output"]
         if out is None:

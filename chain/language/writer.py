@@ -84,6 +84,8 @@ def format_design(d: Design) -> str:
             cable = f" cable {_c(src.cable_f)}" if src.cable_f else ""
             how = (f"pickup winding {_r(src.r_ohm)} inductance {_l(src.l_h)} "
                    f"capacitance {_c(src.c_f)}{cable}")
+        if src.cap_f is not None:
+            how += f" cap {_c(src.cap_f)}{_rated(src.cap_rated_v)}"
         out.append(f"input into {src.into} {how}")
     for st in d.stages:
         out.append("")
