@@ -3,7 +3,7 @@
 House plan (imports flow one way; a module imports only rooms to its left)::
 
     errors, units, fileio → tubes → language → circuit → build → dc → smallsignal
-        → formulas → headroom → analysis → report | plot → changes → cli
+        → formulas → headroom → transient → analysis → report | plot → changes → cli
 
 * ``language`` turns text into frozen :class:`~chain.language.Design` objects
   and knows nothing of analysis;

@@ -19,6 +19,7 @@ RANKS = {
     "dc": 5,
     "smallsignal": 6,
     "formulas": 7, "headroom": 7,
+    "transient": 7.5,
     "analysis": 8,
     "report": 9, "plot": 9,
     "changes": 10,
