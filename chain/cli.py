@@ -130,6 +130,29 @@ def _parser() -> argparse.ArgumentParser:
     h.add_argument("--plot", metavar="PATH", help="draw the transfer curves and the harmonic spectrum to "
                    "PATH with -transfer and -harmonics added before the suffix (.png or .svg)")
 
+    dr = sub.add_parser("drive", help="time domain: what the chain does to a real signal",
+                        description="Drive the whole chain in the time domain from its DC operating point: "
+                                    "distortion of the settled response per frequency and level, the first "
+                                    "clip beside the quasi-static one, a burst's bias shift and recovery "
+                                    "(blocking), rail sag, and rendering a WAV file through the preamp.")
+    dr.add_argument("file", metavar="FILE")
+    dr.add_argument("--freq", metavar="HZ,…", default="1k", help="frequencies, e.g. 100,1k,5k (default 1k)")
+    dr.add_argument("--level", metavar="VOLTS,…", help="source levels, peak, e.g. 10m,100m; default: the netlist's")
+    dr.add_argument("--clip", action="store_true", help="first clip per frequency, time domain vs quasi-static")
+    dr.add_argument("--burst", metavar="LOUD[,QUIET]", help="a loud burst then a quiet tone (default quiet: "
+                    "LOUD/100) at the first frequency: each grid's bias shift and recovery")
+    dr.add_argument("--sag", action="store_true", help="rail voltages under sustained drive")
+    dr.add_argument("--wav", nargs=2, metavar=("IN", "OUT"), help="render the WAV file IN through the preamp to "
+                    "OUT (32-bit float, mono)")
+    dr.add_argument("--peak", metavar="VOLTS", help="with --wav: the source EMF the input's largest sample "
+                    "becomes, e.g. 200mV (required)")
+    dr.add_argument("--full-scale", metavar="VOLTS", help="with --wav: output volts written as 1.0 (default: "
+                    "the output peak at -1 dBFS); a full scale the output exceeds is an error")
+    dr.add_argument("--oversample", type=int, default=2, metavar="N",
+                    help="solver steps per sample for --burst and --wav (default 2)")
+    dr.add_argument("--plot", metavar="PATH", help="waveforms to PATH (.png or .svg); with --burst also "
+                    "PATH-burst")
+
     d = sub.add_parser("diff", help="what a part change moved: two netlists or two JSON reports",
                        description="Compare two voicings. Exit 0 when nothing differs beyond the tolerance, "
                                    "1 when something does, 2 on error.")
@@ -617,6 +640,146 @@ def _cmd_transfer(args) -> int:
     _print_diagnostics(unstable)
     return EXIT_UNSTABLE if unstable else 0
 
+def _quantities(text: str, unit: str, option: str) -> list[float]:
+    from chain.units import QuantityError, parse_quantity
+
+    out = []
+    for part in text.split(","):
+        try:
+            value = parse_quantity(part.strip(), unit)
+        except QuantityError as exc:
+            raise UsageError(f"{option} {text}: {exc.message}") from None
+        if not (value > 0.0):
+            raise UsageError(f"{option} {text}: values must be positive")
+        out.append(value)
+    return out
+
+
+def _cmd_drive(args) -> int:
+    from chain.build import load
+    from chain.dc import solve
+    from chain.report.transient import burst_text, clip_text, distortion_text, render_text, sag_text
+    from chain.transient import compile_transient
+    from chain.transient import measure
+
+    freqs = _quantities(args.freq, "Hz", "--freq")
+    if any(not 1.0 <= f <= 40e3 for f in freqs):
+        raise UsageError(f"--freq {args.freq}: frequencies must lie between 1 Hz and 40 kHz")
+    levels = _quantities(args.level, "V", "--level") if args.level else None
+    if levels and any(not 1e-6 <= v <= 100.0 for v in levels):
+        raise UsageError(f"--level {args.level} is outside the sensible range 1 µV to 100 V peak")
+    if not 1 <= args.oversample <= 64:
+        raise UsageError("--oversample must be between 1 and 64")
+    loud = quiet = None
+    if args.burst:
+        vals = _quantities(args.burst, "V", "--burst")
+        if len(vals) > 2:
+            raise UsageError("--burst takes LOUD or LOUD,QUIET")
+        loud = vals[0]
+        quiet = vals[1] if len(vals) == 2 else loud / 100.0
+    peak = full_scale = None
+    if args.wav:
+        if not args.peak:
+            raise UsageError("--wav needs --peak VOLTS: the source level the input's largest sample becomes")
+        peak = _quantities(args.peak, "V", "--peak")[0]
+        if args.full_scale:
+            full_scale = _quantities(args.full_scale, "V", "--full-scale")[0]
+        if Path(args.wav[0]).resolve() == Path(args.wav[1]).resolve():
+            raise UsageError("--wav IN OUT: the output would overwrite the input")
+        _writable(args.wav[1], args)
+    elif args.peak or args.full_scale:
+        raise UsageError("--peak and --full-scale go with --wav")
+    plot_path = _figure_path(args.plot, args) if args.plot else None
+    names = ["periods", "burst"] if args.burst else ["periods"]
+    if plot_path:
+        for name in _figure_names(plot_path, names):
+            _writable(name, args)
+
+    design, circuit, _ = load(args.file)
+    if levels is None:
+        levels = [design.settings.level_v]
+    dc = solve(circuit)
+    system = compile_transient(circuit, dc=dc)
+    wav_in = None
+    if args.wav:
+        from chain.transient.wav import read_wav
+
+        wav_in = read_wav(args.wav[0])  # before the long work: a bad file fails fast
+    sections = [f"chain drive — {design.title}", SAFETY, ""]
+    points = measure.distortion(system, freqs, levels)
+    sections.append(distortion_text(points))
+    if args.clip:
+        from chain.headroom import headroom
+
+        qs = headroom(circuit, dc, level_v=levels[0], spectrum=False)
+        first = qs.first
+        quasi = (first.clip_input_v, first.stage, first.mechanism) if first is not None and \
+            first.clip_input_v is not None else None
+        guess = quasi[0] if quasi else 1e-3
+        rows = [measure.first_clip(system, f, guess_v=guess) for f in freqs]
+        sections.append(clip_text(rows, quasi))
+    if args.sag:
+        sections.append(sag_text([(f, v, measure.sag(system, f, v)) for f in freqs for v in levels]))
+    burst = None
+    if args.burst:
+        with _progress("burst") as bar:
+            burst = measure.burst(system, freqs[0], loud, quiet, oversample=args.oversample, progress=bar)
+        sections.append(burst_text(burst))
+    if wav_in is not None:
+        from chain.fileio import write_atomically
+        from chain.transient.wav import render, wav_bytes
+        from chain.units import format_si
+
+        with _progress("render", enabled=wav_in.samples.size / wav_in.fs_hz > 1.0) as bar:
+            out = render(system, wav_in, peak_v=peak, full_scale_v=full_scale, oversample=args.oversample,
+                         progress=bar)
+        write_atomically(args.wav[1], wav_bytes(out))
+        mix = " (stereo mixed to mono)" if wav_in.channels == 2 else ""
+        sections.append(
+            f"Rendered {args.wav[0]}{mix}: {wav_in.samples.size / wav_in.fs_hz:.3g} s at {wav_in.fs_hz} Hz; its "
+            f"largest sample = {format_si(peak, 'V')} source EMF.\nwrote {args.wav[1]}: output node minus its DC "
+            f"voltage, 32-bit float mono, 1.0 = {format_si(out.full_scale_v, 'V')}; output peak "
+            f"{format_si(out.output_peak_v, 'V')} "
+            f"({20 * __import__('math').log10(max(out.output_peak_v, 1e-300) / out.full_scale_v):.1f} dBFS)\n")
+    print(render_text(sections))
+    if plot_path:
+        from chain.plot.transient import plot_burst, plot_periods
+
+        drawn = [plot_periods(points, title=design.title).figure]
+        if burst is not None:
+            drawn.append(plot_burst(burst, title=design.title).figure)
+        for path, figure in zip(_figure_names(plot_path, names), drawn):
+            _save_figure(figure, str(path))
+            print(f"wrote {path}")
+    return 0
+
+
+class _progress:
+    """A tqdm bar on stderr for long runs, as a ``progress(done, total)`` callback (or None)."""
+
+    def __init__(self, what: str, *, enabled: bool = True):
+        self.what = what
+        self.enabled = enabled
+        self.bar = None
+
+    def __enter__(self):
+        if not self.enabled:
+            return None
+        from tqdm import tqdm
+
+        def update(done, total):
+            if self.bar is None:
+                self.bar = tqdm(total=total, desc=self.what, unit="sample", unit_scale=True, leave=False,
+                                file=sys.stderr, disable=None)
+            self.bar.update(done - self.bar.n)
+
+        return update
+
+    def __exit__(self, *exc):
+        if self.bar is not None:
+            self.bar.close()
+        return False
+
 
 def _cmd_fit(args) -> int:
     import re
@@ -697,6 +860,7 @@ def _write_fitted_netlist(path: str, out: str, line: str, like: str, name: str) 
 _COMMANDS = {
     "fit": _cmd_fit,
     "transfer": _cmd_transfer,
+    "drive": _cmd_drive,
     "formulas": _cmd_formulas,
     "headroom": _cmd_headroom,
     "check": _cmd_check,

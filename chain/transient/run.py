@@ -25,7 +25,8 @@ import numpy as np
 
 from chain.circuit import Circuit
 from chain.errors import AnalysisError, error
-from chain.transient.engine import TransientOptions, TransientSystem, compile_transient
+from chain.transient import fast
+from chain.transient.engine import _A0, GAMMA, TransientOptions, TransientSystem, compile_transient
 
 __all__ = ["Waveforms", "PeriodicResponse", "simulate", "periodic_response", "interpolator"]
 
@@ -149,7 +150,7 @@ def _node_indices(system: TransientSystem, nodes: Sequence[str] | None) -> dict[
 def simulate(circuit: Circuit | TransientSystem, input_v: np.ndarray | Callable[[float], float], fs_hz: float, *,
              duration_s: float | None = None, nodes: Sequence[str] | None = None, oversample: int = 4,
              options: TransientOptions = TransientOptions(), dc=None,
-             progress: Callable[[int, int], None] | None = None) -> Waveforms:
+             progress: Callable[[int, int], None] | None = None, engine: str = "auto") -> Waveforms:
     """Drive the circuit from its DC operating point with a sampled source EMF.
 
     Parameters
@@ -173,6 +174,11 @@ def simulate(circuit: Circuit | TransientSystem, input_v: np.ndarray | Callable[
         A solved operating point to start from.
     progress : callable, optional
         Called as ``progress(done, total)`` with input samples done.
+    engine : {"auto", "numpy", "compiled"}
+        ``"compiled"``: the numba loop of :mod:`chain.transient.fast` (a
+        step it cannot converge is handed to the numpy stepper, which halves
+        it); ``"numpy"``: :meth:`TransientSystem.step` throughout (same
+        equations, ~200× slower); ``"auto"``: compiled when numba is there.
 
     Returns
     -------
@@ -199,25 +205,32 @@ def simulate(circuit: Circuit | TransientSystem, input_v: np.ndarray | Callable[
         raise AnalysisError(error("E903", "the input signal holds values that are not finite"))
     if int(oversample) != oversample or oversample < 1:
         raise AnalysisError(error("E903", f"oversample must be a positive whole number, got {oversample!r}"))
+    if engine not in ("auto", "numpy", "compiled"):
+        raise AnalysisError(error("E903", f"engine must be 'auto', 'numpy' or 'compiled', got {engine!r}"))
     system = _system(circuit, options, dc)
     idx = _node_indices(system, nodes)
     u = func if func is not None else interpolator(u_samples, fs_hz)
     h = 1.0 / (fs_hz * oversample)
     count = u_samples.size
-    rec = np.empty((count, system.size))
+    cols = np.array(list(idx.values()), dtype=np.intp)
+    data = np.empty((count, cols.size))
     x = system.x_dc.copy()
     q = np.zeros(system.size)
-    rec[0] = x
-    every = max(1, count // 200)
-    for k in range(1, count):
-        t0 = (k - 1) / fs_hz
-        for j in range(oversample):
-            x, q, _ = system.step(x, q, t0 + j * h, h, u)
-        rec[k] = x
-        if progress is not None and (k % every == 0 or k == count - 1):
-            progress(k + 1, count)
-    cols = list(idx.values())
-    data = rec[:, cols]
+    data[0] = x[cols]
+    use_kernel = engine == "compiled" or (engine == "auto" and fast.AVAILABLE)
+    if engine == "compiled" and not fast.AVAILABLE:
+        raise AnalysisError(error("E903", "the compiled engine needs numba, which is not installed"))
+    if use_kernel:
+        _run_compiled(system, x, q, u_samples, func, fs_hz, oversample, cols, data, progress)
+    else:
+        every = max(1, count // 200)
+        for k in range(1, count):
+            t0 = (k - 1) / fs_hz
+            for j in range(oversample):
+                x, q, _ = system.step(x, q, t0 + j * h, h, u)
+            data[k] = x[cols]
+            if progress is not None and (k % every == 0 or k == count - 1):
+                progress(k + 1, count)
     v = {name: data[:, i].copy() for i, name in enumerate(idx)}
     dc_v = {name: float(system.x_dc[i]) for name, i in idx.items()}
     t = np.arange(count) / fs_hz
@@ -294,3 +307,59 @@ def periodic_response(circuit: Circuit | TransientSystem, f_hz: float, amplitude
     return PeriodicResponse(f_hz=float(f_hz), amplitude_v=float(amplitude_v), t_s=t,
                             input_v=amplitude_v * np.sin(w * t), v=v, dc_v=dc_v, iterations=it,
                             residual_v=residual)
+
+
+def _stage_inputs(u_samples, func, fs_hz, oversample):
+    """Source EMF at the two stage times (t + γh, t + h) of every internal step, V."""
+    count = u_samples.size
+    steps = (count - 1) * oversample
+    n = np.arange(steps)
+    k0 = n // oversample
+    j = n % oversample
+    frac_tr = (j + GAMMA) / oversample
+    frac_bdf = (j + 1.0) / oversample
+    if func is not None:
+        t_tr = (k0 + frac_tr) / fs_hz
+        t_bdf = (k0 + frac_bdf) / fs_hz
+        return (np.array([func(t) for t in t_tr], dtype=float), np.array([func(t) for t in t_bdf], dtype=float))
+    a = u_samples[k0]
+    d = u_samples[np.minimum(k0 + 1, count - 1)] - a
+    return a + d * frac_tr, a + d * frac_bdf
+
+
+def _run_compiled(system, x, q, u_samples, func, fs_hz, oversample, cols, data, progress):
+    """Drive the numba loop in chunks (for progress); failed intervals go to the numpy stepper."""
+    count = u_samples.size
+    if count < 2:
+        return
+    h = 1.0 / (fs_hz * oversample)
+    st = system.stepper(h)
+    u_tr, u_bdf = _stage_inputs(u_samples, func, fs_hz, oversample)
+    size = system.size
+    pins = [(system.index[t.plate], system.index[t.grid], system.index[t.cathode]) for t in system.triodes]
+    pl, gr, ca = (np.array([p[i] if p[i] >= 0 else size for p in pins], dtype=np.intp).reshape(-1)
+                  for i in range(3))
+    prm = fast.triode_params([t.model for t in system.triodes])
+    opts = system.options
+    u = func if func is not None else interpolator(u_samples, fs_hz)
+    chunk = max(1, min(count, 4800))
+    k = 1
+    while k < count:
+        end = min(count, k + chunk)
+        got = fast.run_kernel(x, q, u_tr, u_bdf, k, end, oversample, GAMMA, _A0,
+                              system.g, system.b_dc, system._signal_row, st.tr.s, st.tr.z, st.tr.k,
+                              st.bdf.s, st.bdf.z, st.bdf.k, st.ac, pl, gr, ca, prm,
+                              opts.tol_v, opts.rtol, opts.max_iter, opts.max_step_v, cols, data)
+        if got < end:
+            # the numpy stepper halves what the kernel could not converge
+            t0 = (got - 1) / fs_hz
+            xs, qs = x.copy(), q.copy()
+            for j in range(oversample):
+                xs, qs, _ = system.step(xs, qs, t0 + j * h, h, u)
+            x[:] = xs
+            q[:] = qs
+            data[got] = x[cols]
+            got += 1
+        k = got
+        if progress is not None:
+            progress(k, count)

@@ -1,0 +1,287 @@
+"""The time-stepping loop of :mod:`chain.transient.engine`, compiled with numba.
+
+The same TR-BDF2 stages in increment form, the same DK port Newton and the
+same Koren and grid-current equations as :mod:`chain.tubes.model`
+(re-stated here in scalar form so that the compiler can inline them; a test
+checks them against the library functions and a whole run against the numpy
+stepper).  Only the loop is compiled: the matrices come from
+:meth:`TransientSystem.stepper`.
+
+A step the kernel cannot converge is handed back to the numpy stepper,
+which halves it (see :meth:`TransientSystem.step`), and the kernel resumes
+after it.
+
+numba is optional: without it :data:`AVAILABLE` is False and
+:func:`chain.transient.simulate` uses the numpy stepper (about two hundred
+times slower, see docs/performance.md).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from chain.tubes.model import V_LIMIT_V
+
+try:  # pragma: no cover - depends on the environment
+    import numba
+
+    AVAILABLE = True
+except ImportError:  # pragma: no cover
+    numba = None
+    AVAILABLE = False
+
+__all__ = ["AVAILABLE", "triode_params", "run_kernel", "koren_scalar"]
+
+
+def _jit(fn):
+    if numba is None:
+        return fn
+    return numba.njit(cache=True, fastmath=False)(fn)
+
+
+def triode_params(models) -> np.ndarray:
+    """Per triode the row ``(mu, ex, kg1, kp, kvb, k_grid, v0_grid, w_grid)``."""
+    return np.array([[m.mu, m.ex, m.kg1, m.kp, m.kvb, m.grid_perveance_a_v15, m.grid_onset_v, m.grid_knee_v]
+                     for m in models], dtype=float).reshape(-1, 8)
+
+
+@_jit
+def _softplus(u):
+    if u > 0.0:
+        return u + math.log1p(math.exp(-u))
+    return math.log1p(math.exp(u))
+
+
+@_jit
+def koren_scalar(prm, vpk_in, vgk_in, out):
+    """``out = (Ip, gm, gp, Ig, gg)`` of one triode (equations of :func:`chain.tubes.plate_current_and_derivatives`
+    and :func:`chain.tubes.grid_current_and_derivative`)."""
+    mu, ex, kg1, kp, kvb = prm[0], prm[1], prm[2], prm[3], prm[4]
+    in_p = 1.0 if abs(vpk_in) < V_LIMIT_V else 0.0
+    in_g = 1.0 if abs(vgk_in) < V_LIMIT_V else 0.0
+    vpk = min(max(vpk_in, -V_LIMIT_V), V_LIMIT_V)
+    vgk = min(max(vgk_in, -V_LIMIT_V), V_LIMIT_V)
+    s = math.sqrt(kvb + vpk * vpk)
+    u = kp * (1.0 / mu + vgk / s)
+    sp = _softplus(u)
+    logistic = math.exp(u - sp)
+    e1 = vpk / kp * sp
+    if e1 > 0.0:
+        ip = 2.0 / kg1 * e1 ** ex
+        dip_de1 = 2.0 * ex / kg1 * e1 ** (ex - 1.0)
+        gm = dip_de1 * (vpk * logistic / s) * in_g
+        gp = dip_de1 * (sp / kp - logistic * vgk * (vpk * vpk) / (s * s * s)) * in_p
+    else:
+        ip = 0.0
+        gm = 0.0
+        gp = 0.0
+    kg, v0, w = prm[5], prm[6], prm[7]
+    x = (vgk - v0) / w
+    spg = _softplus(x)
+    ramp = w * spg
+    lg = math.exp(x - spg)
+    ig = kg * ramp ** 1.5
+    gg = 1.5 * kg * math.sqrt(ramp) * lg * in_g
+    out[0] = ip
+    out[1] = gm
+    out[2] = gp
+    out[3] = ig
+    out[4] = gg
+
+
+@_jit
+def _stage(base, r, s_mat, z_mat, k_mat, v, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+           x_out, xpad, cur, gp, gm, gg, jac, f, ev, p):
+    """One implicit stage: ``x_out = base + S·r − Z·i(v)`` with ``v`` solved by Newton (in place). True if converged."""
+    size = base.shape[0]
+    nt = pl.shape[0]
+    m = 2 * nt
+    for i in range(size):
+        acc = 0.0
+        for j in range(size):
+            acc += s_mat[i, j] * r[j]
+        xpad[i] = base[i] + acc
+    xpad[size] = 0.0
+    for t in range(nt):
+        p[t] = xpad[pl[t]] - xpad[ca[t]]
+        p[nt + t] = xpad[gr[t]] - xpad[ca[t]]
+    converged = False
+    for _ in range(max_iter):
+        for t in range(nt):
+            koren_scalar(prm[t], v[t], v[nt + t], ev)
+            cur[t] = ev[0]
+            gm[t] = ev[1]
+            gp[t] = ev[2]
+            cur[nt + t] = ev[3]
+            gg[t] = ev[4]
+        for a in range(m):
+            acc = v[a] - p[a]
+            for b in range(m):
+                acc += k_mat[a, b] * cur[b]
+            f[a] = -acc
+            for t in range(nt):
+                jac[a, t] = k_mat[a, t] * gp[t]
+                jac[a, nt + t] = k_mat[a, t] * gm[t] + k_mat[a, nt + t] * gg[t]
+            jac[a, a] += 1.0
+        # Gaussian elimination with partial pivoting, f becomes the step
+        for col in range(m):
+            piv = col
+            big = abs(jac[col, col])
+            for row in range(col + 1, m):
+                if abs(jac[row, col]) > big:
+                    big = abs(jac[row, col])
+                    piv = row
+            if big == 0.0 or not math.isfinite(big):
+                return False
+            if piv != col:
+                for c in range(m):
+                    tmp = jac[col, c]
+                    jac[col, c] = jac[piv, c]
+                    jac[piv, c] = tmp
+                tmp = f[col]
+                f[col] = f[piv]
+                f[piv] = tmp
+            for row in range(col + 1, m):
+                fac = jac[row, col] / jac[col, col]
+                if fac != 0.0:
+                    for c in range(col, m):
+                        jac[row, c] -= fac * jac[col, c]
+                    f[row] -= fac * f[col]
+        for row in range(m - 1, -1, -1):
+            acc = f[row]
+            for c in range(row + 1, m):
+                acc -= jac[row, c] * f[c]
+            f[row] = acc / jac[row, row]
+        small = True
+        for a in range(m):
+            d = f[a]
+            if not math.isfinite(d):
+                return False
+            if d > max_step_v:
+                d = max_step_v
+            elif d < -max_step_v:
+                d = -max_step_v
+            v[a] += d
+            if abs(d) > tol_v + rtol * abs(v[a]):
+                small = False
+        if small:
+            converged = True
+            break
+    if not converged:
+        return False
+    for t in range(nt):
+        koren_scalar(prm[t], v[t], v[nt + t], ev)
+        cur[t] = ev[0]
+        cur[nt + t] = ev[3]
+    for i in range(size):
+        acc = 0.0
+        for j in range(m):
+            acc += z_mat[i, j] * cur[j]
+        x_out[i] = xpad[i] - acc
+    return True
+
+
+@_jit
+def run_kernel(x, q, u_tr, u_bdf, k_start, k_end, oversample, gamma, a0,
+               g_mat, b_dc, sig, s1, z1, k1, s2, z2, k2, ac,
+               pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v, rec_idx, out):
+    """Steps over the sample intervals ``k_start … k_end − 1`` → ``k`` (state ``x``, ``q`` updated in place).
+
+    ``u_tr[n]`` and ``u_bdf[n]`` are the source EMF at the two stage times
+    of internal step ``n = (k − 1)·oversample + j``.  Records ``x[rec_idx]``
+    into ``out[k]`` after each sample.  Returns the sample whose interval
+    failed (the state is left at its start), or ``k_end`` when done.
+    """
+    size = x.shape[0]
+    nt = pl.shape[0]
+    m = 2 * nt
+    xg = np.empty(size)
+    xn = np.empty(size)
+    r = np.empty(size)
+    d1 = np.empty(size)
+    xpad = np.empty(size + 1)
+    xs = np.empty(size + 1)
+    cur = np.empty(m)
+    gp = np.empty(nt)
+    gm = np.empty(nt)
+    gg = np.empty(nt)
+    jac = np.empty((m, m))
+    f = np.empty(m)
+    ev = np.empty(5)
+    pbuf = np.empty(m)
+    v = np.empty(m)
+    vg = np.empty(m)
+    x_keep = np.empty(size)
+    q_keep = np.empty(size)
+    v_prev = np.empty(m)
+    have_prev = False
+    for k in range(k_start, k_end):
+        for i in range(size):
+            x_keep[i] = x[i]
+            q_keep[i] = q[i]
+        for j in range(oversample):
+            # ports at x_n
+            for i in range(size):
+                xs[i] = x[i]
+            xs[size] = 0.0
+            for t in range(nt):
+                v[t] = xs[pl[t]] - xs[ca[t]]
+                v[nt + t] = xs[gr[t]] - xs[ca[t]]
+            # stage 1 (TR): A1·(xg − x) + N·i = b(t+γh) − G·x + q
+            for i in range(size):
+                acc = b_dc[i]
+                for jj in range(size):
+                    acc -= g_mat[i, jj] * x[jj]
+                r[i] = acc + q[i]
+            r[sig] += u_tr[(k - 1) * oversample + j]
+            # start the port Newton from the line through the last two steps
+            for a in range(m):
+                vg[a] = v[a] + gamma * (v[a] - v_prev[a]) if have_prev else v[a]
+                v_prev[a] = v[a]
+            have_prev = True
+            ok = _stage(x, r, s1, z1, k1, vg, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+                        xg, xpad, cur, gp, gm, gg, jac, f, ev, pbuf)
+            if not ok:
+                for a in range(m):
+                    vg[a] = v_prev[a]
+                ok = _stage(x, r, s1, z1, k1, vg, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+                            xg, xpad, cur, gp, gm, gg, jac, f, ev, pbuf)
+            if not ok:
+                for i in range(size):
+                    x[i] = x_keep[i]
+                    q[i] = q_keep[i]
+                return k
+            # stage 2 (BDF2): A2·(xn − xg) + N·i = b(t+h) − G·xg + a0·αC·(xg − x)
+            for i in range(size):
+                d1[i] = xg[i] - x[i]
+            for i in range(size):
+                acc = b_dc[i]
+                for jj in range(size):
+                    acc += a0 * ac[i, jj] * d1[jj] - g_mat[i, jj] * xg[jj]
+                r[i] = acc
+            r[sig] += u_bdf[(k - 1) * oversample + j]
+            for a in range(m):
+                v[a] = vg[a] + (vg[a] - v_prev[a]) * ((1.0 - gamma) / gamma)
+            if not _stage(xg, r, s2, z2, k2, v, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+                          xn, xpad, cur, gp, gm, gg, jac, f, ev, pbuf):
+                for a in range(m):
+                    v[a] = vg[a]
+                if not _stage(xg, r, s2, z2, k2, v, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+                              xn, xpad, cur, gp, gm, gg, jac, f, ev, pbuf):
+                    for i in range(size):
+                        x[i] = x_keep[i]
+                        q[i] = q_keep[i]
+                    return k
+            # q_{n+1} = αC·((xn − xg) − a0·(xg − x))
+            for i in range(size):
+                acc = 0.0
+                for jj in range(size):
+                    acc += ac[i, jj] * ((xn[jj] - xg[jj]) - a0 * d1[jj])
+                q[i] = acc
+            for i in range(size):
+                x[i] = xn[i]
+        for c in range(rec_idx.shape[0]):
+            out[k, c] = x[rec_idx[c]]
+    return k_end
