@@ -706,9 +706,16 @@ def _cmd_drive(args) -> int:
 
         wav_in = read_wav(args.wav[0])  # before the long work: a bad file fails fast
     sections = [f"chain drive — {design.title}", SAFETY, ""]
-    points = measure.distortion(system, freqs, levels)
-    sections.append(distortion_text(points))
-    if args.clip:
+    unstable = _bias_stability(design, circuit, dc)
+    points = ()
+    if unstable:
+        # no settled response exists: only runs in time (burst, WAV) show what it does
+        sections.append("The circuit is unstable (E801 below): it has no settled response, so distortion, "
+                        "first clip and sag are left out; --burst and --wav show it oscillating.\n")
+    else:
+        points = measure.distortion(system, freqs, levels)
+        sections.append(distortion_text(points))
+    if args.clip and not unstable:
         from chain.headroom import headroom
 
         qs = headroom(circuit, dc, level_v=levels[0], spectrum=False)
@@ -718,7 +725,7 @@ def _cmd_drive(args) -> int:
         guess = quasi[0] if quasi else 1e-3
         rows = [measure.first_clip(system, f, guess_v=guess) for f in freqs]
         sections.append(clip_text(rows, quasi))
-    if args.sag:
+    if args.sag and not unstable:
         sections.append(sag_text([(f, v, measure.sag(system, f, v)) for f in freqs for v in levels]))
     burst = None
     if args.burst:
@@ -742,16 +749,19 @@ def _cmd_drive(args) -> int:
             f"{format_si(out.output_peak_v, 'V')} "
             f"({20 * __import__('math').log10(max(out.output_peak_v, 1e-300) / out.full_scale_v):.1f} dBFS)\n")
     print(render_text(sections))
+    for d in unstable:
+        print(d.render())
     if plot_path:
         from chain.plot.transient import plot_burst, plot_periods
 
-        drawn = [plot_periods(points, title=design.title).figure]
+        drawn = {"periods": plot_periods(points, title=design.title).figure} if points else {}
         if burst is not None:
-            drawn.append(plot_burst(burst, title=design.title).figure)
-        for path, figure in zip(_figure_names(plot_path, names), drawn):
-            _save_figure(figure, str(path))
-            print(f"wrote {path}")
-    return 0
+            drawn["burst"] = plot_burst(burst, title=design.title).figure
+        for path, name in zip(_figure_names(plot_path, names), names):
+            if name in drawn:
+                _save_figure(drawn[name], str(path))
+                print(f"wrote {path}")
+    return EXIT_UNSTABLE if unstable else 0
 
 
 class _progress:

@@ -31,3 +31,10 @@ def test_drive_usage_errors_exit_2(capsys):
     assert main(["drive", CLEAN, "--wav", "a.wav", "b.wav"]) == 2  # --peak missing
     err = capsys.readouterr().err
     assert "Traceback" not in err
+
+
+def test_an_unstable_circuit_exits_4_with_e801_and_no_settled_response(capsys):
+    code = main(["drive", str(ROOT / "netlists" / "unstable" / "motorboat_shared_rail.chain"), "--freq", "1k"])
+    out = capsys.readouterr().out
+    assert code == 4
+    assert "E801" in out and "no settled response" in out and "Distortion" not in out
