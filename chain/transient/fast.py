@@ -108,6 +108,7 @@ def _stage(base, r, s_mat, z_mat, k_mat, v, pl, gr, ca, prm, tol_v, rtol, max_it
         p[t] = xpad[pl[t]] - xpad[ca[t]]
         p[nt + t] = xpad[gr[t]] - xpad[ca[t]]
     converged = False
+    prev_norm = 0.0
     for _ in range(max_iter):
         for t in range(nt):
             koren_scalar(prm[t], v[t], v[nt + t], ev)
@@ -155,6 +156,8 @@ def _stage(base, r, s_mat, z_mat, k_mat, v, pl, gr, ca, prm, tol_v, rtol, max_it
                 acc -= jac[row, c] * f[c]
             f[row] = acc / jac[row, row]
         small = True
+        norm = 0.0
+        tol_here = tol_v
         for a in range(m):
             d = f[a]
             if not math.isfinite(d):
@@ -164,11 +167,19 @@ def _stage(base, r, s_mat, z_mat, k_mat, v, pl, gr, ca, prm, tol_v, rtol, max_it
             elif d < -max_step_v:
                 d = -max_step_v
             v[a] += d
+            if abs(d) > norm:
+                norm = abs(d)
             if abs(d) > tol_v + rtol * abs(v[a]):
                 small = False
-        if small:
+            if tol_v + rtol * abs(v[a]) > tol_here:
+                tol_here = tol_v + rtol * abs(v[a])
+        # converged when this step is within tolerance, or when quadratic convergence
+        # (e_next ≈ C·e², C ≈ |dv_k|/|dv_{k-1}|²) puts the next one there
+        if small or (prev_norm > 0.0 and norm < 0.5 * prev_norm and norm < 1e-3
+                     and norm * norm * norm <= tol_here * prev_norm * prev_norm):
             converged = True
             break
+        prev_norm = norm
     if not converged:
         return False
     for t in range(nt):
@@ -184,15 +195,88 @@ def _stage(base, r, s_mat, z_mat, k_mat, v, pl, gr, ca, prm, tol_v, rtol, max_it
 
 
 @_jit
-def run_kernel(x, q, u_tr, u_bdf, k_start, k_end, oversample, gamma, a0,
-               g_mat, b_dc, sig, s1, z1, k1, s2, z2, k2, ac,
+def _one_step(x, q, ua, ub, use_pred, v_prev, gamma, a0, g_mat, b_dc, sig, s1, z1, k1, s2, z2, k2, ac,
+              pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v, bufs, xg, xn, r, d1, xpad, xs, cur, gp, gm, gg,
+              jac, f, ev, pbuf, v, vg):
+    """One TR-BDF2 step in place (EMF ``ua`` at t+γh, ``ub`` at t+h). False (x, q untouched) if it fails.
+
+    ``v_prev`` holds the ports at the previous step's start; with
+    ``use_pred`` the first stage starts from the line through them.
+    """
+    size = x.shape[0]
+    nt = pl.shape[0]
+    m = 2 * nt
+    for i in range(size):
+        xs[i] = x[i]
+    xs[size] = 0.0
+    for t in range(nt):
+        v[t] = xs[pl[t]] - xs[ca[t]]
+        v[nt + t] = xs[gr[t]] - xs[ca[t]]
+    # stage 1 (TR): A1·(xg − x) + N·i = b(t+γh) − G·x + q
+    for i in range(size):
+        acc = b_dc[i]
+        for jj in range(size):
+            acc -= g_mat[i, jj] * x[jj]
+        r[i] = acc + q[i]
+    r[sig] += ua
+    for a in range(m):
+        vg[a] = v[a] + gamma * (v[a] - v_prev[a]) if use_pred else v[a]
+    ok = _stage(x, r, s1, z1, k1, vg, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+                xg, xpad, cur, gp, gm, gg, jac, f, ev, pbuf)
+    if not ok and use_pred:
+        for a in range(m):
+            vg[a] = v[a]
+        ok = _stage(x, r, s1, z1, k1, vg, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+                    xg, xpad, cur, gp, gm, gg, jac, f, ev, pbuf)
+    if not ok:
+        return False
+    # stage 2 (BDF2): A2·(xn − xg) + N·i = b(t+h) − G·xg + a0·αC·(xg − x)
+    for i in range(size):
+        d1[i] = xg[i] - x[i]
+    for i in range(size):
+        acc = b_dc[i]
+        for jj in range(size):
+            acc += a0 * ac[i, jj] * d1[jj] - g_mat[i, jj] * xg[jj]
+        r[i] = acc
+    r[sig] += ub
+    for a in range(m):
+        bufs[a] = vg[a] + (vg[a] - v[a]) * ((1.0 - gamma) / gamma)
+    ok = _stage(xg, r, s2, z2, k2, bufs, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+                xn, xpad, cur, gp, gm, gg, jac, f, ev, pbuf)
+    if not ok:
+        for a in range(m):
+            bufs[a] = vg[a]
+        ok = _stage(xg, r, s2, z2, k2, bufs, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
+                    xn, xpad, cur, gp, gm, gg, jac, f, ev, pbuf)
+    if not ok:
+        return False
+    # q_{n+1} = αC·((xn − xg) − a0·(xg − x))
+    for i in range(size):
+        acc = 0.0
+        for jj in range(size):
+            acc += ac[i, jj] * ((xn[jj] - xg[jj]) - a0 * d1[jj])
+        q[i] = acc
+    for a in range(m):
+        v_prev[a] = v[a]
+    for i in range(size):
+        x[i] = xn[i]
+    return True
+
+
+@_jit
+def run_kernel(x, q, u_tr, u_bdf, u_first, k_start, k_end, oversample, gamma, a0,
+               g_mat, b_dc, sig, s1, z1, k1, s2, z2, k2, ac, s1h, z1h, k1h, s2h, z2h, k2h, ach,
                pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v, rec_idx, out):
     """Steps over the sample intervals ``k_start … k_end − 1`` → ``k`` (state ``x``, ``q`` updated in place).
 
     ``u_tr[n]`` and ``u_bdf[n]`` are the source EMF at the two stage times
-    of internal step ``n = (k − 1)·oversample + j``.  Records ``x[rec_idx]``
-    into ``out[k]`` after each sample.  Returns the sample whose interval
-    failed (the state is left at its start), or ``k_end`` when done.
+    of internal step ``n = (k − 1)·oversample + j``; ``u_first`` the EMF at
+    the start of step ``(k_start − 1)·oversample``.  A step that fails is
+    retried as two half steps (matrices ``…h``; the EMF taken as a straight
+    line across the step, which it is for sampled input).  Records
+    ``x[rec_idx]`` into ``out[k]`` after each sample.  Returns the sample
+    whose interval still failed (the state is left at its start), or
+    ``k_end`` when done.
     """
     size = x.shape[0]
     nt = pl.shape[0]
@@ -211,77 +295,47 @@ def run_kernel(x, q, u_tr, u_bdf, k_start, k_end, oversample, gamma, a0,
     f = np.empty(m)
     ev = np.empty(5)
     pbuf = np.empty(m)
+    bufs = np.empty(m)
     v = np.empty(m)
     vg = np.empty(m)
+    v_prev = np.empty(m)
     x_keep = np.empty(size)
     q_keep = np.empty(size)
-    v_prev = np.empty(m)
     have_prev = False
+    u_start = u_first
     for k in range(k_start, k_end):
         for i in range(size):
             x_keep[i] = x[i]
             q_keep[i] = q[i]
+        u_keep = u_start
         for j in range(oversample):
-            # ports at x_n
-            for i in range(size):
-                xs[i] = x[i]
-            xs[size] = 0.0
-            for t in range(nt):
-                v[t] = xs[pl[t]] - xs[ca[t]]
-                v[nt + t] = xs[gr[t]] - xs[ca[t]]
-            # stage 1 (TR): A1·(xg − x) + N·i = b(t+γh) − G·x + q
-            for i in range(size):
-                acc = b_dc[i]
-                for jj in range(size):
-                    acc -= g_mat[i, jj] * x[jj]
-                r[i] = acc + q[i]
-            r[sig] += u_tr[(k - 1) * oversample + j]
-            # start the port Newton from the line through the last two steps
-            for a in range(m):
-                vg[a] = v[a] + gamma * (v[a] - v_prev[a]) if have_prev else v[a]
-                v_prev[a] = v[a]
-            have_prev = True
-            ok = _stage(x, r, s1, z1, k1, vg, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
-                        xg, xpad, cur, gp, gm, gg, jac, f, ev, pbuf)
+            n = (k - 1) * oversample + j
+            ua = u_tr[n]
+            ub = u_bdf[n]
+            ok = _one_step(x, q, ua, ub, have_prev, v_prev, gamma, a0, g_mat, b_dc, sig, s1, z1, k1, s2, z2, k2,
+                           ac, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v, bufs, xg, xn, r, d1, xpad, xs,
+                           cur, gp, gm, gg, jac, f, ev, pbuf, v, vg)
             if not ok:
-                for a in range(m):
-                    vg[a] = v_prev[a]
-                ok = _stage(x, r, s1, z1, k1, vg, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
-                            xg, xpad, cur, gp, gm, gg, jac, f, ev, pbuf)
+                # two half steps; the EMF is a straight line from u_start to ub across the step
+                du = ub - u_start
+                ok = _one_step(x, q, u_start + 0.5 * gamma * du, u_start + 0.5 * du, False, v_prev, gamma, a0,
+                               g_mat, b_dc, sig, s1h, z1h, k1h, s2h, z2h, k2h, ach, pl, gr, ca, prm, tol_v, rtol,
+                               max_iter, max_step_v, bufs, xg, xn, r, d1, xpad, xs, cur, gp, gm, gg, jac, f, ev,
+                               pbuf, v, vg)
+                if ok:
+                    ok = _one_step(x, q, u_start + (0.5 + 0.5 * gamma) * du, ub, False, v_prev, gamma, a0,
+                                   g_mat, b_dc, sig, s1h, z1h, k1h, s2h, z2h, k2h, ach, pl, gr, ca, prm, tol_v,
+                                   rtol, max_iter, max_step_v, bufs, xg, xn, r, d1, xpad, xs, cur, gp, gm, gg, jac,
+                                   f, ev, pbuf, v, vg)
+                have_prev = False
+            else:
+                have_prev = True
             if not ok:
                 for i in range(size):
                     x[i] = x_keep[i]
                     q[i] = q_keep[i]
                 return k
-            # stage 2 (BDF2): A2·(xn − xg) + N·i = b(t+h) − G·xg + a0·αC·(xg − x)
-            for i in range(size):
-                d1[i] = xg[i] - x[i]
-            for i in range(size):
-                acc = b_dc[i]
-                for jj in range(size):
-                    acc += a0 * ac[i, jj] * d1[jj] - g_mat[i, jj] * xg[jj]
-                r[i] = acc
-            r[sig] += u_bdf[(k - 1) * oversample + j]
-            for a in range(m):
-                v[a] = vg[a] + (vg[a] - v_prev[a]) * ((1.0 - gamma) / gamma)
-            if not _stage(xg, r, s2, z2, k2, v, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
-                          xn, xpad, cur, gp, gm, gg, jac, f, ev, pbuf):
-                for a in range(m):
-                    v[a] = vg[a]
-                if not _stage(xg, r, s2, z2, k2, v, pl, gr, ca, prm, tol_v, rtol, max_iter, max_step_v,
-                              xn, xpad, cur, gp, gm, gg, jac, f, ev, pbuf):
-                    for i in range(size):
-                        x[i] = x_keep[i]
-                        q[i] = q_keep[i]
-                    return k
-            # q_{n+1} = αC·((xn − xg) − a0·(xg − x))
-            for i in range(size):
-                acc = 0.0
-                for jj in range(size):
-                    acc += ac[i, jj] * ((xn[jj] - xg[jj]) - a0 * d1[jj])
-                q[i] = acc
-            for i in range(size):
-                x[i] = xn[i]
+            u_start = ub
         for c in range(rec_idx.shape[0]):
             out[k, c] = x[rec_idx[c]]
     return k_end

@@ -342,13 +342,16 @@ def _run_compiled(system, x, q, u_samples, func, fs_hz, oversample, cols, data, 
     prm = fast.triode_params([t.model for t in system.triodes])
     opts = system.options
     u = func if func is not None else interpolator(u_samples, fs_hz)
+    sh = system.stepper(0.5 * h)
     chunk = max(1, min(count, 4800))
     k = 1
     while k < count:
         end = min(count, k + chunk)
-        got = fast.run_kernel(x, q, u_tr, u_bdf, k, end, oversample, GAMMA, _A0,
+        u_first = float(u_samples[k - 1]) if func is None else float(func((k - 1) / fs_hz))
+        got = fast.run_kernel(x, q, u_tr, u_bdf, u_first, k, end, oversample, GAMMA, _A0,
                               system.g, system.b_dc, system._signal_row, st.tr.s, st.tr.z, st.tr.k,
-                              st.bdf.s, st.bdf.z, st.bdf.k, st.ac, pl, gr, ca, prm,
+                              st.bdf.s, st.bdf.z, st.bdf.k, st.ac, sh.tr.s, sh.tr.z, sh.tr.k,
+                              sh.bdf.s, sh.bdf.z, sh.bdf.k, sh.ac, pl, gr, ca, prm,
                               opts.tol_v, opts.rtol, opts.max_iter, opts.max_step_v, cols, data)
         if got < end:
             # the numpy stepper halves what the kernel could not converge

@@ -33,17 +33,18 @@ def test_scalar_tube_equations_are_the_library_ones():
 
 @pytest.mark.parametrize("max_iter", [40, 5])
 def test_compiled_run_equals_the_numpy_stepper(two_stages, max_iter, monkeypatch):
-    """Same waveforms; with 5 Newton iterations allowed, hard-driven steps go back to the numpy halving."""
+    """Same waveforms; with 5 Newton iterations allowed, hard-driven steps are halved (in the loop, or by the numpy stepper)."""
     system = compile_transient(two_stages, options=TransientOptions(max_iter=max_iter))
     calls = []
     kernel = fast.run_kernel
     monkeypatch.setattr(fast, "run_kernel", lambda *a: calls.append(1) or kernel(*a))
 
-    def u(t):
-        return 2.0 * math.sin(2 * math.pi * 2000.0 * t)
-
-    a = simulate(system, u, 48e3, duration_s=1.5e-3, oversample=2, engine="compiled")
-    b = simulate(system, u, 48e3, duration_s=1.5e-3, oversample=2, engine="numpy")
-    assert (len(calls) > 1) == (max_iter == 5)  # one call for the whole run unless steps were handed back
+    # sampled input: both engines take it as a straight line between samples (also within halved steps)
+    u = 2.0 * np.sin(2 * math.pi * 2000.0 * np.arange(73) / 48e3)
+    a = simulate(system, u, 48e3, oversample=2, engine="compiled")
+    b = simulate(system, u, 48e3, oversample=2, engine="numpy")
+    # same steps: same numbers; where the two halve different steps they differ by the
+    # method's truncation error (a step against two half steps): 2e-3 of the swing here
+    rel = 1e-7 if max_iter == 40 else 5e-3
     for node in a.v:
-        assert np.abs(a.v[node] - b.v[node]).max() <= 1e-7 * (1.0 + np.ptp(b.v[node])), node
+        assert np.abs(a.v[node] - b.v[node]).max() <= rel * (1.0 + np.ptp(b.v[node])), node
