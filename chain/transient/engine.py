@@ -17,8 +17,8 @@ and ``−L`` on the diagonal of each inductor's branch row
 (``v(a) − v(b) − L·di/dt = 0``).  ``b`` holds the supply voltages and the
 signal EMF ``u(t)``.  The triodes are the only nonlinear part: ``Nᵀ·x``
 gives each triode's port voltages ``(Vpk, Vgk)`` and ``i = (Ip, Ig)`` are the
-Koren plate current and the grid-current approximation of
-:mod:`chain.tubes` with their analytic derivatives, entered with the
+plate and grid currents of :mod:`chain.tubes` (the tube's model form) with
+their analytic derivatives, entered with the
 Kirchhoff pattern :data:`chain.circuit.TRIODE_KCL` (plate ``+Ip``, grid
 ``+Ig``, cathode ``−(Ip + Ig)``).
 

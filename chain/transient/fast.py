@@ -42,9 +42,15 @@ def _jit(fn):
 
 
 def triode_params(models) -> np.ndarray:
-    """Per triode the row ``(mu, ex, kg1, kp, kvb, k_grid, v0_grid, w_grid)``."""
-    return np.array([[m.mu, m.ex, m.kg1, m.kp, m.kvb, m.grid_perveance_a_v15, m.grid_onset_v, m.grid_knee_v]
-                     for m in models], dtype=float).reshape(-1, 8)
+    """Per triode one row: form flag (0 Koren, 1 Dempwolf–Zölzer), then the parameters of both forms."""
+    rows = []
+    for m in models:
+        if m.form not in ("koren", "dempwolf"):
+            raise ValueError(f"{m.name}: the compiled loop knows the koren and dempwolf forms, not {m.form!r}")
+        rows.append([0.0 if m.form == "koren" else 1.0, m.mu, m.ex, m.kg1, m.kp, m.kvb,
+                     m.grid_perveance_a_v15, m.grid_onset_v, m.grid_knee_v, m.vct,
+                     m.dz_mu, m.dz_g, m.dz_gamma, m.dz_c, m.dz_vct, m.dz_gg, m.dz_xi, m.dz_cg, m.dz_ig0])
+    return np.array(rows, dtype=float).reshape(-1, 19)
 
 
 @_jit
@@ -56,15 +62,44 @@ def _softplus(u):
 
 @_jit
 def koren_scalar(prm, vpk_in, vgk_in, out):
-    """``out = (Ip, gm, gp, Ig, gg)`` of one triode (equations of :func:`chain.tubes.plate_current_and_derivatives`
-    and :func:`chain.tubes.grid_current_and_derivative`)."""
-    mu, ex, kg1, kp, kvb = prm[0], prm[1], prm[2], prm[3], prm[4]
+    """``out = (Ip, gm, gp, Ig, gg)`` of one triode: the equations of
+    :func:`chain.tubes.plate_current_and_derivatives` and
+    :func:`chain.tubes.grid_current_and_derivative`, both forms (see there for the sources)."""
     in_p = 1.0 if abs(vpk_in) < V_LIMIT_V else 0.0
     in_g = 1.0 if abs(vgk_in) < V_LIMIT_V else 0.0
     vpk = min(max(vpk_in, -V_LIMIT_V), V_LIMIT_V)
     vgk = min(max(vgk_in, -V_LIMIT_V), V_LIMIT_V)
+    if prm[0] != 0.0:
+        # Dempwolf–Zölzer: Ik on Vpk/mu + Vgk + Vct, Ig on Vgk, Ip = Ik − Ig held at 0 below
+        dz_mu, dz_g, dz_gamma, dz_c, dz_vct = prm[10], prm[11], prm[12], prm[13], prm[14]
+        dz_gg, dz_xi, dz_cg, dz_ig0 = prm[15], prm[16], prm[17], prm[18]
+        xg = dz_cg * vgk
+        spg = _softplus(xg)
+        sigg = math.exp(xg - spg)
+        baseg = spg / dz_cg
+        ig = dz_gg * baseg ** dz_xi + dz_ig0
+        dig = dz_gg * dz_xi * baseg ** (dz_xi - 1.0) * sigg
+        x = dz_c * (vpk / dz_mu + vgk + dz_vct)
+        sp = _softplus(x)
+        sig = math.exp(x - sp)
+        base = sp / dz_c
+        ik = dz_g * base ** dz_gamma
+        dik = dz_g * dz_gamma * base ** (dz_gamma - 1.0) * sig
+        ip = ik - ig
+        if ip > 0.0:
+            out[0] = ip
+            out[1] = (dik - dig) * in_g
+            out[2] = dik / dz_mu * in_p
+        else:
+            out[0] = 0.0
+            out[1] = 0.0
+            out[2] = 0.0
+        out[3] = ig
+        out[4] = dig * in_g
+        return
+    mu, ex, kg1, kp, kvb, vct = prm[1], prm[2], prm[3], prm[4], prm[5], prm[9]
     s = math.sqrt(kvb + vpk * vpk)
-    u = kp * (1.0 / mu + vgk / s)
+    u = kp * (1.0 / mu + (vgk + vct) / s)
     sp = _softplus(u)
     logistic = math.exp(u - sp)
     e1 = vpk / kp * sp
@@ -72,12 +107,12 @@ def koren_scalar(prm, vpk_in, vgk_in, out):
         ip = 2.0 / kg1 * e1 ** ex
         dip_de1 = 2.0 * ex / kg1 * e1 ** (ex - 1.0)
         gm = dip_de1 * (vpk * logistic / s) * in_g
-        gp = dip_de1 * (sp / kp - logistic * vgk * (vpk * vpk) / (s * s * s)) * in_p
+        gp = dip_de1 * (sp / kp - logistic * (vgk + vct) * (vpk * vpk) / (s * s * s)) * in_p
     else:
         ip = 0.0
         gm = 0.0
         gp = 0.0
-    kg, v0, w = prm[5], prm[6], prm[7]
+    kg, v0, w = prm[6], prm[7], prm[8]
     x = (vgk - v0) / w
     spg = _softplus(x)
     ramp = w * spg
