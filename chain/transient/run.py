@@ -25,7 +25,7 @@ import numpy as np
 
 from chain.circuit import Circuit
 from chain.errors import AnalysisError, error
-from chain.transient import fast
+import chain.transient.fast as fast
 from chain.transient.engine import _A0, GAMMA, TransientOptions, TransientSystem, compile_transient
 
 __all__ = ["Waveforms", "PeriodicResponse", "simulate", "periodic_response", "interpolator"]
