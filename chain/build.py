@@ -442,7 +442,12 @@ def build(design: Design) -> Circuit:
                        Owner("output", "output"), Role.LOAD), span)
     output_ports = {label: node for label, node, _, _ in ports}
     for st in design.strays:
-        node = stage_nodes[st.node].output if st.node in stage_nodes else x.resolve(st.node, None, {}, st.span)
+        if st.node in stage_nodes:
+            node = stage_nodes[st.node].output
+        elif st.node == "output":
+            node = output_ports[next(iter(output_ports))]
+        else:
+            node = x.resolve(st.node, None, {}, st.span)
         if st.farads > 0:
             x.add(Capacitor(f"stray.{st.node}", node, GROUND, st.farads, None, Owner("stray", st.node), Role.STRAY),
                   st.span)

@@ -29,6 +29,8 @@ __all__ = ["check", "RANGES", "network_node_name"]
 #: sensible limits per role, SI units: (low, high, what)
 RANGES = {
     "supply": (1.0, 1000.0, "supply voltage"),
+    #: magnitude of a negative (fixed grid-bias) supply
+    "bias_supply": (0.1, 300.0, "bias supply voltage (magnitude)"),
     "supply_impedance": (0.0, 100e3, "supply impedance"),
     "drop": (1.0, 1e6, "dropping resistor"),
     "decouple": (10e-9, 10e-3, "decoupling capacitor"),
@@ -90,7 +92,7 @@ TUBE_RANGES = {
     "vp0-max": (1.0, 10e3, "V", "cold plate voltage rating vp0-max", False),
 }
 
-_SI_UNITS = {"supply": "V", "supply_impedance": "Ω", "drop": "Ω", "decouple": "F", "plate_load": "Ω",
+_SI_UNITS = {"supply": "V", "bias_supply": "V", "supply_impedance": "Ω", "drop": "Ω", "decouple": "F", "plate_load": "Ω",
              "cathode": "Ω", "bypass": "F", "bypass_series": "Ω", "grid_leak": "Ω", "grid_stopper": "Ω",
              "coupling": "F", "resistor": "Ω", "capacitor": "F", "inductor": "H", "pot": "Ω",
              "source_r": "Ω", "pickup_r": "Ω", "pickup_l": "H", "pickup_c": "F", "cable": "F", "load": "Ω",
@@ -202,7 +204,9 @@ class _Checker:
         self.check_source_output(stage_names, net_names)
         for st in d.strays:
             self.in_range("stray", st.farads, st.span, zero_ok=True)
-            self.check_node_ref(st.node, st.span, stage_names, net_names, rail_names, local=None)
+            # a stage name is its main output node; 'output' is the chain's output node
+            if st.node not in stage_names and st.node != "output":
+                self.check_node_ref(st.node, st.span, stage_names, net_names, rail_names, local=None)
         if self.problems:
             raise LanguageError(tuple(self.problems) + tuple(self.warnings))
         return tuple(self.warnings)
@@ -239,7 +243,11 @@ class _Checker:
         if not d.supplies:
             self.err("E203", "no supply: add a line such as 'supply B+ 300V'", Span(d.path, 1, 1))
         for s in d.supplies:
-            self.in_range("supply", s.volts, s.span)
+            # a negative supply is a fixed grid-bias supply (a few volts to ~150 V below ground)
+            if s.volts < 0 and math.isfinite(s.volts):
+                self.in_range("bias_supply", -s.volts, s.span)
+            else:
+                self.in_range("supply", s.volts, s.span)
             self.in_range("supply_impedance", s.impedance_ohm, s.span, zero_ok=True)
         feeds = {r.name: r.feed for r in d.rails}
         for r in d.rails:
@@ -364,7 +372,7 @@ class _Checker:
             self.in_range("rated", s.cathode.bypass_rated_v, cs, s.name)
         elif s.kind in ("cathode-follower", "common-grid", *TWO_TRIODE_KINDS):
             self.err("E306", f"stage '{s.name}': a {s.kind} stage needs a cathode resistor", s.span)
-        elif s.kind == "common-cathode":
+        elif s.kind == "common-cathode" and s.grid_leak_ohm is not None:
             # common practice: with the cathode grounded the grid sits at 0 V and biases
             # itself by the grid current it draws through the grid leak (grid-leak bias)
             self.warn("W210", f"stage '{s.name}' has no cathode resistor: its cathode is at 0 V and it biases "

@@ -84,3 +84,44 @@ def test_set_level_takes_rms_and_db():
     for line, peak in (("set level 100mV rms", 0.1 * math.sqrt(2)), ("set level -20dBV", 0.1 * math.sqrt(2))):
         d = parse_text(base + line + "\n")
         assert d.settings.level_v == pytest.approx(peak, rel=1e-12)
+
+
+@pytest.mark.parametrize("where, node", [("output", "V2.plate"), ("V1", "V1.plate"), ("V1.plate", "V1.plate")])
+def test_strays_at_the_output_and_at_stages_land_on_the_same_node_in_every_layer(where, node):
+    """``stray output`` and ``stray STAGE`` are accepted by the checks and by the
+    build alike (issue 13): the capacitor sits on the node they name."""
+    text = CG_FRONT.format(source="ideal cap 10u") + f"stray {where} 100p\n"
+    design, circuit, _ = load_text(text, "s.chain")
+    (cap,) = [c for c in circuit.capacitors if c.role == "stray capacitance"]
+    assert {cap.a, cap.b} == {node, "gnd"} and cap.farads == pytest.approx(100e-12)
+
+
+FIXED_BIAS = """\
+title "Kite fixed-bias test"
+supply HT 300V
+supply CBIAS {bias}
+stage V1 common-cathode 12AX7
+  plate 100k from HT
+input into V1 resistance 10k cap 100n
+network biasfeed
+  resistor leak V1.in -- CBIAS 1M
+output V1 load 1M
+"""
+
+
+def test_a_negative_supply_biases_a_grid_through_its_leak():
+    """Fixed bias (common practice): the grid sits at the bias supply's voltage
+    (no grid current flows at a negative grid, so the 1M leak drops nothing),
+    the cathode at 0 V; no grid-leak-bias warning for a stage without a leak line."""
+    design, circuit, warnings = load_text(FIXED_BIAS.format(bias="-2V"), "fb.chain")
+    assert not [w for w in warnings if w.code == "W210"]
+    a = analyze_design(design, circuit, warnings, headroom=False)
+    op = a.dc.points["V1"]
+    assert op.vg_v == pytest.approx(-2.0, abs=1e-3) and op.vk_v == pytest.approx(0.0, abs=1e-9)
+    assert 0.1e-3 < op.ip_a < 3e-3
+
+
+def test_a_bias_supply_out_of_range_is_refused():
+    with pytest.raises(LanguageError) as err:
+        parse_text(FIXED_BIAS.format(bias="-2000V"), "fb.chain")
+    assert any(d.code == "E302" and "bias supply" in d.message for d in err.value.diagnostics)
