@@ -1,7 +1,7 @@
 """Run the analysis steps in order and return one frozen :class:`Analysis`.
 
     netlist → Design → Circuit → DC solve (+ diagnostics) → linearise →
-    response over the band → stage table and overall figures → headroom
+    response over the band → stage table and overall figures → noise → headroom
 
 Nothing here formats or prints; :meth:`Analysis.table` and
 :meth:`Analysis.plot` are thin delegates to the report and plot layers.
@@ -36,6 +36,8 @@ from chain.smallsignal import (
     stage_table,
 )
 from chain.smallsignal.mna import check_size
+from chain.smallsignal.noise import NoiseResult
+from chain.smallsignal.noise import noise as run_noise
 from chain.smallsignal.table import no_signal_warnings
 
 __all__ = ["Analysis", "analyze", "analyze_design", "sweep_frequencies"]
@@ -67,6 +69,8 @@ class Analysis:
     stability: Stability | None = None
     #: sensitivity rankings of the overall gain, the corners and each stage's plate current
     sensitivity: tuple[Ranking, ...] = ()
+    #: output noise (:class:`chain.smallsignal.noise.NoiseResult`), or None when skipped
+    noise: NoiseResult | None = None
 
     @property
     def unstable(self) -> bool:
@@ -99,12 +103,12 @@ def sweep_frequencies(design: Design) -> np.ndarray:
 
 def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic, ...] = (), *,
                    headroom: bool = True, options: SolveOptions = SolveOptions(),
-                   level_v: float | None = None) -> Analysis:
+                   level_v: float | None = None, noise: bool = True) -> Analysis:
     """Analyse an already built design (see :func:`analyze`)."""
     if level_v is not None:
         design = replace(design, settings=replace(design.settings, level_v=level_v))
     try:
-        return _analyze_steps(design, circuit, warnings, headroom=headroom, options=options)
+        return _analyze_steps(design, circuit, warnings, headroom=headroom, options=options, noise=noise)
     except ChainError as exc:
         # give every message about a stage or part the netlist line it came from
         exc.diagnostics = locate(exc.diagnostics, circuit, design)
@@ -130,7 +134,7 @@ def locate(diagnostics, circuit: Circuit, design: Design) -> tuple[Diagnostic, .
 
 
 def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool,
-                   options: SolveOptions) -> Analysis:
+                   options: SolveOptions, noise: bool = True) -> Analysis:
     check_size(circuit, len(sweep_frequencies(design)))
     dc = solve(circuit, options)
     ss = linearize(circuit, dc)
@@ -147,6 +151,9 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
     from chain.smallsignal.sensitivity import rankings
 
     ranks = rankings(ss, dc, ref_hz=s.reference_hz, f_low_hz=total.f_low_hz, f_high_hz=total.f_high_hz)
+    hiss = None
+    if noise:
+        hiss = run_noise(ss, reference_hz=s.reference_hz, level_v=s.level_v)
     large = None
     if headroom:
         from chain.headroom import headroom as run_headroom
@@ -166,13 +173,14 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
         + locate(dynamics.diagnostics, circuit, design),
         netlist_sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
         options=options,
-        stability=dynamics,
+        stability=dynamics, noise=hiss,
         sensitivity=ranks,
     )
 
 
 def analyze(source: str | Path | Design, *, headroom: bool = True,
-            options: SolveOptions = SolveOptions(), level_v: float | None = None) -> Analysis:
+            options: SolveOptions = SolveOptions(), level_v: float | None = None,
+            noise: bool = True) -> Analysis:
     """Analyse a netlist.
 
     Parameters
@@ -185,6 +193,9 @@ def analyze(source: str | Path | Design, *, headroom: bool = True,
         Numeric settings of the DC solve.
     level_v
         Input level, volts peak, in place of the netlist's ``set level``.
+    noise
+        Also compute the output noise (one more frequency sweep; see
+        :mod:`chain.smallsignal.noise`).
 
     Raises
     ------
@@ -201,4 +212,5 @@ def analyze(source: str | Path | Design, *, headroom: bool = True,
         circuit = build(design)
     else:
         design, circuit, warnings = load(source)
-    return analyze_design(design, circuit, warnings, headroom=headroom, options=options, level_v=level_v)
+    return analyze_design(design, circuit, warnings, headroom=headroom, options=options, level_v=level_v,
+                          noise=noise)

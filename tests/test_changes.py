@@ -350,3 +350,21 @@ def test_a_tone_knob_shows_as_the_output_network_transfer():
     tone = [c for c in result.effects if c.kind == "coupling" and c.subject == "tone"]
     assert tone and tone[0].quantity == "transfer" and tone[0].new > tone[0].old
     assert not [c for c in result.effects if c.kind == "operating point"]
+
+
+# --------------------------------------------------------------------------- noise
+
+
+def test_a_larger_grid_stopper_shows_as_more_output_noise():
+    # a series resistor in front of the first grid adds its 4kTR to the input noise (Johnson–Nyquist):
+    # 100k in series with the 1k source raises the input noise density and so the output noise
+    quiet = analyse(netlist())
+    noisy = analyse(netlist().replace("  grid leak 1M\nstage V2", "  grid leak 1M stopper 100k\nstage V2", 1))
+    result = diff(quiet, noisy)
+    [change] = by(result, "noise", quantity="output noise")
+    assert change.relative > 10.0  # dB: 4kT·100k against about 4kT·3k of source, tube and load
+    [top] = by(result, "noise", quantity="largest contributor")
+    assert top.new == "V1 grid stopper"
+    # the same change read from the JSON reports
+    again = diff(json.loads(render(quiet, fmt="json")), json.loads(render(noisy, fmt="json")))
+    assert by(again, "noise") == by(result, "noise")

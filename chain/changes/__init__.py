@@ -19,16 +19,17 @@ What is compared
   tolerance: per stage the operating point (Vp, Vk, Ip, gm, rp, mu), the
   loaded gain, the coupling loss and the input and output impedance; the
   overall gain, the −3 dB corners, the input and output impedance; the
-  rails; the headroom (first-clip level); and the largest change of the
-  response over the band.
+  rails; the headroom (first-clip level); the output noise (unweighted and
+  A-weighted, in dB) and its largest contributor; and the largest change of
+  the response over the band.
 
 Size of an effect
 -----------------
 Effects are sorted by a common *size*, biggest first, chosen so that one
 unit means about the same across kinds:
 
-* gains, coupling losses, the overall gain, the response and headroom
-  levels: ``|Δ dB|`` (reported when above ``tol_db``);
+* gains, coupling losses, the overall gain, the response, headroom
+  levels and output noise: ``|Δ dB|`` (reported when above ``tol_db``);
 * corner frequencies: ``6 × |Δ octaves|`` — a corner moving one octave
   shifts a first-order skirt by 6 dB at a fixed frequency (reported when
   ``|Δf/f|`` is above ``tol_pct`` percent);

@@ -75,6 +75,8 @@ def _label(c: Change) -> str:
         return f"headroom {c.quantity}" if c.subject == "headroom" else f"{c.subject} {c.quantity}"
     if c.kind == "rail":
         return f"rail {c.subject} {c.quantity}"
+    if c.kind == "noise":
+        return c.quantity
     return f"{c.subject} {c.quantity}"
 
 

@@ -289,6 +289,27 @@ def _headroom_effects(da, db, mapping, tol_db) -> list[Change]:
     return [c for c in out if c is not None]
 
 
+def _noise_effects(da, db, tol_db) -> list[Change]:
+    """Output noise (unweighted and A-weighted, V rms, measured in dB) and the
+    largest contributor (by owner name and role)."""
+    na, nb = da.get("noise"), db.get("noise")
+    if na is None or nb is None:
+        return []
+    out = []
+    for key, quantity in (("output_rms_v", "output noise"), ("output_rms_a_v", "output noise, A-weighted")):
+        va, vb = na[key], nb[key]
+        if va is None or vb is None or va <= 0 or vb <= 0:
+            continue
+        d = 20.0 * math.log10(vb / va)
+        if abs(d) > tol_db:
+            out.append(Change("noise", "noise", quantity, "V", va, vb, num(vb - va), num(d), "dB", num(abs(d))))
+    top_a = na["contributors"][0]["label"] if na["contributors"] else None
+    top_b = nb["contributors"][0]["label"] if nb["contributors"] else None
+    if top_a != top_b:
+        out.append(Change("noise", "noise", "largest contributor", "", top_a, top_b, size=APPEAR_SIZE))
+    return out
+
+
 _KEY_UNITS = (("_hz", "Hz"), ("_v", "V"), ("_a", "A"), ("_s", "S"), ("_ohm", "ohm"), ("_w", "W"), ("_f", "F"))
 
 
@@ -359,6 +380,7 @@ def diff(a, b, *, tol_db: float = 0.05, tol_pct: float = 0.5) -> DiffResult:
     effects += _output_coupling_effects(da, db, tol_db)
     effects += _rail_effects(da, db, tol_pct)
     effects += _headroom_effects(da, db, mapping, tol_db)
+    effects += _noise_effects(da, db, tol_db)
     resp = _response_effect(da, db, tol_db)
     if resp is not None:
         effects.append(resp)

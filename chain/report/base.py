@@ -19,9 +19,9 @@ __all__ = ["SECTIONS", "Renderer", "check_sections", "clipped_stages", "spot_fre
            "pd_rating", "triode_tubes", "corner_reference", "past_clip", "shape_lines"]
 
 #: every section, in report order: what a technician reads first (the stage
-#: table, the whole chain, the response, headroom, diagnostics), then the
+#: table, the whole chain, the response, headroom, noise, diagnostics), then the
 #: details, then the analysis settings and the parts list
-SECTIONS = ("header", "safety", "stages", "overall", "response", "stability", "sensitivity", "headroom",
+SECTIONS = ("header", "safety", "stages", "overall", "response", "stability", "sensitivity", "headroom", "noise",
             "diagnostics", "stage_details", "rails", "capacitors", "settings", "parts")
 
 
@@ -83,6 +83,9 @@ class Renderer:
         raise NotImplementedError
 
     def response(self, data: dict[str, Any]) -> list[str]:
+        raise NotImplementedError
+
+    def noise(self, data: dict[str, Any]) -> list[str]:
         raise NotImplementedError
 
     def rails(self, data: dict[str, Any]) -> list[str]:

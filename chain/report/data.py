@@ -274,12 +274,13 @@ def report_data(analysis) -> dict[str, Any]:
         Keys, in order: ``schema``, ``tool``, ``netlist``, ``settings``,
         ``solve_options``, ``dc_solve``, ``safety``, ``parts``,
         ``operating_points``, ``rails``, ``capacitors``, ``stages``,
-        ``couplings``, ``overall``, ``response``, ``headroom``, ``diagnostics``, ``stability``; see
+        ``couplings``, ``overall``, ``response``, ``headroom``, ``noise``, ``diagnostics``, ``stability``; see
         ``docs/report-format.md``.  Only plain ``dict``, ``list``, ``str``,
         ``int``, ``float``, ``bool`` and ``None`` values.
     """
     from chain.report.dynamics import sensitivity_data, stability_data
     from chain.report.headroom import headroom_data
+    from chain.report.noise import noise_data
 
     design = analysis.design
     f, mag_db, phase = _response_arrays(analysis)
@@ -300,6 +301,7 @@ def report_data(analysis) -> dict[str, Any]:
         "overall": _overall(analysis),
         "response": _response(analysis, f, mag_db, phase),
         "headroom": headroom_data(analysis.headroom),
+        "noise": noise_data(getattr(analysis, "noise", None)),
         "diagnostics": _diagnostics(analysis.diagnostics),
         "stability": stability_data(analysis.stability),
         "sensitivity": sensitivity_data(analysis.sensitivity),

@@ -25,6 +25,7 @@ SECTION_KEYS = {
     "stability": ("stability",),
     "sensitivity": ("sensitivity",),
     "headroom": ("headroom",),
+    "noise": ("noise",),
     "diagnostics": ("diagnostics",),
     "stage_details": ("operating_points",),
     "rails": ("rails",),
@@ -95,6 +96,9 @@ class JsonRenderer:
 
     def headroom(self, data):
         return self._pick(data, "headroom")
+
+    def noise(self, data):
+        return {"noise": data.get("noise")}
 
     def diagnostics(self, data):
         return self._pick(data, "diagnostics")

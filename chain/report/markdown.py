@@ -200,6 +200,13 @@ class MarkdownRenderer(Renderer):
 
         return sensitivity_markdown(data)
 
+    def noise(self, data: dict[str, Any]) -> list[str]:
+        from chain.report.noise import markdown_lines
+
+        if data.get("noise") is None:
+            return []
+        return ["## Noise at the output", ""] + markdown_lines(data["noise"])
+
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         if not data["diagnostics"]:
             return ["## Diagnostics", "", "none"]

@@ -317,6 +317,14 @@ class TextRenderer(Renderer):
 
         return sensitivity_text(data)
 
+    def noise(self, data: dict[str, Any]) -> list[str]:
+        from chain.report.noise import text_lines
+
+        n = data.get("noise")
+        if n is None:
+            return []
+        return _title("Noise at the output") + text_lines(n, _kv)
+
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         lines = _title("Diagnostics")
         if not data["diagnostics"]:

@@ -17,7 +17,7 @@ DEMOS = tuple(sorted(p.stem for p in (ROOT / "netlists").glob("*.chain")))
 
 #: the documented top-level keys, in order (docs/report-format.md)
 TOP_KEYS = ["schema", "tool", "netlist", "settings", "solve_options", "dc_solve", "safety", "parts",
-            "operating_points", "rails", "capacitors", "stages", "couplings", "overall", "response", "headroom",
+            "operating_points", "rails", "capacitors", "stages", "couplings", "overall", "response", "headroom", "noise",
             "diagnostics", "stability", "sensitivity"]
 
 #: relative agreement of a number after the 12-significant-digit rounding of the document
