@@ -184,6 +184,25 @@ def _parser() -> argparse.ArgumentParser:
                     help="analyse one netlist with one part set to each value in turn, e.g. "
                          "V1.Ck=680n,2u2,22u or tone.treble=2,5,8 (a pot takes knob settings 0-10)")
     cm.add_argument("--plot", metavar="PATH", help="overlay all responses, .png or .svg")
+
+    sp = sub.add_parser("spread", help="many builds at once: part and tube tolerances, worst cases, what-ifs",
+                        description="Monte Carlo over the part and tube tolerances (the netlist's 'tolerance' "
+                                    "lines, else common-practice defaults): per stage the spread of the bias "
+                                    "point, dissipation, gain and output impedance, the response band, and "
+                                    "the builds that break a rating; worst-case corners beside the percentiles.")
+    sp.add_argument("file", metavar="FILE")
+    sp.add_argument("--samples", "-n", type=int, default=1000, metavar="N", help="builds drawn (default 1000)")
+    sp.add_argument("--seed", type=int, default=1, help="random seed (default 1): the same seed, the same builds")
+    sp.add_argument("--what-if", action="append", default=[], metavar="NAME=DEV",
+                    help="hold a stage's tube or a part at a deviation in every build and show that build "
+                         "alone beside the nominal one, e.g. V2=-25%% (a tube drawing 25%% less current); "
+                         "may be repeated")
+    sp.add_argument("--tolerance", action="append", default=[], metavar="WHAT=TOL",
+                    help="override a 'tolerance' line: a kind (resistors, pots, capacitors, electrolytics, "
+                         "inductors, tubes), a stage's tube or a part, e.g. resistors=1%% or V1.Ck=-20%%+50%%")
+    sp.add_argument("--format", choices=("text", "markdown", "json"), default="text")
+    sp.add_argument("--output", metavar="PATH", help="write the report here instead of standard output")
+    sp.add_argument("--plot", metavar="PATH", help="draw the response band (5-95 %% of the builds) to PATH")
     return p
 
 
@@ -867,10 +886,79 @@ def _write_fitted_netlist(path: str, out: str, line: str, like: str, name: str) 
     print(f"wrote {out} ({switched} stage(s) switched from {like} to {name}); next: chain report {out}")
 
 
+def _cmd_spread(args) -> int:
+    from dataclasses import replace
+
+    from chain.analysis import sweep_frequencies
+    from chain.build import load
+    from chain.dc import solve
+    from chain.language.design import ToleranceDef, parse_tolerance
+    from chain.report.jsonfmt import dumps
+    from chain.report.spread import render_spread, spread_data
+    from chain.spread import from_design, spread
+    from chain.errors import Span
+
+    if not 1 <= args.samples <= 100000:
+        raise UsageError(f"--samples {args.samples}: give 1 to 100000 builds")
+    plot_path = _figure_path(args.plot, args) if args.plot else None
+    if args.output:
+        _writable(args.output, args)
+    fixed = {}
+    for spec in args.what_if:
+        name, sep, dev = spec.partition("=")
+        if not sep or not name:
+            raise UsageError(f"--what-if {spec}: write NAME=DEVIATION, e.g. V2=-25%")
+        try:
+            fixed[name] = _deviation(dev)
+        except ValueError:
+            raise UsageError(f"--what-if {spec}: the deviation must be a percentage above -100%, "
+                             f"e.g. -25% or +10%") from None
+    overrides = []
+    for spec in args.tolerance:
+        what, sep, tol = spec.partition("=")
+        if not sep or not what:
+            raise UsageError(f"--tolerance {spec}: write WHAT=TOLERANCE, e.g. resistors=1%")
+        low, high = parse_tolerance(tol, Span("--tolerance", 1, len(what) + 2, spec))
+        tube_type = what.lower().startswith("tube:")
+        overrides.append(ToleranceDef(what[5:] if tube_type else what, low, high, tube_type,
+                                      Span("--tolerance", 1, 1, spec)))
+    design, circuit, _ = load(args.file)
+    by_kind, by_part = from_design(replace(design, tolerances=design.tolerances + tuple(overrides)), circuit)
+    dc = solve(circuit)
+    try:
+        result = spread(circuit, dc, f_hz=sweep_frequencies(design), reference_hz=design.settings.reference_hz,
+                        samples=args.samples, seed=args.seed, by_kind=by_kind, by_part=by_part, fixed=fixed)
+    except KeyError as exc:
+        raise UsageError(f"--what-if: {exc.args[0]!r} is neither a stage nor a varied part "
+                         f"(parts are named as in the report's parts list)") from None
+    data = spread_data(result, path=design.path, title=design.title)
+    text = dumps(data) if args.format == "json" else render_spread(data, fmt_name=args.format)
+    figure = None
+    if plot_path:
+        from chain.plot.spread import envelope
+
+        figure = envelope(data, title=design.title).figure
+    _emit(text.rstrip("\n"), args.output)
+    if figure is not None:
+        _save_figure(figure, plot_path)
+        print(f"wrote {plot_path}")
+    return 0
+
+
+def _deviation(text: str) -> float:
+    """``-25%`` → -0.25 (above -100 %)."""
+    body = text.strip()
+    value = float(body[:-1]) / 100.0 if body.endswith("%") else float(body)
+    if not (value > -1.0 and value < 10.0):
+        raise ValueError(text)
+    return value
+
+
 _COMMANDS = {
     "fit": _cmd_fit,
     "transfer": _cmd_transfer,
     "drive": _cmd_drive,
+    "spread": _cmd_spread,
     "formulas": _cmd_formulas,
     "headroom": _cmd_headroom,
     "check": _cmd_check,

@@ -20,7 +20,7 @@ RANKS = {
     "smallsignal": 6,
     "formulas": 7, "headroom": 7,
     "transient": 7.5,
-    "analysis": 8,
+    "analysis": 8, "spread": 8,
     "report": 9, "plot": 9,
     "changes": 10,
     "cli": 11, "__main__": 12,

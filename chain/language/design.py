@@ -18,6 +18,8 @@ __all__ = [
     "ANALYSED_KINDS",
     "TERMINALS",
     "Settings",
+    "ToleranceDef",
+    "parse_tolerance",
     "Supply",
     "Rail",
     "TubeDef",
@@ -299,6 +301,41 @@ class Output:
 
 
 @dataclass(frozen=True, slots=True)
+class ToleranceDef:
+    """A ``tolerance`` line: relative deviations ``low <= 0 <= high`` allowed for
+    ``target`` — a kind (``resistors``, ``pots``, ``capacitors``,
+    ``electrolytics``, ``inductors``, ``tubes``), a part or a stage's tube, or,
+    with ``tube_type``, every tube of that type."""
+
+    target: str
+    low: float
+    high: float
+    tube_type: bool = False
+    span: Span = _span()
+
+
+def parse_tolerance(text: str, span: Span) -> tuple[float, float]:
+    """``5%`` → (−0.05, +0.05); ``-20%+50%`` → (−0.20, +0.50); a plain
+    fraction (``0.05``) is read as such.  Raises a located E950 otherwise."""
+    import re
+
+    from chain.errors import LanguageError, error
+
+    m = re.fullmatch(r"([+-]?\d+(?:\.\d+)?)(%?)(?:([+-]\d+(?:\.\d+)?)(%?))?", text)
+    if m is not None:
+        first = float(m.group(1)) / (100.0 if m.group(2) else 1.0)
+        if m.group(3) is None:
+            if not m.group(1).startswith(("+", "-")) and 0.0 <= first < 1.0:
+                return -first, first
+        else:
+            second = float(m.group(3)) / (100.0 if m.group(4) else 1.0)
+            if -1.0 < first <= 0.0 <= second:
+                return first, second
+    raise LanguageError([error("E950", f"bad tolerance '{text}'", span,
+                               "write a percentage below 100 such as 5%, or a band such as -20%+50%")])
+
+
+@dataclass(frozen=True, slots=True)
 class Stray:
     """Stray capacitance from a node to ground."""
 
@@ -322,6 +359,8 @@ class Design:
     source: Source | None = None
     output: Output | None = None
     strays: tuple[Stray, ...] = ()
+    #: part and tube tolerances for ``chain spread``, in netlist order
+    tolerances: tuple[ToleranceDef, ...] = ()
     #: the file it came from ("<string>" for text)
     path: str = field(default="<string>", compare=False)
     #: the lines of the text, for error display

@@ -22,6 +22,8 @@ from pathlib import Path
 
 from chain.errors import Diagnostic, LanguageError, Span, error
 from chain.language.design import (
+    ToleranceDef,
+    parse_tolerance,
     Cathode,
     Coupling,
     Design,
@@ -45,7 +47,8 @@ __all__ = ["parse_text", "parse_file", "parse_syntax"]
 
 #: statements allowed at the top level, and inside each kind of block
 TOP_LEVEL = {"title", "set_reference", "set_band", "set_level", "set_points", "set_heater", "supply",
-             "rail", "tube", "stage", "network", "couple", "input", "output", "stray"}
+             "rail", "tube", "stage", "network", "couple", "input", "output", "stray", "tolerance",
+             "tolerance_tube"}
 STAGE_MEMBERS = {"plate_load", "plate_on", "cathode", "grid", "heater", "second"}
 NETWORK_MEMBERS = {"part", "pot", "rheostat", "pot_unlabelled"}
 
@@ -410,6 +413,7 @@ class _Builder:
         self.sources: list[Source] = []
         self.outputs: list[Output] = []
         self.strays: list[Stray] = []
+        self.tolerances: list[ToleranceDef] = []
         #: the open block: ("stage", dict) or ("network", dict) or None
         self.block: tuple[str, dict] | None = None
 
@@ -613,6 +617,17 @@ class _Builder:
     def _stray(self, tree, span):
         node, val = tree.children
         self.strays.append(Stray(str(node), self.value(val, span, "F", "stray capacitance"), self.at(node, span)))
+
+    def _tolerance(self, tree, span, tube_type: bool = False):
+        target, val = tree.children
+        try:
+            low, high = parse_tolerance(str(val.children[0]), self.at(val.children[0], span))
+        except LanguageError as exc:
+            raise _LineErrors(list(exc.diagnostics)) from None
+        self.tolerances.append(ToleranceDef(str(target), low, high, tube_type, self.at(target, span)))
+
+    def _tolerance_tube(self, tree, span):
+        self._tolerance(tree, span, tube_type=True)
 
     # -- stage members --------------------------------------------------------
     #: while a ``second …`` line is read: the prefix of its member keys
@@ -829,6 +844,7 @@ class _Builder:
             source=self.sources[0] if self.sources else None,
             output=outputs[0] if outputs else None,
             strays=strays,
+            tolerances=tuple(self.tolerances),
             path=self.source,
             lines=self.lines,
         )

@@ -146,6 +146,10 @@ def format_design(d: Design) -> str:
         out.append(f"output{node} load {_r(d.output.load_ohm)}{more}")
     for st in d.strays:
         out.append(f"stray {st.node} {_c(st.farads)}")
+    for t in d.tolerances:
+        lo, hi = round(100 * t.low, 9), round(100 * t.high, 9)
+        band = f"{_n(hi)}%" if lo == -hi else f"{_n(lo)}%+{_n(hi)}%"
+        out.append(f"tolerance {'tube ' if t.tube_type else ''}{t.target} {band}")
     return "\n".join(out) + "\n"
 
 

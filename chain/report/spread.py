@@ -1,0 +1,179 @@
+"""The spread report: :class:`chain.spread.SpreadResult` as data (``chain-spread/1``)
+and as text or Markdown.
+
+Numbers are SI (V, A, W, ohm, Hz; gains in dB); deviations are fractions
+(``-0.25`` is 25 % low).  Layout: ``docs/report-format.md`` (Spread).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from chain.about import SAFETY
+import chain.report.fmt as fmt
+from chain.report.values import num
+
+__all__ = ["SPREAD_SCHEMA", "spread_data", "render_spread", "FIGURES"]
+
+SPREAD_SCHEMA = "chain-spread/1"
+
+#: figure key → (label, unit) in report order
+FIGURES = {"vp_v": ("Vp", "V"), "vk_v": ("Vk", "V"), "vgk_v": ("Vgk (bias)", "V"), "ip_a": ("Ip", "A"),
+           "pd_w": ("Pd", "W"), "gain_db": ("gain", "dB"), "zout_ohm": ("|Zout|", "ohm")}
+
+
+def _p(p) -> dict[str, Any]:
+    return {"nominal": num(p.nominal), "median": num(p.median), "p5": num(p.p5), "p95": num(p.p95),
+            "corner_low": num(p.corner_low), "corner_high": num(p.corner_high)}
+
+
+def spread_data(result, *, path: str = "", title: str = "") -> dict[str, Any]:
+    """The JSON-ready document of a spread analysis."""
+    r = result
+    env = np.asarray(r.envelope_db)
+    return {
+        "schema": SPREAD_SCHEMA,
+        "netlist": {"path": path, "title": title},
+        "safety": SAFETY,
+        "samples": int(r.samples), "seed": int(r.seed), "reference_hz": num(r.reference_hz),
+        "distribution": "uniform within each tolerance band",
+        "groups": [{"label": g.label, "kind": g.kind, "parts": list(g.names), "low": num(g.tolerance.low),
+                    "high": num(g.tolerance.high)} for g in r.groups],
+        "fixed": {k: num(v) for k, v in r.fixed.items()},
+        "nominal": {s: {k: num(v) for k, v in figs.items()} for s, figs in r.nominal.items()},
+        "what_if": None if r.what_if is None else
+        {s: {k: num(v) for k, v in figs.items()} for s, figs in r.what_if.items()},
+        "stages": [{"stage": s.stage, "figures": {k: _p(v) for k, v in s.figures.items()}} for s in r.stages],
+        "overall_gain_db": _p(r.overall_gain_db),
+        "response": {"f_hz": [num(x) for x in r.f_hz], "p5_db": [num(x) for x in env[0]],
+                     "median_db": [num(x) for x in env[1]], "p95_db": [num(x) for x in env[2]],
+                     "nominal_db": [num(x) for x in r.nominal_db]},
+        "checks": [{"subject": b.subject, "check": b.check, "fraction": num(b.fraction),
+                    "draws": [{"sample": i, "deviations": [{"group": lab, "deviation": num(d)} for lab, d in devs]}
+                              for i, devs in b.draws]} for b in r.breaks],
+        "unconverged": int(r.unconverged), "resolved": int(r.resolved),
+    }
+
+
+def _val(v, unit: str) -> str:
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return fmt.NONE
+    if unit == "dB":
+        return f"{v:.2f} dB"
+    return fmt.si(v, {"ohm": "Ω"}.get(unit, unit))
+
+
+def _dev(d: float) -> str:
+    return f"{100 * d:+.1f} %"
+
+
+def _groups_line(data) -> str:
+    by_kind: dict[str, set] = {}
+    for g in data["groups"]:
+        lo, hi = g["low"], g["high"]
+        band = f"±{100 * hi:g} %" if lo == -hi else f"{100 * lo:+g}/{100 * hi:+g} %"
+        by_kind.setdefault(g["kind"], set()).add(band)
+    return "; ".join(f"{k} {', '.join(sorted(v))}" for k, v in by_kind.items())
+
+
+def render_spread(data: dict[str, Any], *, fmt_name: str = "text") -> str:
+    """The spread document as text or Markdown (JSON: :func:`chain.report.jsonfmt.dumps`)."""
+    md = fmt_name == "markdown"
+    lines: list[str] = []
+
+    def title(text: str, level: int = 2) -> None:
+        if lines:
+            lines.append("")
+        if md:
+            lines.extend(["#" * level + " " + text, ""])
+        else:
+            lines.extend([text, ("=" if level == 1 else "-") * len(text)])
+
+    def kv(label: str, value: str) -> None:
+        lines.append(f"- {label}: {value}" if md else f"{label:<32} {value}".rstrip())
+
+    def table(head: list[str], rows: list[list[str]], widths: list[int]) -> None:
+        if md:
+            def cells(r):
+                return "| " + " | ".join(c.replace("|", "\\|") for c in r) + " |"
+            lines.append(cells(head))
+            lines.append("| " + " | ".join(["---", "---"] + ["---:"] * (len(head) - 2)) + " |")
+            lines.extend(cells(r) for r in rows)
+        else:
+            def row(cells):
+                return "  ".join(c.ljust(w) if i < 2 else c.rjust(w) for i, (c, w) in enumerate(zip(cells, widths)))
+            lines.append(row(head).rstrip())
+            lines.extend(row(r).rstrip() for r in rows)
+
+    title(f"chain spread: {data['netlist']['title'] or data['netlist']['path']}", 1)
+    lines.append(data["safety"])
+    ref = fmt.si(data["reference_hz"], "Hz")
+    kv("samples", f"{data['samples']} builds (seed {data['seed']}), {len(data['groups'])} parts and tubes "
+                  f"varied, {data['distribution']}")
+    kv("tolerances", _groups_line(data))
+    if data["fixed"]:
+        kv("held in every sample", ", ".join(f"{k} at {_dev(v)}" for k, v in data["fixed"].items()))
+
+    if data["what_if"] is not None:
+        held = ", ".join(f"{k} at {_dev(v)}" for k, v in data["fixed"].items())
+        title(f"What if: {held}, every other part nominal (at {ref})")
+        rows = []
+        for stage, figs in data["what_if"].items():
+            if stage == "overall":
+                continue
+            for key, (label, unit) in FIGURES.items():
+                a, b = data["nominal"][stage].get(key), figs.get(key)
+                change = ""
+                if a is not None and b is not None and unit != "dB" and a != 0:
+                    change = f"{100 * (b / a - 1):+.1f} %"
+                elif a is not None and b is not None:
+                    change = f"{b - a:+.2f} dB"
+                rows.append([stage, label, _val(a, unit), _val(b, unit), change])
+        g = data["what_if"]["overall"]["overall_gain_db"]
+        g0 = data["nominal"]["overall"]["overall_gain_db"]
+        rows.append(["overall", "gain", _val(g0, "dB"), _val(g, "dB"), f"{g - g0:+.2f} dB"])
+        table(["stage", "figure", "nominal", "what if", "change"], rows, [7, 11, 11, 11, 10])
+
+    title(f"Stage spread at {ref}: 5 %, median, 95 % of the builds; worst-case corners")
+    rows = []
+    for s in data["stages"]:
+        for key, (label, unit) in FIGURES.items():
+            p = s["figures"].get(key)
+            if p is None:
+                continue
+            rows.append([s["stage"], label, _val(p["nominal"], unit), _val(p["p5"], unit), _val(p["median"], unit),
+                         _val(p["p95"], unit), _val(p["corner_low"], unit), _val(p["corner_high"], unit)])
+    p = data["overall_gain_db"]
+    rows.append(["overall", "gain", _val(p["nominal"], "dB"), _val(p["p5"], "dB"), _val(p["median"], "dB"),
+                 _val(p["p95"], "dB"), _val(p["corner_low"], "dB"), _val(p["corner_high"], "dB")])
+    table(["stage", "figure", "nominal", "5 %", "median", "95 %", "corner low", "corner high"], rows,
+          [7, 11, 11, 11, 11, 11, 11, 11])
+    note = ("(corners: every part at the end of its band that moves the figure down or up, by the sign of "
+            "its sensitivity; first-order, so a good estimate of the extremes, not a bound)")
+    lines.extend([note] if not md else ["", f"_{note}_"])
+
+    from chain.report.base import spot_frequencies
+
+    r = data["response"]
+    f = np.asarray(r["f_hz"], dtype=float)
+    title("Response spread: source EMF to the output")
+    for fs in spot_frequencies(f[0], f[-1]):
+        vals = [float(np.interp(np.log(fs), np.log(f), np.asarray(r[k], dtype=float)))
+                for k in ("p5_db", "median_db", "p95_db", "nominal_db")]
+        kv(f"response at {fmt.si(fs, 'Hz')}", f"median {vals[1]:.2f} dB, 5–95 %: {vals[0]:.2f} to "
+                                              f"{vals[2]:.2f} dB (nominal {vals[3]:.2f} dB)")
+
+    title("Ratings and bias checks broken in some builds")
+    if not data["checks"]:
+        lines.append("none: every build stays inside every rating and biases without cutoff or grid current")
+    for c in data["checks"]:
+        kv(f"{c['subject']}: {c['check']}", f"{100 * c['fraction']:.1f} % of the builds")
+        for d in c["draws"][:3]:
+            devs = ", ".join(f"{x['group']} {_dev(x['deviation'])}" for x in d["deviations"])
+            lines.append(f"    e.g. build {d['sample']}: {devs}")
+    if data["unconverged"]:
+        lines.append(f"{data['unconverged']} builds whose DC solve did not converge are left out of the numbers")
+    return "\n".join(lines) + "\n"
