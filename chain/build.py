@@ -29,7 +29,6 @@ from chain.circuit import (
     Role,
     StageRecord,
     Triode,
-    Unions,
     VoltageSource,
 )
 from chain.errors import Diagnostic, LanguageError, Span, error

@@ -28,6 +28,7 @@ from chain.changes.common import (
 from chain.report.data import OWNER_KINDS
 from chain.report.values import num
 from chain.smallsignal.resample import on_log_grid
+from chain.decibels import db
 
 # --------------------------------------------------------------------------- parts
 
@@ -264,7 +265,7 @@ def _level_change(subject, quantity, va, vb, tol_db) -> Change | None:
             return None
         return Change("headroom", subject, quantity, "V", va, vb, size=APPEAR_SIZE,
                       note="appeared" if va is None else "vanished")
-    d = 20.0 * math.log10(vb / va)
+    d = db(vb / va)
     if abs(d) <= tol_db:
         return None
     return Change("headroom", subject, quantity, "V", va, vb, num(vb - va), num(d), "dB", num(abs(d)))

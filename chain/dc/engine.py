@@ -48,7 +48,7 @@ Solving
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Mapping, cast
 
 import logging

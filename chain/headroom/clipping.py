@@ -48,6 +48,7 @@ from chain.headroom.curves import DEFAULT_CUTOFF_FRACTION, TransferCurves, build
 from chain.headroom.distortion import Distortion, distortion_in, level_for_thd, thd_versus_level
 from chain.headroom.network import MidBandNetwork
 from chain.units import format_si
+from chain.decibels import db as ratio_db
 
 __all__ = [
     "GRID_CONDUCTION",
@@ -87,7 +88,7 @@ LIMITS = (
 
 def dbv(peak_v: float) -> float:
     """Level of a sine with this peak (V) in dBV of its rms value: ``20·log10(peak/√2)``."""
-    return 20.0 * math.log10(peak_v / math.sqrt(2.0)) if peak_v > 0.0 else -math.inf
+    return ratio_db(peak_v / math.sqrt(2.0)) if peak_v > 0.0 else -math.inf
 
 
 @dataclass(frozen=True, slots=True)
@@ -546,7 +547,7 @@ def _stage_headroom(net: MidBandNetwork, curves: TransferCurves, stage: StageRec
     if not found:
         margin = math.inf
     else:
-        margin = 20.0 * math.log10(min(found) / level_v) if min(found) > 0.0 else -math.inf
+        margin = ratio_db(min(found) / level_v) if min(found) > 0.0 else -math.inf
     outputs = []
     for port, node in stage.outputs.items():
         (hi_p, lo_p), (hi_n, lo_n) = reach_p[port], reach_n[port]

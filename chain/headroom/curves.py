@@ -24,6 +24,7 @@ from chain.circuit import Circuit, StageRecord
 from chain.dc import DcSolution, SolveOptions
 from chain.errors import DcConvergenceError
 from chain.headroom.network import CapacitorTreatment, MidBandNetwork, mid_band_capacitors
+from chain.decibels import db
 
 __all__ = ["TransferCurves", "transfer_curves", "build_network", "DEFAULT_CUTOFF_FRACTION"]
 
@@ -167,7 +168,7 @@ def _sweep_side(net: MidBandNetwork, sign: float, *, start_v: float, ratio: floa
         if limit_at is None and any(_limited(net, x, t, cutoff_fraction) for t in first):
             limit_at = magnitude
         if limit_at is not None and magnitude >= overdrive * limit_at:
-            why = (f"stage {circuit.stages[0].name} driven {20 * np.log10(overdrive):.0f} dB past its "
+            why = (f"stage {circuit.stages[0].name} driven {db(overdrive):.0f} dB past its "
                    f"clipping point")
             break
         if magnitude >= max_input_v:

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
+from chain.decibels import db_array
 
 __all__ = ["BodePlot", "ImpedancePlot", "BalancePlot", "bode", "impedance", "balance", "PALETTE"]
 
@@ -100,7 +101,7 @@ def bode(response, *, nodes: Sequence[str] | None = None,
     for k, node in enumerate(wanted):
         h = np.asarray(response.h[node])
         with np.errstate(divide="ignore"):
-            mag_db = 20.0 * np.log10(np.abs(h))
+            mag_db = db_array(h)
         phase_deg = np.degrees(np.unwrap(np.angle(h)))
         if node == circuit.output_node:
             # the chain's output: first colour, solid, heavier
@@ -300,7 +301,7 @@ def balance(response, stages, *, title: str = "") -> BalancePlot:
         label = f"{st.name}: {second} against {first}"
         style = dict(color=PALETTE[k % len(PALETTE)], linestyle=DASHES[k % len(DASHES)], linewidth=1.8)
         with np.errstate(divide="ignore", invalid="ignore"):
-            lines.append(mag_ax.semilogx(f, 20.0 * np.log10(np.abs(ratio)), label=label, **style)[0])
+            lines.append(mag_ax.semilogx(f, db_array(ratio), label=label, **style)[0])
         phase_lines.append(ph_ax.semilogx(f, np.degrees(np.angle(ratio)) % 360.0, label=label, **style)[0])
         names.append(st.name)
     for a, ideal in ((mag_ax, 0.0), (ph_ax, 180.0)):

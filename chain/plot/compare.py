@@ -19,6 +19,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from chain.plot.bode import DASHES, PALETTE
+from chain.decibels import db_array
 
 __all__ = ["Curve", "OverlayPlot", "curve", "difference_db", "overlay"]
 
@@ -93,7 +94,7 @@ def curve(source, label: str = "") -> Curve:
     if isinstance(source, Response):
         h = np.asarray(source.output)
         with np.errstate(divide="ignore"):
-            mag = 20.0 * np.log10(np.abs(h))
+            mag = db_array(h)
         mag[~np.isfinite(mag)] = np.nan
         return Curve(np.asarray(source.f_hz, dtype=float), mag, np.degrees(np.unwrap(np.angle(h))), label)
     raise TypeError(f"cannot read a response from {type(source).__name__}")

@@ -10,6 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from chain.decibels import db_array
 
 __all__ = ["LoopPlot", "loop_plot"]
 
@@ -40,7 +41,7 @@ def loop_plot(loop, *, title: str = "") -> LoopPlot:
     mag_ax, ph_ax = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2))
     f = np.asarray(loop.f_hz)
     with np.errstate(divide="ignore"):
-        db = 20.0 * np.log10(np.abs(loop.t))
+        db = db_array(loop.t)
     (m_line,) = mag_ax.semilogx(f, db, color=TRACE, linewidth=2.0, label="|T|, loop gain")
     (p_line,) = ph_ax.semilogx(f, loop.phase_deg, color=TRACE, linewidth=2.0)
     mag_ax.axhline(0.0, color=LIMIT, linewidth=1.0, linestyle=(0, (6, 2)))

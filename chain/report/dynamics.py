@@ -8,7 +8,7 @@ frequencies ``s/2π`` in Hz.
 
 from __future__ import annotations
 
-import math
+from chain.decibels import db
 from typing import Any
 
 import chain.report.fmt as fmt
@@ -45,7 +45,7 @@ def stability_data(st) -> dict[str, Any] | None:
         loops.append({
             "network": lg.path.name, "stages": list(lg.path.stages), "cut_at": lg.node,
             "negative_feedback": bool(lg.negative),
-            "mid_band_db": _num(20.0 * math.log10(abs(lg.t_mid))) if abs(lg.t_mid) > 0 else None,
+            "mid_band_db": _num(db(lg.t_mid)) if abs(lg.t_mid) > 0 else None,
             "phase_margin_deg": _num(pm_at[1]), "crossover_hz": _num(pm_at[0]),
             "gain_margin_db": _num(gm_at[1]), "phase_crossover_hz": _num(gm_at[0]),
             "crossovers": [{"f_hz": _num(f), "phase_margin_deg": _num(pm)} for f, pm in lg.crossovers],

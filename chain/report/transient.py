@@ -9,6 +9,7 @@ import math
 from typing import Sequence
 
 from chain.units import format_si
+from chain.decibels import db
 
 __all__ = ["distortion_text", "clip_text", "burst_text", "sag_text", "render_text"]
 
@@ -42,7 +43,7 @@ def clip_text(rows: Sequence[tuple], quasi_static: tuple | None) -> str:
         line = (f"time domain at {format_si(cp.f_hz, 'Hz'):>8}: {format_si(cp.level_v, 'V')} peak — {cp.stage}, "
                 f"{cp.mechanism}")
         if quasi_static is not None and quasi_static[0] > 0:
-            line += f" ({20 * math.log10(cp.level_v / quasi_static[0]):+.1f} dB vs quasi-static)"
+            line += f" ({db(cp.level_v / quasi_static[0]):+.1f} dB vs quasi-static)"
         out.append(line)
     out.append(f"(levels found to within {100 * rows[0].rel_tol:.2g} %)" if rows else "")
     return "\n".join(out).rstrip() + "\n"

@@ -10,6 +10,7 @@ from numpy.typing import ArrayLike
 
 from chain.rootfind import brent
 from chain.smallsignal.response import Response, transfer_function
+from chain.decibels import db
 
 __all__ = ["corners", "response_corners"]
 
@@ -95,7 +96,7 @@ def _crossing(f0: float, f1: float, m0: float, m1: float, target: float,
               evaluate: Callable[[float], complex] | None) -> float:
     """Frequency (Hz) in [f0, f1] where |H| crosses ``target``."""
     x0, x1 = math.log10(f0), math.log10(f1)
-    d0, d1, dt = (20.0 * math.log10(max(v, 1e-300)) for v in (m0, m1, target))
+    d0, d1, dt = (db(max(v, 1e-300)) for v in (m0, m1, target))
     x = x0 if d1 == d0 else x0 + (dt - d0) * (x1 - x0) / (d1 - d0)
     if evaluate is None:
         return 10.0 ** x

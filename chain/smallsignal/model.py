@@ -49,7 +49,6 @@ from chain.circuit import (
     Element,
     Inductor,
     Resistor,
-    Role,
     Transconductance,
     VoltageSource,
 )

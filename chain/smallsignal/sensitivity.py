@@ -48,6 +48,7 @@ import numpy as np
 
 from chain.smallsignal.mna import DirectSolver, Mna, Stamp, assemble
 from chain.smallsignal.model import SmallSignalCircuit
+from chain.decibels import db
 
 __all__ = ["Ranking", "gain_sensitivity", "corner_sensitivity", "bias_sensitivity", "rankings", "SHOWN"]
 
@@ -201,7 +202,7 @@ def rankings(ss: SmallSignalCircuit, dc, *, ref_hz: float, f_low_hz: float | Non
     if k >= 0:
         g = gain_sensitivity(mna, k, ref_hz, parts)
         h_ref = abs(_adjoint(mna, k, ref_hz)[3])
-        gain_db = 20.0 * math.log10(h_ref) if h_ref > 0 else None
+        gain_db = db(h_ref) if h_ref > 0 else None
         out.append(_ranked("overall gain", gain_db, "dB", {n: v.real for n, v in g.items()}))
         for name, f_c in (("low corner", f_low_hz), ("high corner", f_high_hz)):
             if f_c is not None:

@@ -53,6 +53,7 @@ from chain.errors import Diagnostic, error, warning
 from chain.smallsignal.mna import DirectSolver, Mna, assemble
 from chain.smallsignal.model import SmallSignalCircuit
 from chain.smallsignal.poles import Pole, PoleZero, pencil_eigen, pole_zero, poles
+from chain.decibels import db_array
 
 __all__ = [
     "FeedbackPath",
@@ -314,7 +315,7 @@ def _margins(path: FeedbackPath, node: str, f: np.ndarray, t: np.ndarray) -> Loo
     ph -= 2.0 * math.pi * round(ph[k] / (2.0 * math.pi))
     ph_deg = np.degrees(ph)
     lf = np.log(f)
-    db = 20.0 * np.log10(np.maximum(mag, 1e-300))
+    db = db_array(np.maximum(mag, 1e-300))
     cross = []
     for i in np.nonzero(np.diff(np.sign(db)) != 0)[0]:
         w = db[i] / (db[i] - db[i + 1])

@@ -233,7 +233,7 @@ def no_signal_warnings(rows, f_ref_hz: float, level_v: float) -> tuple[Diagnosti
     for row in rows:
         h_in = row.level_in_v / level_v
         if math.isnan(row.gain_db):
-            below = 20 * math.log10(h_in / loudest) if h_in > 0 else -math.inf
+            below = db(h_in / loudest)
             out.append(warning(
                 "W420", f"stage {row.stage} receives no signal at {format_si(f_ref_hz, 'Hz')}: its input is "
                         f"{-below:.0f} dB below the signal before it, so it has no gain to show",

@@ -25,6 +25,7 @@ from chain.circuit import Role
 from chain.errors import AnalysisError, error
 from chain.transient.engine import TransientSystem
 from chain.transient.run import PeriodicResponse, Waveforms, periodic_response, simulate
+from chain.decibels import db_ratio
 
 __all__ = [
     "Harmonics",
@@ -93,7 +94,7 @@ def harmonics_of(period: PeriodicResponse, node: str) -> Harmonics:
     for k in HARMONICS:
         hk = abs(spec[k]) if k < spec.size else 0.0
         total += hk * hk
-        levels[k] = 20.0 * math.log10(hk / h1) if hk > 0.0 and h1 > 0.0 else -math.inf
+        levels[k] = float(db_ratio(hk, h1)) if h1 > 0.0 else -math.inf
     thd = math.sqrt(total) / h1 if h1 > 0.0 else math.nan
     return Harmonics(node=node, fundamental_v=float(h1), level_db=levels, thd=float(thd))
 

@@ -35,7 +35,7 @@ from pathlib import Path
 import numpy as np
 
 from chain.errors import ChainError, Diagnostic, Span, error, warning
-from chain.tubes.model import FORMS, TriodeModel, grid_current, plate_current, small_signal
+from chain.tubes.model import FORMS, TriodeModel, grid_current, plate_current
 
 __all__ = [
     "DATA_DIR",
