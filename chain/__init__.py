@@ -52,4 +52,4 @@ def bode(analysis, *, nodes=None, ax=None):
     extrema = () if shape is None else tuple(sorted(shape.peaks + shape.dips, key=lambda e: e.f_hz))
     return _bode(analysis.freq, nodes=nodes, corners=(analysis.overall.f_low_hz, analysis.overall.f_high_hz),
                  extrema=extrema, ax=ax, title=analysis.design.title,
-                 unstable=analysis.unstable_note())
+                 unstable=analysis.unstable_note(), f_ref_hz=analysis.design.settings.reference_hz)

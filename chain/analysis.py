@@ -12,6 +12,8 @@ from __future__ import annotations
 import hashlib
 from dataclasses import dataclass, replace
 from pathlib import Path
+from types import MappingProxyType
+from typing import Mapping
 
 import numpy as np
 
@@ -40,7 +42,7 @@ from chain.smallsignal.noise import NoiseResult
 from chain.smallsignal.noise import noise as run_noise
 from chain.smallsignal.table import no_signal_warnings
 
-__all__ = ["Analysis", "analyze", "analyze_design", "sweep_frequencies"]
+__all__ = ["Analysis", "analyze", "analyze_design", "sweep_frequencies", "ac_loads"]
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -61,6 +63,9 @@ class Analysis:
     headroom: Headroom | None
     #: language warnings and operating-point diagnostics
     diagnostics: tuple[Diagnostic, ...]
+    #: per stage, the AC load its first triode works into at the reference frequency, ohm
+    #: (complex; see :func:`ac_loads`): the slope of the AC load line
+    ac_load_ohm: Mapping[str, complex]
     #: SHA-256 of the netlist text (hex)
     netlist_sha256: str
     options: SolveOptions
@@ -99,6 +104,55 @@ def sweep_frequencies(design: Design) -> np.ndarray:
     s = design.settings
     f = np.geomspace(s.band_low_hz, s.band_high_hz, s.points)
     return np.unique(np.append(f, s.reference_hz))
+
+
+def ac_loads(ss, f_hz: float) -> dict[str, complex]:
+    """The AC load each stage's (first) triode works into at ``f_hz``, ohm.
+
+    With the source EMF zeroed and the triode's own small-signal elements
+    (``rp``, ``gm``, interelectrode capacitances) taken out, a unit current
+    is drawn out of the plate node and returned into the cathode node — the
+    path of the tube's own signal current — and::
+
+        Z_ac = −Δv_pk / Δi_p = v(cathode) − v(plate)
+
+    For a common-cathode stage with a bypassed cathode this is the plate
+    load in parallel with what follows (coupling capacitor, next grid leak,
+    tone network, Miller capacitance …); an unbypassed cathode resistor adds
+    in series, and for a cathode follower it is the cathode load in
+    parallel with what follows.  The AC load line through the operating
+    point has the slope ``−1/Re(Z_ac)`` in the (Vpk, Ip) plane (load-line
+    construction: e.g. Langford-Smith, *Radiotron Designer's Handbook*,
+    4th ed., ch. 12 — from memory of that source).
+    """
+    import numpy as np
+
+    from chain.circuit import GROUND, TRIODE_ELEMENT_ROLES
+    from chain.smallsignal.mna import assemble, solve
+
+    circuit = ss.circuit
+    mna = assemble(ss)
+    s = np.array([2j * np.pi * f_hz])
+    out = {}
+    for st in circuit.stages:
+        triode = circuit.triode(st.triode)
+        own = [e for e in mna.stamps if e.role in TRIODE_ELEMENT_ROLES and e.name.startswith(f"{triode.name}.")]
+        reduced = mna.without(own)
+        p = mna.index.get(ss.node_of.get(triode.plate, GROUND), -1)
+        k = mna.index.get(ss.node_of.get(triode.cathode, GROUND), -1)
+        if p == k:
+            out[st.name] = 0j
+            continue
+        b = np.zeros(mna.size)
+        if p >= 0:
+            b[p] = -1.0
+        if k >= 0:
+            b[k] = 1.0
+        x, _ = solve(reduced, s, b, "direct")
+        vp = x[0, p] if p >= 0 else 0.0
+        vk = x[0, k] if k >= 0 else 0.0
+        out[st.name] = complex(vk - vp)
+    return out
 
 
 def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic, ...] = (), *,
@@ -171,6 +225,7 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
         diagnostics=tuple(warnings) + locate(dc.diagnostics, circuit, design)
         + locate(no_signal_warnings(rows, s.reference_hz, s.level_v), circuit, design)
         + locate(dynamics.diagnostics, circuit, design),
+        ac_load_ohm=MappingProxyType(ac_loads(ss, s.reference_hz)),
         netlist_sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
         options=options,
         stability=dynamics, noise=hiss,

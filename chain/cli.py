@@ -71,14 +71,16 @@ def _parser() -> argparse.ArgumentParser:
                        description="Solve the DC operating point of the whole chain and print Vp, Vg, Vk, Ip, "
                                    "dissipation, gm, rp and mu per stage, the rails and the diagnostics.")
     b.add_argument("file", metavar="FILE")
-    b.add_argument("--plot", metavar="PATH", help="draw each stage's plate characteristics with its load line "
-                   "and operating point; PATH ends in .png or .svg (several stages: one file per stage, "
-                   "PATH with -STAGE added)")
+    b.add_argument("--plot", metavar="PATH", help="draw every stage's plate characteristics with its DC and AC "
+                   "load lines, bias line, dissipation limit and operating point, one panel per stage, to "
+                   "PATH (.png or .svg)")
 
     r = sub.add_parser("report", help="the full analysis: stage table, response, corners, headroom",
                        description="Analyse the netlist and print the report.")
     r.add_argument("file", metavar="FILE")
-    r.add_argument("--format", choices=("text", "markdown", "json"), default="text")
+    r.add_argument("--format", choices=("text", "markdown", "json", "html"), default="text",
+                   help="html: one self-contained page (schematic, every plot inline, the netlist), "
+                        "to share or print")
     r.add_argument("--output", metavar="PATH", help="write the report here instead of standard output")
     r.add_argument("--plot", metavar="PATH", help="also draw the Bode plot to PATH (.png or .svg)")
     r.add_argument("--no-headroom", action="store_true", help="skip the large-signal headroom analysis")
@@ -127,8 +129,8 @@ def _parser() -> argparse.ArgumentParser:
     h.add_argument("file", metavar="FILE")
     h.add_argument("--level", metavar="LEVEL",
                    help="input level: peak volts (150mV), rms (100mVrms) or dB (-20dBV, -10dBu); default: the netlist's")
-    h.add_argument("--plot", metavar="PATH", help="draw the transfer curves and the harmonic spectrum to "
-                   "PATH with -transfer and -harmonics added before the suffix (.png or .svg)")
+    h.add_argument("--plot", metavar="PATH", help="draw the transfer curves to "
+                   "PATH exactly and the harmonics to PATH with -harmonics added before the suffix (.png or .svg)")
 
     dr = sub.add_parser("drive", help="time domain: what the chain does to a real signal",
                         description="Drive the whole chain in the time domain from its DC operating point: "
@@ -203,6 +205,21 @@ def _parser() -> argparse.ArgumentParser:
     sp.add_argument("--format", choices=("text", "markdown", "json"), default="text")
     sp.add_argument("--output", metavar="PATH", help="write the report here instead of standard output")
     sp.add_argument("--plot", metavar="PATH", help="draw the response band (5-95 %% of the builds) to PATH")
+
+    sc = sub.add_parser("schematic", help="draw the netlist as a schematic (PNG or SVG)",
+                        description="Draw the stages, rails, couplings and networks as written, so you can "
+                                    "check that the file says what you meant. Nothing is analysed.")
+    sc.add_argument("file", metavar="FILE")
+    sc.add_argument("--output", "-o", metavar="PATH",
+                    help="PNG or SVG file (default: FILE with -schematic.png in place of its suffix)")
+
+    w = sub.add_parser("watch", help="run a command again each time its netlist is saved",
+                       description="Run COMMAND (any chain command with its own arguments) now and again "
+                                   "whenever one of its input files is saved; the screen is cleared and the "
+                                   "output printed afresh. Ctrl-C stops.",
+                       epilog="example: chain watch report netlists/lead_four_stage.chain --no-headroom")
+    w.add_argument("rest", nargs=argparse.REMAINDER, metavar="COMMAND …",
+                   help="the command to run and its arguments, as they would follow 'chain'")
     return p
 
 
@@ -329,13 +346,12 @@ def _figure_path(path: str, args=None) -> str:
 
 
 def _figure_names(path: str, names: Sequence[str]) -> list[str]:
-    """Where the figures of one ``--plot PATH`` go: one figure is written to
-    PATH exactly; several are written to PATH with ``-NAME`` added before the
-    suffix, one per name (README, "Output files")."""
-    if len(names) == 1:
-        return [path]
+    """Where the figures of one figure option go (README, "Output files"):
+    the first is written to PATH exactly as given; each further one to PATH
+    with ``-NAME`` added before the suffix (``h.png``, ``h-harmonics.png``).
+    The first name is only a label and never appears in a file name."""
     target = Path(path)
-    return [str(target.with_name(f"{target.stem}-{name}{target.suffix}")) for name in names]
+    return [path] + [str(target.with_name(f"{target.stem}-{name}{target.suffix}")) for name in names[1:]]
 
 
 # --------------------------------------------------------------------------- commands
@@ -366,9 +382,6 @@ def _cmd_bias(args) -> int:
 
     plot_path = _figure_path(args.plot, args) if args.plot else None
     design, circuit, warnings = load(args.file)
-    if plot_path:
-        for name in _figure_names(plot_path, _bias_figure_names(circuit)):
-            _writable(name, args)
     dc = solve(circuit)
     print(bias_table(design, circuit, dc))
     for w in warnings:
@@ -377,8 +390,14 @@ def _cmd_bias(args) -> int:
     for d in unstable:
         print(d.render())
     if plot_path:
-        for path in _bias_plots(circuit, dc, plot_path):
-            print(f"wrote {path}")
+        from chain.analysis import analyze_design
+        from chain.plot.bias import stage_plots
+
+        # the AC load lines need the small-signal analysis (no headroom)
+        analysis = analyze_design(design, circuit, warnings, headroom=False)
+        plot = stage_plots(circuit, analysis.dc, ac_load_ohm=analysis.ac_load_ohm, title=design.title)
+        _save_figure(plot.figure, plot_path)
+        print(f"wrote {plot_path}")
     return EXIT_UNSTABLE if unstable else 0
 
 
@@ -391,41 +410,6 @@ def _bias_stability(design, circuit, dc):
     s = design.settings
     st = stability(linearize(circuit, dc), ref_hz=s.reference_hz, band_hz=(s.band_low_hz, s.band_high_hz))
     return [d for d in locate(st.diagnostics, circuit, design) if d.code == "E801"]
-
-
-def _bias_figure_names(circuit) -> list[str]:
-    """One name per triode: its stage's, or for a stage of several triodes the triode's own."""
-    return [st.name if len(st.triodes) == 1 else t for st in circuit.stages for t in st.triodes]
-
-
-def _bias_plots(circuit, dc, plot_path: str) -> list[str]:
-    """One plate-characteristics figure per triode: PATH itself for a single
-    triode, else PATH with -STAGE (or, for a stage of several triodes,
-    -TRIODE) before the suffix."""
-    import numpy as np
-
-    from chain.dc import plate_family, stage_lines
-    from chain.plot.bias import plot_characteristics
-
-    figures = []
-    pairs = [(st, t) for st in circuit.stages for t in st.triodes]
-    paths = _figure_names(plot_path, _bias_figure_names(circuit))
-    for (st, triode), path in zip(pairs, paths):
-        point = dc.points[triode]
-        line, bias = stage_lines(circuit, dc, st.name if len(st.triodes) == 1 else triode)
-        top = float(line.vpk_v.max())
-        model = circuit.triode(triode).model
-        step = 0.5 if point.vgk_v > -3 else 2.0
-        vgks = np.round(np.arange(0.0, min(point.vgk_v * 3.0, -4 * step) - step / 2, -step), 2)
-        family = plate_family(model, vgks, top * 1.15)
-        title = f"{st.name} ({st.tube})" if len(st.triodes) == 1 else f"{st.name}: {triode} ({st.tube})"
-        plot = plot_characteristics(family, line, point, bias=bias, title=title)
-        figures.append((path, plot))
-    written = []
-    for path, plot in figures:  # draw everything first, then write: nothing half-done
-        _save_figure(plot, str(path))
-        written.append(str(path))
-    return written
 
 
 def _save_figure(figure, path: str) -> None:
@@ -446,9 +430,7 @@ def _cmd_plot(args) -> int:
     from chain.analysis import analyze
 
     path = _figure_path(args.output or str(Path(args.file).with_suffix(".png")), args)
-    target = Path(path)
-    extra = str(target.with_name(f"{target.stem}-impedance{target.suffix}"))
-    balance_path = str(target.with_name(f"{target.stem}-balance{target.suffix}"))
+    extra, balance_path = _figure_names(path, ["bode", "impedance", "balance"])[1:]
     if args.impedance:
         _writable(extra, args)
     if args.balance:
@@ -500,7 +482,12 @@ def _cmd_report(args) -> int:
     if args.output:
         _writable(args.output, args)
     analysis = analyze(args.file, headroom=not args.no_headroom)
-    text = render(analysis, fmt=args.format)
+    if args.format == "html":
+        from chain.page import page
+
+        text = page(analysis)
+    else:
+        text = render(analysis, fmt=args.format)
     figure = chain_bode(analysis).figure if plot_path else None
     _emit(text, args.output)
     if figure is not None:
@@ -518,9 +505,9 @@ def _cmd_diff(args) -> int:
     result = diff(a, b, tol_db=args.tolerance_db, tol_pct=args.tolerance_pct)
     print(render_diff(result, fmt=args.format))
     if plot_path:
-        from chain.plot.compare import overlay
+        from chain.plot.compare import overlay, title_of
 
-        plot = overlay([a, b], [Path(args.a).stem, Path(args.b).stem])
+        plot = overlay([a, b], [Path(args.a).stem, Path(args.b).stem], title=title_of([a, b]))
         _save_figure(plot.figure, plot_path)
         print(f"wrote {plot_path}")
     return _unstable_status([a, b]) or (1 if result.differs else 0)
@@ -573,9 +560,12 @@ def _cmd_compare(args) -> int:
     result = compare(voicings, labels=labels)
     print(render_compare(result))
     if plot_path:
-        from chain.plot.compare import overlay
+        from chain.plot.compare import overlay, title_of
 
-        plot = overlay(voicings, labels, diff_panel=len(voicings) == 2)
+        title = title_of(voicings)
+        if args.vary:
+            title = f"{title}: {args.vary.partition('=')[0]} stepped"
+        plot = overlay(voicings, labels, diff_panel=len(voicings) == 2, title=title)
         _save_figure(plot.figure, plot_path)
         print(f"wrote {plot_path}")
     return _unstable_status(voicings) or (1 if result.differs else 0)
@@ -954,11 +944,59 @@ def _deviation(text: str) -> float:
     return value
 
 
+def _cmd_schematic(args) -> int:
+    from chain.build import load
+    from chain.plot.schematic import schematic
+
+    source = Path(args.file)
+    path = _figure_path(args.output or str(source.with_name(f"{source.stem}-schematic.png")), args)
+    design, _, warnings = load(args.file)
+    for w in warnings:
+        print(w.render())
+    _save_figure(schematic(design).figure, path)
+    print(f"wrote {path}")
+    return 0
+
+
+def _watched_files(args) -> list[str]:
+    """The input files of a parsed command (not its output files)."""
+    files = []
+    for key in ("file", "files", "a", "b"):
+        value = getattr(args, key, None)
+        if value:
+            files.extend(value if isinstance(value, list) else [value])
+    return files
+
+
+def _cmd_watch(args) -> int:
+    from chain.watch import watch
+
+    rest = [a for a in args.rest if a != "--"] if args.rest[:1] == ["--"] else list(args.rest)
+    if not rest:
+        raise UsageError("watch needs a command to run, e.g. 'chain watch report FILE'")
+    if rest[0] == "watch":
+        raise UsageError("watch cannot watch itself")
+    try:
+        inner = _parser().parse_args(rest)
+    except SystemExit as exc:  # argparse has printed the problem
+        return int(exc.code or 0)
+    files = _watched_files(inner)
+    missing = [f for f in files if not Path(f).is_file()]
+    if missing:
+        raise UsageError(f"cannot watch {missing[0]}: no such file")
+    if args.traceback:
+        rest = ["--traceback", *rest]
+    watch(files, lambda: main(rest))
+    return 0
+
+
 _COMMANDS = {
     "fit": _cmd_fit,
     "transfer": _cmd_transfer,
     "drive": _cmd_drive,
     "spread": _cmd_spread,
+    "watch": _cmd_watch,
+    "schematic": _cmd_schematic,
     "formulas": _cmd_formulas,
     "headroom": _cmd_headroom,
     "check": _cmd_check,

@@ -87,3 +87,55 @@ def test_dc_failure_is_located(monkeypatch):
     located = [d for d in info.value.diagnostics if d.span is not None]
     assert located and located[0].span.path == str(path)
     assert path.read_text(encoding="utf-8").splitlines()[located[0].span.line - 1].startswith("stage V2 ")
+
+
+# --------------------------------------------------------------------------- AC load (issue 15)
+
+LOW_CURRENT = """title "Starved"
+supply HT 250V
+input into V1 resistance 1k
+stage V1 common-cathode 12AX7
+  plate 470k from HT
+  cathode 2k7 bypass 47u
+  grid leak 1M
+stage V2 common-cathode 12AX7
+  plate 220k from HT
+  cathode 3k3
+  grid leak 1M
+couple V1 -> V2 cap 1u
+couple V2 -> output cap 1u
+output load 470k
+"""
+
+
+def test_ac_load_is_the_plate_load_in_parallel_with_what_follows(tmp_path):
+    """Load-line construction (common practice; e.g. Langford-Smith,
+    Radiotron Designer's Handbook, 4th ed., ch. 12, from memory): with the
+    cathode bypassed the AC load is R_L ∥ (the next grid leak, through a
+    coupling capacitor that is a short at 1 kHz); an unbypassed cathode
+    resistor adds in series: R_L ∥ R_load + R_k."""
+    net = tmp_path / "starved.chain"
+    net.write_text(LOW_CURRENT, encoding="utf-8")
+    a = chain.analyze(net, headroom=False)
+    par = lambda x, y: x * y / (x + y)  # noqa: E731
+    # V1: 470k ∥ 1M (V2's grid leak); 1 µF is 159 Ω at 1 kHz, the Miller capacitance of V2 a few pF
+    assert a.ac_load_ohm["V1"].real == pytest.approx(par(470e3, 1e6), rel=0.01)
+    # V2: 220k ∥ 470k output load, plus its 3k3 unbypassed cathode resistor
+    assert a.ac_load_ohm["V2"].real == pytest.approx(par(220e3, 470e3) + 3.3e3, rel=0.01)
+    assert abs(a.ac_load_ohm["V2"].imag) < 0.02 * a.ac_load_ohm["V2"].real
+
+
+def test_transconductance_is_printed_in_millisiemens_everywhere(tmp_path, capsys):
+    from chain.cli import main
+
+    net = tmp_path / "starved.chain"
+    net.write_text(LOW_CURRENT, encoding="utf-8")
+    a = chain.analyze(net, headroom=False)
+    assert a.stages[0].gm_s < 1e-3  # a starved stage: under 1 mS, where an SI prefix would switch to µS
+    for fmt in ("text", "markdown"):
+        text = chain.report.render(a, fmt=fmt)
+        assert "µS" not in text and "A/V" not in text
+        assert f"{a.stages[0].gm_s * 1e3:.4g} mS" in text
+    assert main(["bias", str(net)]) == 0
+    out = capsys.readouterr().out
+    assert "µS" not in out and "A/V" not in out and " mS" in out

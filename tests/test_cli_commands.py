@@ -23,12 +23,12 @@ def test_bias_prints_every_stage(path, capsys):
     assert "Safety:" in out
 
 
-def test_bias_plot_writes_one_file_per_stage(tmp_path, capsys):
+def test_bias_plot_writes_one_file_named_as_given(tmp_path, capsys):
     target = tmp_path / "bias.svg"
     assert main(["bias", str(LEAD), "--plot", str(target)]) == 0
     written = sorted(p.name for p in tmp_path.iterdir())
-    assert written == ["bias-V1.svg", "bias-V2.svg", "bias-V3.svg", "bias-V4.svg"]
-    assert (tmp_path / "bias-V1.svg").read_text(encoding="utf-8").lstrip().startswith("<?xml")
+    assert written == ["bias.svg"]  # one figure, a panel per stage, named exactly as given
+    assert (tmp_path / "bias.svg").read_text(encoding="utf-8").lstrip().startswith("<?xml")
 
 
 def test_plot_png(tmp_path, capsys):
@@ -98,7 +98,7 @@ def test_headroom_command_names_the_first_stage_to_clip(tmp_path, capsys):
     assert main(["headroom", str(CLEAN), "--level", "50mV", "--plot", str(tmp_path / "h.png")]) == 0
     out = capsys.readouterr().out
     assert "first to clip: stage" in out
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["h-harmonics.png", "h-transfer.png"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["h-harmonics.png", "h.png"]
 
 
 def test_headroom_bad_level(capsys):

@@ -22,11 +22,12 @@ RANKS = {
     "transient": 7.5,
     "analysis": 8, "spread": 8,
     "report": 9, "plot": 9,
-    "changes": 10,
+    "changes": 10, "page": 10, "watch": 10,
     "cli": 11, "__main__": 12,
 }
 #: heavy third-party packages and the only rooms that may import them
-HEAVY = {"lcapy": {"formulas"}, "sympy": {"formulas"}, "matplotlib": {"plot"}}
+HEAVY = {"lcapy": {"formulas"}, "sympy": {"formulas"}, "matplotlib": {"plot"}, "schemdraw": {"plot"},
+         "watchfiles": {"watch"}}
 
 MODULES = sorted(p for p in PACKAGE.rglob("*.py") if p.name != "__init__.py" or p.parent != PACKAGE)
 

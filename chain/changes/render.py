@@ -35,6 +35,8 @@ def _value(v, unit: str, absent: str = "none") -> str:
         return _f.volts(v)
     if unit == "A":
         return _f.amps(v)
+    if unit == "S":
+        return _f.siemens(v)
     return _f.si(v, _UNIT_SYMBOL.get(unit, unit))
 
 

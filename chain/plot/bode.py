@@ -1,8 +1,14 @@
 """Bode plot of a :class:`~chain.smallsignal.Response`: magnitude and phase.
 
 The plot only reads arrays: magnitude ``20·log10|h|`` (dB) and phase
-``angle(h)`` unwrapped along frequency (degrees) are the only numbers it
-computes.  Corners are drawn where the caller says they are.  matplotlib is
+(degrees, :func:`phase_deg`) are the only numbers it computes.  Corners are
+drawn where the caller says they are.
+
+Layout rules shared by every frequency plot of this package: the title (the
+design's) sits above the panels; corner labels sit above the magnitude
+panel, outside it, so no curve can run over them; legends sit below the
+panels, outside them; every phase trace is wrapped by the one rule of
+:func:`phase_deg`.  matplotlib is
 imported inside the functions, and only :class:`matplotlib.figure.Figure`
 objects are used (no pyplot state).
 """
@@ -15,13 +21,43 @@ from typing import Sequence
 import numpy as np
 from chain.decibels import db_array
 
-__all__ = ["BodePlot", "ImpedancePlot", "BalancePlot", "bode", "impedance", "balance", "PALETTE"]
+__all__ = ["BodePlot", "ImpedancePlot", "BalancePlot", "bode", "impedance", "balance", "phase_deg", "wrap_turns",
+           "PALETTE"]
 
 #: trace colours, in order: dark enough for print, distinguishable in grey
 PALETTE = ("#1d3557", "#b5651d", "#2a7f62", "#7b2d5b", "#6b6b12", "#a23b2a", "#3d6f9e", "#555555")
 #: dash patterns, cycled with the colours so traces differ without colour too
 DASHES = ("-", (0, (6, 2)), (0, (2, 1.5)), (0, (7, 2, 1.5, 2)), (0, (3, 1, 1, 1, 1, 1)))
 CORNER_COLOUR = "#8a8a8a"
+
+
+def phase_deg(h, f_hz, f_ref_hz: float | None = None) -> np.ndarray:
+    """The phase of ``h`` in degrees, wrapped by one rule for every trace:
+    unwrapped along frequency (no 360° jumps), then shifted by a whole
+    number of turns so that at ``f_ref_hz`` (default: the sweep's
+    geometric middle) it lies in (−180°, 180°].
+
+    Two traces that differ by a full turn somewhere in the band therefore
+    still agree at the reference frequency, where the report states phases.
+    """
+    return wrap_turns(np.degrees(np.unwrap(np.angle(np.asarray(h)))), f_hz, f_ref_hz)
+
+
+def wrap_turns(phase_deg_unwrapped, f_hz, f_ref_hz: float | None = None) -> np.ndarray:
+    """Shift an unwrapped phase trace (degrees) by whole turns so that at
+    ``f_ref_hz`` (default: the geometric middle of ``f_hz``) it lies in
+    (−180°, 180°]; NaN entries stay NaN (the rule of :func:`phase_deg`)."""
+    ph = np.asarray(phase_deg_unwrapped, dtype=float)
+    f = np.asarray(f_hz, dtype=float)
+    ok = np.isfinite(ph) & np.isfinite(f) & (f > 0)
+    if not ok.any():
+        return ph.copy()
+    if f_ref_hz is None:
+        f_ref_hz = float(np.sqrt(f[ok][0] * f[ok][-1]))
+    idx = np.nonzero(ok)[0]
+    k = idx[int(np.argmin(np.abs(np.log(f[ok] / f_ref_hz))))]
+    turns = np.ceil((ph[k] - 180.0) / 360.0)
+    return ph - 360.0 * turns
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -40,12 +76,16 @@ class BodePlot:
     corner_lines: tuple = ()
     #: one marker per peak or dip of the output (magnitude panel)
     extremum_marks: tuple = ()
+    #: the legend (below the panels)
+    legend: object = None
+    #: the corner labels (matplotlib Text, above the magnitude panel)
+    corner_labels: tuple = ()
 
 
 def bode(response, *, nodes: Sequence[str] | None = None,
          corners: tuple[float | None, float | None] | None = None,
          extrema: Sequence = (), ax=None, title: str = "",
-         unstable: str = "") -> BodePlot:
+         unstable: str = "", f_ref_hz: float | None = None) -> BodePlot:
     """Draw magnitude (dB) and phase (degrees) against log frequency (Hz).
 
     Parameters
@@ -66,12 +106,15 @@ def bode(response, *, nodes: Sequence[str] | None = None,
         Optional ``(magnitude_axes, phase_axes)`` pair to draw into; by
         default a new two-panel :class:`~matplotlib.figure.Figure`.
     title
-        Figure title.
+        Figure title (the design's).
     unstable
         When not empty, the circuit is unstable: this text is written across
         the magnitude panel in a red box, the traces are drawn faded and the
         panels get a red frame, so that nobody reads the curve as the
         circuit's response.
+    f_ref_hz
+        Where every phase trace is wrapped into (−180°, 180°]
+        (:func:`phase_deg`); default: the sweep's geometric middle.
 
     Returns
     -------
@@ -102,7 +145,7 @@ def bode(response, *, nodes: Sequence[str] | None = None,
         h = np.asarray(response.h[node])
         with np.errstate(divide="ignore"):
             mag_db = db_array(h)
-        phase_deg = np.degrees(np.unwrap(np.angle(h)))
+        phase = phase_deg(h, f, f_ref_hz)
         if node == circuit.output_node:
             # the chain's output: first colour, solid, heavier
             style = dict(color=PALETTE[0], linestyle=DASHES[0], linewidth=2.2, zorder=3)
@@ -111,11 +154,11 @@ def bode(response, *, nodes: Sequence[str] | None = None,
             style = dict(color=PALETTE[others % len(PALETTE)],
                          linestyle=DASHES[others % len(DASHES)], linewidth=1.4)
         (m_line,) = mag_ax.semilogx(f, mag_db, label=labels[k], **style)
-        (p_line,) = ph_ax.semilogx(f, phase_deg, label=labels[k], **style)
+        (p_line,) = ph_ax.semilogx(f, phase, label=labels[k], **style)
         mag_lines.append(m_line)
         ph_lines.append(p_line)
 
-    marks = _mark_corners(mag_ax, ph_ax, corners)
+    marks, notes = _mark_corners(mag_ax, ph_ax, corners)
     points = _mark_extrema(mag_ax, extrema)
 
     mag_ax.set_ylabel("Gain (dB, V/V)")
@@ -129,12 +172,13 @@ def bode(response, *, nodes: Sequence[str] | None = None,
         a.grid(True, which="major", color="#c8c8c8", linewidth=0.7)
         a.grid(True, which="minor", color="#e6e6e6", linewidth=0.4)
         a.tick_params(labelsize=9)
-    mag_ax.legend(loc="best", fontsize=8, frameon=False)
+    legend = _legend_below(fig, mag_ax, ph_ax)
     if title:
-        mag_ax.set_title(title, fontsize=11, loc="left")
+        fig.suptitle(title, x=0.01, ha="left", fontsize=11.5)
     if unstable:
         _mark_unstable(mag_ax, ph_ax, unstable, (*mag_lines, *ph_lines))
-    return BodePlot(fig, (mag_ax, ph_ax), tuple(mag_lines), tuple(ph_lines), wanted, tuple(marks), tuple(points))
+    return BodePlot(fig, (mag_ax, ph_ax), tuple(mag_lines), tuple(ph_lines), wanted, tuple(marks), tuple(points),
+                    legend, tuple(notes))
 
 
 #: colour of the instability marking
@@ -172,19 +216,22 @@ def _labels(circuit, nodes: Sequence[str]) -> list[str]:
     return labels
 
 
-def _mark_corners(mag_ax, ph_ax, corners) -> list:
-    marks = []
+def _mark_corners(mag_ax, ph_ax, corners) -> tuple[list, list]:
+    marks, notes = [], []
     if not corners:
-        return marks
+        return marks, notes
     for f_c, name in zip(corners, ("low", "high")):
         if f_c is None:
             continue
         for a in (mag_ax, ph_ax):
             marks.append(a.axvline(f_c, color=CORNER_COLOUR, linestyle=(0, (4, 3)), linewidth=1.0))
-        mag_ax.annotate(f"−3 dB {name}\n{_hz(f_c)}", xy=(f_c, 1.0), xycoords=("data", "axes fraction"),
-                        xytext=(3 if name == "low" else -3, -3), textcoords="offset points", va="top",
-                        ha="left" if name == "low" else "right", fontsize=8, color="#4a4a4a")
-    return marks
+        # above the panel (outside it): no curve can cross the label; the low
+        # corner's label reads leftwards from its line, the high one's rightwards
+        notes.append(mag_ax.annotate(f"−3 dB {name}: {_hz(f_c)}", xy=(f_c, 1.0), xycoords=("data", "axes fraction"),
+                        xytext=(-3 if name == "low" else 3, 3), textcoords="offset points", va="bottom",
+                        ha="right" if name == "low" else "left", fontsize=8, color="#4a4a4a",
+                        annotation_clip=False))
+    return marks, notes
 
 
 def _mark_extrema(mag_ax, extrema) -> list:
@@ -198,7 +245,9 @@ def _mark_extrema(mag_ax, extrema) -> list:
         sign = "+" if e.relative_db >= 0 else "−"
         mag_ax.annotate(f"{e.kind} {_hz(e.f_hz)}\n{sign}{abs(e.relative_db):.1f} dB re ref.",
                         xy=(e.f_hz, e.gain_db), xytext=(-7, 0), textcoords="offset points", ha="right",
-                        va="center", fontsize=8, color="#4a4a4a")
+                        va="center", fontsize=8, color="#4a4a4a", zorder=6,
+                        # an opaque ground: a trace passing there runs under the label, never over it
+                        bbox=dict(boxstyle="round,pad=0.2", facecolor="white", edgecolor="none", alpha=0.9))
         points.append(p)
     if points:
         low, high = mag_ax.get_ylim()
@@ -218,6 +267,7 @@ class ImpedancePlot:
     figure: object
     axes: object
     lines: tuple
+    legend: object = None
 
 
 def impedance(response, *, title: str = "") -> ImpedancePlot:
@@ -251,10 +301,10 @@ def impedance(response, *, title: str = "") -> ImpedancePlot:
     ax.grid(True, which="major", color="#c8c8c8", linewidth=0.7)
     ax.grid(True, which="minor", color="#e6e6e6", linewidth=0.4)
     ax.tick_params(labelsize=9)
-    ax.legend(loc="best", fontsize=8, frameon=False)
+    legend = _legend_below(fig, ax)
     if title:
-        ax.set_title(title, fontsize=11, loc="left")
-    return ImpedancePlot(fig, ax, tuple(lines))
+        fig.suptitle(f"{title}: input and output impedance", x=0.01, ha="left", fontsize=11.5)
+    return ImpedancePlot(fig, ax, tuple(lines), legend)
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -320,3 +370,17 @@ def balance(response, stages, *, title: str = "") -> BalancePlot:
     if title:
         mag_ax.set_title(title, fontsize=11, loc="left")
     return BalancePlot(fig, (mag_ax, ph_ax), tuple(lines), tuple(phase_lines), tuple(names))
+
+
+def _legend_below(fig, *axes):
+    """One legend for the traces of ``axes[0]``, below the figure's panels; returns it (or None)."""
+    handles, labels = axes[0].get_legend_handles_labels()
+    if not handles:
+        return None
+    engine = fig.get_layout_engine()
+    if engine is not None and type(engine).__name__ == "ConstrainedLayoutEngine":
+        return fig.legend(handles, labels, loc="outside lower center", ncol=min(len(handles), 3), fontsize=8,
+                          frameon=False)
+    # the caller's own figure: below the lowest axes
+    return axes[-1].legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, -0.25),
+                           ncol=min(len(handles), 3), fontsize=8, frameon=False)

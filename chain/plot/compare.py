@@ -18,10 +18,10 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from chain.plot.bode import DASHES, PALETTE
 from chain.decibels import db_array
+from chain.plot.bode import DASHES, PALETTE, _legend_below, wrap_turns
 
-__all__ = ["Curve", "OverlayPlot", "curve", "difference_db", "overlay"]
+__all__ = ["Curve", "OverlayPlot", "curve", "difference_db", "overlay", "title_of"]
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -32,7 +32,8 @@ class Curve:
     f_hz: np.ndarray
     #: 20·log10|H|, dB (NaN where |H| = 0 or absent)
     magnitude_db: np.ndarray
-    #: angle of H, degrees, unwrapped along frequency
+    #: angle of H, degrees, unwrapped along frequency and wrapped into
+    #: (−180°, 180°] at the reference frequency (:func:`chain.plot.bode.phase_deg`)
     phase_deg: np.ndarray
     #: a name for the legend ("" if unknown)
     label: str = ""
@@ -75,8 +76,10 @@ def curve(source, label: str = "") -> Curve:
     if isinstance(source, Curve):
         return source if not label else Curve(source.f_hz, source.magnitude_db, source.phase_deg, label)
     if isinstance(source, Mapping):
+        f_ref = None
         if "response" in source:
             label = label or source.get("netlist", {}).get("path", "")
+            f_ref = source.get("settings", {}).get("reference_hz")
             source = source["response"]
         f = _array(source["f_hz"])
         mag = _array(source["magnitude_db"])
@@ -84,20 +87,38 @@ def curve(source, label: str = "") -> Curve:
         ok = np.isfinite(ph)
         unwrapped = ph.copy()
         unwrapped[ok] = np.degrees(np.unwrap(np.radians(ph[ok])))
-        return Curve(f, mag, unwrapped, label)
+        return Curve(f, mag, wrap_turns(unwrapped, f, f_ref), label)
     from chain.analysis import Analysis
     from chain.smallsignal import Response
 
+    f_ref = None
     if isinstance(source, Analysis):
         label = label or source.design.path
+        f_ref = source.design.settings.reference_hz
         source = source.freq
     if isinstance(source, Response):
         h = np.asarray(source.output)
         with np.errstate(divide="ignore"):
             mag = db_array(h)
         mag[~np.isfinite(mag)] = np.nan
-        return Curve(np.asarray(source.f_hz, dtype=float), mag, np.degrees(np.unwrap(np.angle(h))), label)
+        f = np.asarray(source.f_hz, dtype=float)
+        return Curve(f, mag, wrap_turns(np.degrees(np.unwrap(np.angle(h))), f, f_ref), label)
     raise TypeError(f"cannot read a response from {type(source).__name__}")
+
+
+def title_of(voicings) -> str:
+    """A figure title naming the designs compared: their titles, joined by
+    "vs" (one title when they all share it)."""
+    names = []
+    for v in voicings:
+        if isinstance(v, Mapping):
+            name = v.get("netlist", {}).get("title") or v.get("netlist", {}).get("path", "")
+        else:
+            design = getattr(v, "design", None)
+            name = getattr(design, "title", "") or getattr(design, "path", "")
+        if name and name not in names:
+            names.append(name)
+    return " vs ".join(names)
 
 
 def difference_db(a: Curve, b: Curve) -> np.ndarray:
@@ -171,13 +192,12 @@ def overlay(responses: Sequence, labels: Sequence[str] | None = None, *, diff_pa
             (dl,) = diff_ax.semilogx(curves[0].f_hz, difference_db(curves[0], c), label=label, **style(k))
             d_lines.append(dl)
         diff_ax.set_ylabel("Difference (dB)")
-        if len(d_lines) > 1:
-            diff_ax.legend(loc="best", fontsize=8, frameon=False)
-        else:
-            diff_ax.set_title(f"{d_lines[0].get_label()}", fontsize=9, loc="left")
+        # same colours as the voicings above; the legend below names them
+        diff_ax.set_title(f"difference from {curves[0].label} (dB)" if len(d_lines) > 1
+                          else d_lines[0].get_label(), fontsize=9, loc="left")
 
     mag_ax.set_ylabel("Gain (dB, V/V)")
-    mag_ax.legend(loc="best", fontsize=8, frameon=False)
+    _legend_below(fig, mag_ax)
     if ph_ax is not None:
         ph_ax.set_ylabel("Phase (°)")
     axes[-1].set_xlabel("Frequency")
@@ -187,5 +207,5 @@ def overlay(responses: Sequence, labels: Sequence[str] | None = None, *, diff_pa
         a.grid(True, which="minor", color="#eef0f3", linewidth=0.5)
         a.tick_params(labelsize=9)
     if title:
-        mag_ax.set_title(title, fontsize=11, loc="left")
+        fig.suptitle(title, x=0.01, ha="left", fontsize=11.5)
     return OverlayPlot(fig, tuple(axes), tuple(lines), tuple(ph_lines), tuple(d_lines), diff_ax)

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from chain.fileio import write_atomically
 
-__all__ = ["FORMATS", "save_figure"]
+__all__ = ["FORMATS", "save_figure", "figure_svg"]
 
 #: file suffixes a figure can be written as
 FORMATS = ("png", "svg")
@@ -51,3 +51,19 @@ def save_figure(plot, path: str | Path, *, dpi: int = 200) -> Path:
     figure.savefig(buf, format=fmt, dpi=dpi if fmt == "png" else None, metadata=metadata)
     write_atomically(path, buf.getvalue())
     return path
+
+
+def figure_svg(plot) -> str:
+    """A figure as the text of an SVG document, for inline use (the HTML report).
+
+    Text is drawn as paths, so the picture needs no fonts where it is
+    shown; the element ids are salted with a fixed string, so the same
+    figure gives the same text on every run.
+    """
+    import matplotlib
+
+    figure = getattr(plot, "figure", plot)
+    buf = io.StringIO()
+    with matplotlib.rc_context({"svg.hashsalt": "chain", "svg.fonttype": "path"}):
+        figure.savefig(buf, format="svg", metadata={"Date": None})
+    return buf.getvalue()

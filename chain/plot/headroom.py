@@ -118,6 +118,12 @@ def _symlog_ticks(ax, linear_v: float, top_v: float) -> None:
     ax.xaxis.set_minor_locator(_NullLocator())
 
 
+def _si(value: float, unit: str) -> str:
+    from chain.units import format_si
+
+    return format_si(value, unit)
+
+
 def _NullLocator():
     from matplotlib.ticker import NullLocator
 
@@ -168,10 +174,24 @@ def plot_transfer(curves, *, headroom=None, linear_v: float | None = None,
     ax.axvline(0.0, color="#9aa0a6", linewidth=0.7)
     ax.set_xlabel("source voltage (V, symmetric-log scale)")
     ax.set_ylabel("output voltage − DC (V)")
-    ax.set_title(title if title is not None else "transfer curves at mid-band", color=_TEXT, fontsize=11)
+    level = headroom.level_v if headroom is not None and getattr(headroom, "level_v", None) else None
+    if level:
+        # the stated input level, ± its peak, on the source axis
+        for sign in (-1.0, 1.0):
+            ax.axvline(sign * level, color="#b5651d", linewidth=0.9, linestyle=(0, (2, 2)), zorder=1)
+        ax.annotate(f"stated level ±{_si(level, 'V')}", xy=(level, 1.0), xycoords=("data", "axes fraction"),
+                    xytext=(0, 3), textcoords="offset points", ha="center", va="bottom", fontsize=7.5,
+                    color="#b5651d", annotation_clip=False)
+    heading = "transfer curves at mid-band"
+    if title:
+        heading = f"{title}: {heading}"
+    if level:
+        heading += f", stated input level {_si(level, 'V')} peak"
+    fig.suptitle(heading, x=0.01, ha="left", color=_TEXT, fontsize=11)
+    ax.set_title("every stage output against the source", color=_TEXT, fontsize=9, loc="left", pad=14)
     _style(ax)
-    legend = ax.legend(loc="best", fontsize=8, framealpha=0.92)
-    legend.get_frame().set_edgecolor("none")
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncol=min(len(chain_lines), 3),
+               fontsize=8, frameon=False)
     stage_axes, stage_lines, onsets = {}, {}, {}
     rows = {r.stage: r for r in headroom.stages} if headroom is not None else {}
     for i, s in enumerate(stages):
@@ -259,8 +279,8 @@ def plot_harmonics(dist, *, stages: Sequence[str] | None = None, own: bool = Fal
     ax.set_ylabel("level relative to the fundamental (dB)")
     ax.set_ylim(floor_db, 0.0)
     what = "added by each stage alone (own THD)" if own else "at each stage output (cumulative THD)"
-    subtitle = f"harmonics {what}, {format_si(dist.level_v, 'V')} peak sine at the input"
-    ax.set_title(subtitle if title is None else f"{title}\n{subtitle}", color=_TEXT, fontsize=11)
+    heading = f"harmonics {what}, {format_si(dist.level_v, 'V')} peak sine at the input"
+    fig.suptitle(f"{title}: {heading}" if title else heading, x=0.01, ha="left", color=_TEXT, fontsize=11)
     _style(ax)
     fig.legend(loc="outside lower center", ncol=min(len(series), 2), fontsize=8, frameon=False)
     return HarmonicsPlot(figure=fig, axes=ax, bars=bars, levels_db=levels, floor_db=float(floor_db))

@@ -13,7 +13,7 @@ import math
 
 from chain.units import format_si
 
-__all__ = ["DIGITS", "NONE", "ZERO_V", "ZERO_A", "si", "volts", "amps", "plain", "db", "deg", "mag", "angle",
+__all__ = ["DIGITS", "NONE", "ZERO_V", "ZERO_A", "si", "volts", "amps", "siemens", "plain", "db", "deg", "mag", "angle",
            "polar", "gain", "pct", "node_list", "markdown_escape", "markdown_table"]
 
 #: significant digits of every printed quantity
@@ -45,6 +45,14 @@ def amps(value: float | None) -> str:
     if value is not None and abs(value) < ZERO_A:
         value = 0.0
     return si(value, "A")
+
+
+def siemens(value: float | None) -> str:
+    """A transconductance, always in mS (the unit tube data gives it in), to
+    :data:`DIGITS` significant digits: ``0.8539 mS``, ``1.379 mS``."""
+    if value is None:
+        return NONE
+    return f"{plain(float(value) * 1e3)} mS"
 
 
 def plain(value: float | None, digits: int = DIGITS) -> str:

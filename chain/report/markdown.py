@@ -75,12 +75,12 @@ class MarkdownRenderer(Renderer):
         op_rows = []
         for r in data["stages"]:
             op_rows.append([r["stage"], r["kind"], r["tube"], fmt.volts(r["vp_v"]), fmt.volts(r["vk_v"]),
-                            fmt.amps(r["ip_a"]), fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"),
+                            fmt.amps(r["ip_a"]), fmt.siemens(r["gm_s"]), fmt.si(r["rp_ohm"], "Ω"),
                             fmt.plain(r["mu"])])
             for t in r.get("triodes", [])[1:]:
                 p = points[t]
                 op_rows.append([f"{r['stage']}: {t}", "", "", fmt.volts(p["vp_v"]), fmt.volts(p["vk_v"]),
-                                fmt.amps(p["ip_a"]), fmt.si(p["gm_s"], "S"), fmt.si(p["rp_ohm"], "Ω"),
+                                fmt.amps(p["ip_a"]), fmt.siemens(p["gm_s"]), fmt.si(p["rp_ohm"], "Ω"),
                                 fmt.plain(p["mu"])])
         out += _table(["stage", "configuration", "tube", "Vp", "Vk", "Ip", "gm", "rp", "mu"], op_rows,
                       set(range(3, 9)))

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from chain.circuit import Circuit
 from chain.language.design import Design
+from chain.report import fmt
 from chain.units import format_si
 
 
@@ -82,7 +83,7 @@ def bias_table(design: Design, circuit: Circuit, dc) -> str:
         lines.append(f"{name:<8}{kind:<18}{tube:<12}{_v(p.vp_v):>10}"
                      f"{_v(p.vg_v):>10}{_v(p.vk_v):>10}"
                      f"{format_si(p.ip_a, 'A', 4):>10}{format_si(p.pd_w, 'W', 3):>10}"
-                     f"{format_si(p.gm_s, 'A/V', 3):>11}{format_si(p.rp_ohm, 'Ω', 3):>10}{p.mu:>7.1f}")
+                     f"{fmt.siemens(p.gm_s):>11}{format_si(p.rp_ohm, 'Ω', 3):>10}{p.mu:>7.1f}")
     lines.append("")
     lines.append("rails")
     for name, r in dc.rails.items():

@@ -75,7 +75,7 @@ def _pair_lines(data: dict[str, Any], r: dict[str, Any], points: dict[str, Any])
             _kv(f"{t} plate current Ip", fmt.amps(p["ip_a"])),
             _kv(f"{t} grid current Ig", fmt.amps(p["ig_a"])),
             _kv(f"{t} plate dissipation Pd", fmt.si(p["pd_w"], "W")),
-            _kv(f"{t} transconductance gm", fmt.si(p["gm_s"], "S")),
+            _kv(f"{t} transconductance gm", fmt.siemens(p["gm_s"])),
             _kv(f"{t} plate resistance rp", fmt.si(p["rp_ohm"], "Ω")),
             _kv(f"{t} amplification mu", fmt.plain(p["mu"])),
         ]
@@ -157,12 +157,12 @@ class TextRenderer(Renderer):
                           set(range(3, 9))))
         for r in data["stages"]:
             lines.append(_row([r["stage"], r["kind"], r["tube"], fmt.volts(r["vp_v"]), fmt.volts(r["vk_v"]),
-                               fmt.amps(r["ip_a"]), fmt.si(r["gm_s"], "S"), fmt.si(r["rp_ohm"], "Ω"),
+                               fmt.amps(r["ip_a"]), fmt.siemens(r["gm_s"]), fmt.si(r["rp_ohm"], "Ω"),
                                fmt.plain(r["mu"])], w1, set(range(3, 9))))
             for t in r.get("triodes", [])[1:]:
                 p = points[t]
                 lines.append(_row([f"  {t}", "", "", fmt.volts(p["vp_v"]), fmt.volts(p["vk_v"]),
-                                   fmt.amps(p["ip_a"]), fmt.si(p["gm_s"], "S"), fmt.si(p["rp_ohm"], "Ω"),
+                                   fmt.amps(p["ip_a"]), fmt.siemens(p["gm_s"]), fmt.si(p["rp_ohm"], "Ω"),
                                    fmt.plain(p["mu"])], w1, set(range(3, 9))))
         lines.append("")
         several = [r for r in data["stages"] if len(r.get("outputs", [])) > 1]
@@ -238,7 +238,7 @@ class TextRenderer(Renderer):
                 _kv(f"{n} plate current Ip", fmt.amps(r["ip_a"])),
                 _kv(f"{n} grid current Ig", fmt.amps(p.get("ig_a"))),
                 _kv(f"{n} plate dissipation Pd", pd_text),
-                _kv(f"{n} transconductance gm", fmt.si(r["gm_s"], "S")),
+                _kv(f"{n} transconductance gm", fmt.siemens(r["gm_s"])),
                 _kv(f"{n} plate resistance rp", fmt.si(r["rp_ohm"], "Ω")),
                 _kv(f"{n} amplification mu", fmt.plain(r["mu"])),
                 _kv(f"{n} loaded gain", fmt.gain(r["gain"], r["gain_db"])),

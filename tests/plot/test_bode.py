@@ -60,9 +60,45 @@ def test_stage_traces_and_corners(resp):
     assert_allclose(plot.lines[0].get_ydata(), 20 * np.log10(np.abs(resp.h["V1.plate"])), rtol=1e-12)
     assert len(plot.corner_lines) == 2  # one marker per panel
     assert all(line.get_xdata()[0] == 35.0 for line in plot.corner_lines)
-    labels = [t.get_text() for t in plot.axes[0].get_legend().get_texts()]
+    labels = [t.get_text() for t in plot.legend.get_texts()]
     assert labels == ["V1 out (V1.plate)", "output (output)"]
-    assert plot.axes[0].get_title(loc="left") == "stage V1"
+    assert plot.figure._suptitle.get_text() == "stage V1"
+
+
+def _extents(plot):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(plot.figure)
+    canvas.draw()  # laid out as when saved
+    return canvas.get_renderer()
+
+
+def test_corner_labels_and_legend_are_outside_the_panels(resp):
+    """Issue 15: no curve can be drawn over a corner label or under the legend."""
+    plot = bode(resp, nodes=["V1.plate", "output"], corners=(35.0, 20e3), title="t")
+    renderer = _extents(plot)
+    mag = plot.axes[0].get_window_extent(renderer)
+    ph = plot.axes[1].get_window_extent(renderer)
+    assert len(plot.corner_labels) == 2
+    boxes = [t.get_window_extent(renderer) for t in plot.corner_labels]
+    for box in boxes:
+        assert box.y0 >= mag.y1 - 0.5  # above the magnitude panel
+    assert boxes[0].x1 <= boxes[1].x0  # low corner's label left of the high one's
+    legend = plot.legend.get_window_extent(renderer)
+    assert legend.y1 <= ph.y0  # below both panels
+
+
+def test_every_phase_trace_is_wrapped_by_one_rule(resp):
+    """Unwrapped along frequency, then within (−180°, 180°] at the reference frequency."""
+    for f_ref in (100.0, 1e3, 20e3):
+        plot = bode(resp, nodes=["V1.plate", "output"], f_ref_hz=f_ref)
+        k = int(np.argmin(np.abs(np.log(resp.f_hz / f_ref))))
+        for line, node in zip(plot.phase_lines, ("V1.plate", "output")):
+            y = np.asarray(line.get_ydata())
+            assert -180.0 < y[k] <= 180.0
+            assert np.all(np.abs(np.diff(y)) < 90.0)
+            assert_allclose(np.exp(1j * np.radians(y)), resp.h[node] / np.abs(resp.h[node]), atol=1e-9)
+
 
 
 def test_unknown_node_is_an_error(resp):
