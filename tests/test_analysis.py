@@ -129,7 +129,8 @@ def test_transconductance_is_printed_in_millisiemens_everywhere(tmp_path, capsys
     from chain.cli import main
 
     net = tmp_path / "starved.chain"
-    net.write_text(LOW_CURRENT, encoding="utf-8")
+    net.write_text(LOW_CURRENT.replace("plate 470k", "plate 1M").replace("cathode 2k7", "cathode 10k"),
+                   encoding="utf-8")
     a = chain.analyze(net, headroom=False)
     assert a.stages[0].gm_s < 1e-3  # a starved stage: under 1 mS, where an SI prefix would switch to µS
     for fmt in ("text", "markdown"):
