@@ -448,7 +448,7 @@ def _cmd_plot(args) -> int:
         if not loops:
             print("no feedback network closes a loop between stages: no loop gain to draw")
         for lg in loops:
-            name = str(target.with_name(f"{target.stem}-loop-{lg.path.name}{target.suffix}"))
+            name = _figure_names(path, ["bode", f"loop-{lg.path.name}"])[1]
             _writable(name, args)
             figures.append((name, loop_plot(lg, title=analysis.design.title).figure))
     if args.balance:
