@@ -327,6 +327,7 @@ def _stage(pen: _Pen, st: Stage, x: float):
     else:
         pen.ground(k)
     pen.node(k, f"{st.name}.cathode", ofst=(-0.2, 0.15), halign="right")
+    _second_section_note(pen, st, (x + 2.6, bottom - 0.4))
     # grid
     g_out = (a["W"][0] - 0.6, grid[1])
     pen.wire(grid, g_out)
@@ -368,6 +369,29 @@ def _stage(pen: _Pen, st: Stage, x: float):
         pen.node(plate, f"{st.name}.plate", ofst=(0.2, 0.15))
         out = plate
     return entry, out
+
+
+def _second_section_note(pen: _Pen, st: Stage, at) -> None:
+    """A two-triode stage (cathodyne, long-tailed pair): the first section is
+    drawn, the tail and the second section are listed beside it in words."""
+    items = []
+    tail = getattr(st.cathode, "tail_ohm", None) if st.cathode is not None else None
+    if tail:
+        items.append(f"tail {_r(tail)}")
+    sec = getattr(st, "second", None)
+    if sec is not None:
+        if sec.plate_load_ohm:
+            items.append(f"second plate {_r(sec.plate_load_ohm)} from {sec.rail}")
+        if sec.grid_leak_ohm:
+            items.append(f"second grid leak {_r(sec.grid_leak_ohm)}")
+        if sec.grid_stopper_ohm:
+            items.append(f"second grid stopper {_r(sec.grid_stopper_ohm)}")
+        if sec.grid_bypass_f:
+            items.append(f"second grid bypass {_c(sec.grid_bypass_f)}")
+    if st.kind in ("cathodyne", "long-tailed-pair"):
+        items.insert(0, f"{st.kind}: first section drawn")
+    if items:
+        pen.text(at, "\n".join(items), size=8.5, halign="left", valign="top", colour=NODE_COLOUR)
 
 
 # --------------------------------------------------------------------------- source, couplings, output
@@ -449,9 +473,10 @@ def _couplings(pen: _Pen, design: Design, ports, stages) -> float:
             _output(pen, design, end)
             low = min(low, end[1] - _R - 1.0)
     if design.output is not None and design.output.node and not any(c.dst == "output" for c in design.couplings):
-        pen.text((0.0, _Y_ANODE - 14.0), f"output taken at {design.output.node}"
-                 + (f", load {_r(design.output.load_ohm)}" if design.output.load_ohm else ""),
-                 size=10, halign="left")
+        outs = [design.output, *getattr(design.output, "more", ())]
+        pen.text((0.0, _Y_ANODE - 14.0), "; ".join(
+            f"output taken at {o.node}" + (f", load {_r(o.load_ohm)}" if o.load_ohm else "") for o in outs),
+            size=10, halign="left")
     return low
 
 
