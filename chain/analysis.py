@@ -136,7 +136,11 @@ def ac_loads(ss, f_hz: float) -> dict[str, complex]:
     out = {}
     for st in circuit.stages:
         triode = circuit.triode(st.triode)
-        own = [e for e in mna.stamps if e.role in TRIODE_ELEMENT_ROLES and e.name.startswith(f"{triode.name}.")]
+        # this triode's own small-signal elements: its stage's, touching only its pins
+        pins = {mna.index.get(ss.node_of.get(n, GROUND), -1) for n in (triode.plate, triode.grid, triode.cathode)}
+        own = [e for e in mna.stamps
+               if e.role in TRIODE_ELEMENT_ROLES and e.owner == triode.owner
+               and {e.a, e.b} <= pins and (e.kind != "G" or {e.cp, e.cn} <= pins)]
         reduced = mna.without(own)
         p = mna.index.get(ss.node_of.get(triode.plate, GROUND), -1)
         k = mna.index.get(ss.node_of.get(triode.cathode, GROUND), -1)
