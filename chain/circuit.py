@@ -45,7 +45,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from enum import Enum
 from types import MappingProxyType
-from typing import Callable, Literal, Mapping, Protocol, Union
+from typing import Literal, Mapping, Protocol, Union
 
 from chain.errors import Span
 from chain.tubes import TriodeModel
@@ -474,13 +474,6 @@ class Circuit:
         found = self.parts(owner=owner, role=role)
         return found[0] if found else None
 
-    def element(self, name: str) -> Element:
-        """The element called ``name`` (a display name; never parsed)."""
-        for el in self.elements:
-            if el.name == name:
-                return el
-        raise KeyError(name)
-
     def nodes(self) -> tuple[str, ...]:
         """Every node except ground, in a stable order (first appearance)."""
         seen: dict[str, None] = {}
@@ -550,15 +543,6 @@ class Circuit:
             if stage.name == subject:
                 return f"{subject} ({_KIND_WORDS.get(stage.kind, stage.kind)})"
         return subject
-
-    def owns(self, stage: str) -> Callable[[Element], bool]:
-        """Predicate on elements: is this element one of ``stage``'s own parts?
-
-        Own parts are those owned by the stage (its load, cathode parts, grid
-        parts, triodes, and the triodes' small-signal elements).
-        """
-        me = Owner("stage", stage)
-        return lambda el: el.owner == me
 
     # -- rails -------------------------------------------------------------------
     def rail_names(self) -> tuple[str, ...]:

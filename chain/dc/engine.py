@@ -316,7 +316,7 @@ class NetworkSystem:
 
     def _compile_triodes(self, circuit: Circuit) -> None:
         """Index arrays for the vectorised triode evaluation and scatter."""
-        n, size = self._n, self.size
+        size = self.size
         tri = circuit.triodes
         self.triode_names = tuple(t.name for t in tri)
         self._models = tuple(t.model for t in tri)

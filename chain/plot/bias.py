@@ -28,7 +28,7 @@ import numpy as np
 from chain.dc.curves import BiasLine, LoadLine, PlateFamily
 from chain.dc.result import OperatingPoint
 
-__all__ = ["CharacteristicsPlot", "StagesPlot", "plot_characteristics", "plot_stages", "stage_plots", "PALETTE"]
+__all__ = ["CharacteristicsPlot", "StagesPlot", "plot_characteristics", "stage_plots", "PALETTE"]
 
 #: colours of the drawing: curves run from a light to a dark slate blue with
 #: rising grid voltage; the load line is amber, the bias line teal, the

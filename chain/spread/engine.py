@@ -44,7 +44,7 @@ import numpy as np
 
 from chain.circuit import GROUND, Circuit, Role
 from chain.dc.result import DcSolution, SolveOptions
-from chain.smallsignal.mna import Mna, Stamp, _equilibrate, _matrices, assemble, solve
+from chain.smallsignal.mna import Mna, _equilibrate, _matrices, assemble, solve
 from chain.smallsignal.model import SmallSignalCircuit
 from chain.tubes import grid_current_and_derivative, plate_current_and_derivatives
 

@@ -37,7 +37,7 @@ from typing import Mapping
 
 import numpy as np
 
-from chain.circuit import Circuit, Owner, Role
+from chain.circuit import Circuit, Owner
 from chain.dc.result import DcSolution, SolveOptions
 from chain.errors import AnalysisError, error
 from chain.spread.engine import BatchCircuit, DcBatch

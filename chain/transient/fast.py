@@ -342,7 +342,6 @@ def run_kernel(x, q, u_tr, u_bdf, u_first, k_start, k_end, oversample, gamma, a0
         for i in range(size):
             x_keep[i] = x[i]
             q_keep[i] = q[i]
-        u_keep = u_start
         for j in range(oversample):
             n = (k - 1) * oversample + j
             ua = u_tr[n]
