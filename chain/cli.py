@@ -909,7 +909,7 @@ def _cmd_spread(args) -> int:
         if not sep or not what:
             raise UsageError(f"--tolerance {spec}: write WHAT=TOLERANCE, e.g. resistors=1%")
         low, high = parse_tolerance(tol, Span("--tolerance", 1, len(what) + 2, spec))
-        tube_type = what.lower().startswith("tube:")
+        tube_type = what.lower()[:5] == "tube:"
         overrides.append(ToleranceDef(what[5:] if tube_type else what, low, high, tube_type,
                                       Span("--tolerance", 1, 1, spec)))
     design, circuit, _ = load(args.file)

@@ -230,6 +230,36 @@ def test_a_renamed_stage_is_reported_as_renamed_and_its_parts_follow(base):
     assert r.effects == ()
 
 
+def test_a_part_moved_to_another_node_is_reported_as_moved_and_only_it():
+    """Parts are matched by name, nodes through the parts on both sides: a
+    capacitor moved from V1's plate to V2's plate shows its nodes changed,
+    also when V2 is renamed at the same time (its nodes follow the stage)."""
+    snub = "network snub\n  capacitor c {node} -- gnd 100p\n"
+    a = analyse(netlist() + snub.format(node="V1.plate"))
+    moved = diff(a, analyse(netlist() + snub.format(node="V2.plate")))
+    assert [(c.subject, c.quantity, c.old, c.new) for c in moved.parts] == [
+        ("snub.c", "nodes", "V1.plate – gnd", "V2.plate – gnd")]
+    renamed = netlist().replace("stage V2", "stage V9").replace("V1 -> V2", "V1 -> V9").replace(
+        "V2 -> output", "V9 -> output")
+    both = diff(a, analyse(renamed + snub.format(node="V9.plate")))
+    assert [c.note for c in both.stages] == ["renamed from V2"]
+    assert [(c.subject, c.quantity, c.new) for c in both.parts] == [("snub.c", "nodes", "V9.plate – gnd")]
+    assert not diff(a, analyse(renamed + snub.format(node="V1.plate"))).parts
+
+
+def test_a_renamed_two_triode_stage_keeps_its_parts_by_role():
+    """A long-tailed pair has two plate loads, two grid leaks and two
+    triodes of one role each: renaming the stage matches them in order."""
+    with open("netlists/splitter_long_tail.chain", encoding="utf-8") as fh:
+        text = fh.read()
+    r = diff(analyse(text), analyse(text.replace("PI", "PX")))
+    assert [c.note for c in r.stages] == ["renamed from PI"]
+    assert r.parts == () and r.effects == ()
+    # and a change of the second plate load is that part's, not the first's
+    changed = diff(analyse(text), analyse(text.replace("PI", "PX").replace("second plate 100k", "second plate 120k")))
+    assert [(c.subject, c.quantity) for c in changed.parts] == [("PX.RL2", "value")]
+
+
 def test_added_and_removed_stages(base):
     three = netlist().replace("couple V2 -> output cap 1u rated 400V", """\
 couple V2 -> V3 cap 22n rated 400V

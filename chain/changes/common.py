@@ -237,20 +237,76 @@ def _match_stages(da, db) -> tuple[dict[str, str], list[Change]]:
     return mapping, changes
 
 
-def _renamer(mapping: dict[str, str]):
-    """Translate an A-side part or node name into B's names for renamed stages."""
+def _slot(part: Mapping[str, Any], owner_name: str) -> tuple:
+    """Where a part sits, names aside: owner kind and name, role, part kind."""
+    return (part["owner"]["kind"], owner_name, part.get("role"), part["kind"])
+
+
+def _node_map(da, db, match: Mapping[str, str]) -> dict[str, str]:
+    """A-side node → B-side node, read from the parts matched on both sides.
+
+    Each matched pair of parts votes, terminal by terminal, for its A node
+    being its B node; a node goes where most of its parts' terminals went
+    (ties: to the node of the same name, else the first voted).  A part
+    moved to another node is outvoted by the parts that stayed, so it shows
+    as moved.
+    """
+    nodes_b = {p["name"]: p["nodes"] for p in db["parts"]}
+    votes: dict[str, dict[str, int]] = {}
+    for pa in da["parts"]:
+        name_b = match.get(pa["name"])
+        if name_b is None:
+            continue
+        for na, nb in zip(pa["nodes"], nodes_b[name_b]):
+            tally = votes.setdefault(na, {})
+            tally[nb] = tally.get(nb, 0) + 1
+    out = {}
+    for na, tally in votes.items():
+        top = max(tally.values())
+        out[na] = na if tally.get(na) == top else next(nb for nb, v in tally.items() if v == top)
+    return out
+
+
+def _part_match(da, db, mapping: Mapping[str, str]) -> tuple[dict[str, str], dict[str, str]]:
+    """A part name → B part name, and A node → B node (:func:`_node_map`).
+
+    A part of a stage renamed from A to B is matched by its place in the
+    stage (owner, role, part kind, and the order among parts of the same
+    role); other parts by name; a part still unmatched (a coupling capacitor
+    between renamed stages) by owner kind, role, part kind and its nodes
+    carried over to B.  Names are never taken apart.
+    """
     renamed = {a: b for a, b in mapping.items() if a != b}
-
-    def rename(name: str) -> str:
-        head, dot, rest = name.partition(".")
-        if head == "couple" and rest:  # couple.<src>-<dst>.C
-            pair, dot2, tail = rest.rpartition(".")
-            src, dash, dst = pair.partition("-")
-            if dash:
-                return f"couple.{renamed.get(src, src)}-{renamed.get(dst, dst)}{dot2}{tail}"
-        return renamed[head] + dot + rest if head in renamed else name
-
-    return rename
+    names_b = {p["name"] for p in db["parts"]}
+    slots_b: dict[tuple, list[str]] = {}
+    for p in db["parts"]:
+        slots_b.setdefault(_slot(p, p["owner"]["name"]), []).append(p["name"])
+    match: dict[str, str] = {}
+    count: dict[tuple, int] = {}
+    left = []
+    for p in da["parts"]:
+        owner = p["owner"]
+        if owner["kind"] == "stage" and owner["name"] in renamed:
+            key = _slot(p, renamed[owner["name"]])
+            i = count[key] = count.get(key, -1) + 1
+            candidates = slots_b.get(key, [])
+            if i < len(candidates):
+                match[p["name"]] = candidates[i]
+        elif p["name"] in names_b:
+            match[p["name"]] = p["name"]
+        else:
+            left.append(p)
+    nodes = _node_map(da, db, match)
+    taken = set(match.values())
+    placed = {((p["owner"]["kind"], p.get("role"), p["kind"]), tuple(p["nodes"])): p["name"]
+              for p in db["parts"] if p["name"] not in taken}
+    for p in left:
+        there = placed.get(((p["owner"]["kind"], p.get("role"), p["kind"]),
+                            tuple(nodes.get(n, n) for n in p["nodes"])))
+        if there is not None and there not in taken:
+            match[p["name"]] = there
+            taken.add(there)
+    return match, nodes
 
 
 @dataclass(frozen=True, slots=True)

@@ -41,7 +41,7 @@ def _value(v, unit: str, absent: str = "none") -> str:
 
 
 def _signed(text: str) -> str:
-    return text if text.startswith(("-", "+")) else "+" + text
+    return text if text[:1] in ("-", "+") else "+" + text
 
 
 def _change_text(c: Change) -> str:

@@ -20,7 +20,7 @@ from chain.changes.common import (
     _match_stages,
     _pct,
     _ratio_change,
-    _renamer,
+    _part_match,
     _side,
     _stage_index,
     document,
@@ -56,7 +56,7 @@ def _value_change(name, owner, quantity, unit, old, new) -> Change:
     return Change("part", name, quantity, unit, old, new, delta, rel, rel_unit, size, owner)
 
 
-def _part_changes(pa: dict[str, Any], pb: dict[str, Any], rename) -> list[Change]:
+def _part_changes(pa: dict[str, Any], pb: dict[str, Any], nodes: Mapping[str, str]) -> list[Change]:
     name, owner = pb["name"], _owner_text(pb["owner"])
     out = []
     if pa["kind"] != pb["kind"]:
@@ -65,7 +65,7 @@ def _part_changes(pa: dict[str, Any], pb: dict[str, Any], rename) -> list[Change
         out.append(_value_change(name, owner, "value", pb["unit"] or "", pa["value"], pb["value"]))
     if pa["rated_v"] != pb["rated_v"]:
         out.append(_value_change(name, owner, "rating", "V", pa["rated_v"], pb["rated_v"]))
-    nodes_a = [rename(n) for n in pa["nodes"]]
+    nodes_a = [nodes.get(n, n) for n in pa["nodes"]]
     if nodes_a != pb["nodes"]:
         out.append(Change("part", name, "nodes", "", " – ".join(pa["nodes"]), " – ".join(pb["nodes"]),
                           owner=owner))
@@ -83,7 +83,7 @@ def _part_changes(pa: dict[str, Any], pb: dict[str, Any], rename) -> list[Change
     return out
 
 
-def _parts(da, db, rename, stage_order_b: list[str]) -> list[Change]:
+def _parts(da, db, mapping: Mapping[str, str], stage_order_b: list[str]) -> list[Change]:
     parts_b = {p["name"]: p for p in db["parts"]}
     seen = set()
     keyed: list[tuple[tuple, Change]] = []
@@ -95,8 +95,9 @@ def _parts(da, db, rename, stage_order_b: list[str]) -> list[Change]:
         return (rank, place, owner["name"], index)
 
     order_b = {p["name"]: i for i, p in enumerate(db["parts"])}
+    match, nodes = _part_match(da, db, mapping)
     for i, pa in enumerate(da["parts"]):
-        name = rename(pa["name"])
+        name = match.get(pa["name"], "")
         pb = parts_b.get(name)
         if pb is None:
             c = Change("part", pa["name"], "part", pa["unit"] or "", _part_summary(pa), None,
@@ -104,7 +105,7 @@ def _parts(da, db, rename, stage_order_b: list[str]) -> list[Change]:
             keyed.append((key(pa["owner"], len(order_b) + i), c))
             continue
         seen.add(name)
-        for c in _part_changes(pa, pb, rename):
+        for c in _part_changes(pa, pb, nodes):
             keyed.append((key(pb["owner"], order_b[name]), c))
     for pb in db["parts"]:
         if pb["name"] not in seen:
@@ -368,9 +369,8 @@ def diff(a, b, *, tol_db: float = 0.05, tol_pct: float = 0.5) -> DiffResult:
         raise ValueError("tolerances must be >= 0")
     da, db = document(a), document(b)
     mapping, stage_changes = _match_stages(da, db)
-    rename = _renamer(mapping)
     order_b = [r["stage"] for r in db["stages"]]
-    parts = _parts(da, db, rename, order_b)
+    parts = _parts(da, db, mapping, order_b)
 
     effects: list[Change] = []
     rows_b = _stage_index(db)

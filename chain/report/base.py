@@ -252,7 +252,7 @@ def _signed_db(x: float | None) -> str:
     import chain.report.fmt as fmt
 
     text = fmt.db(x)
-    return text if text.startswith(("-", "—")) or x is None else "+" + text
+    return text if text[:1] in ("-", "—") or x is None else "+" + text
 
 
 def port_past_clip(data: dict[str, Any], r: dict[str, Any], port: dict[str, Any]) -> float | None:

@@ -73,9 +73,9 @@ def part_owner(part) -> dict[str, str]:
     return {"kind": part.owner.kind, "name": part.owner.name}
 
 
-def _part(name, kind, owner, nodes, value, unit, rated_v=None, tube=None) -> dict[str, Any]:
+def _part(name, kind, owner, role, nodes, value, unit, rated_v=None, tube=None) -> dict[str, Any]:
     return {
-        "name": name, "kind": kind, "owner": owner, "nodes": list(nodes),
+        "name": name, "kind": kind, "owner": owner, "role": str(role.value), "nodes": list(nodes),
         "value": num(value), "unit": unit, "rated_v": num(rated_v), "tube": tube,
     }
 
@@ -104,16 +104,16 @@ def _parts(analysis) -> list[dict[str, Any]]:
     c = analysis.circuit
     out = []
     for p in c.resistors:
-        out.append(_part(p.name, "resistor", part_owner(p), (p.a, p.b), p.ohms, "ohm"))
+        out.append(_part(p.name, "resistor", part_owner(p), p.role, (p.a, p.b), p.ohms, "ohm"))
     for p in c.capacitors:
-        out.append(_part(p.name, "capacitor", part_owner(p), (p.a, p.b), p.farads, "F", p.rated_v))
+        out.append(_part(p.name, "capacitor", part_owner(p), p.role, (p.a, p.b), p.farads, "F", p.rated_v))
     for p in c.inductors:
-        out.append(_part(p.name, "inductor", part_owner(p), (p.a, p.b), p.henries, "H"))
+        out.append(_part(p.name, "inductor", part_owner(p), p.role, (p.a, p.b), p.henries, "H"))
     for p in c.sources:
         kind = "supply" if p.role == "supply" else "signal"
-        out.append(_part(p.name, kind, part_owner(p), (p.pos, p.neg), p.volts, "V"))
+        out.append(_part(p.name, kind, part_owner(p), p.role, (p.pos, p.neg), p.volts, "V"))
     for t in c.triodes:
-        out.append(_part(t.name, "triode", part_owner(t), (t.plate, t.grid, t.cathode), None, None,
+        out.append(_part(t.name, "triode", part_owner(t), t.role, (t.plate, t.grid, t.cathode), None, None,
                          tube=_tube(t)))
     return out
 

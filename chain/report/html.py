@@ -131,18 +131,18 @@ def markdown_to_html(lines: Sequence[str]) -> str:
             level = len(m.group(1))
             out.append(f"<h{level}>{_inline(m.group(2))}</h{level}>")
             i += 1
-        elif line.startswith("|"):
+        elif line[:1] == "|":
             block = []
-            while i < len(lines) and lines[i].startswith("|"):
+            while i < len(lines) and lines[i][:1] == "|":
                 block.append(lines[i])
                 i += 1
             out.append(_table(block))
-        elif line.startswith("> "):
+        elif line[:2] == "> ":
             out.append(f"<blockquote>{_inline(line[2:])}</blockquote>")
             i += 1
-        elif line.startswith("* "):
+        elif line[:2] == "* ":
             items = []
-            while i < len(lines) and lines[i].startswith("* "):
+            while i < len(lines) and lines[i][:2] == "* ":
                 items.append(f"<li>{_inline(lines[i][2:])}</li>")
                 i += 1
             out.append('<ul class="notes">' + "".join(items) + "</ul>")

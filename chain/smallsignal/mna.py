@@ -112,7 +112,7 @@ def _free_bytes() -> int | None:
     try:
         with open("/proc/meminfo", encoding="ascii") as fh:
             for line in fh:
-                if line.startswith("MemAvailable:"):
+                if line.split(":", 1)[0] == "MemAvailable":
                     return int(line.split()[1]) * 1024
     except (OSError, ValueError, IndexError):
         return None

@@ -359,14 +359,15 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
         fixed={groups[gi].label: v for gi, v in fixed_idx.items()}, stages=stages,
         overall_gain_db=pct("overall_gain_db"), f_hz=model.f_hz, envelope_db=env, nominal_db=nom_resp,
         breaks=tuple(breaks), corners=tuple(corner_list), unconverged=int((~ok).sum()),
-        resolved=int(res["resolved"]), what_if=_by_stage(what_if) if what_if else None,
-        nominal=_by_stage(nominal), reference_hz=float(reference_hz),
+        resolved=int(res["resolved"]), what_if=_by_stage(what_if, model.stages) if what_if else None,
+        nominal=_by_stage(nominal, model.stages), reference_hz=float(reference_hz),
     )
 
 
-def _by_stage(flat: Mapping[str, float]) -> dict[str, dict[str, float]]:
-    out: dict[str, dict[str, float]] = {}
-    for k, v in flat.items():
-        stage, _, fig = k.rpartition(".")
-        out.setdefault(stage or "overall", {})[fig] = v
+def _by_stage(flat: Mapping[str, float], stages) -> dict[str, dict[str, float]]:
+    """The flat figures (``overall_gain_db`` and ``<stage>.<figure>``) grouped
+    under ``"overall"`` and each stage, looked up by the stages' names."""
+    out: dict[str, dict[str, float]] = {"overall": {"overall_gain_db": flat["overall_gain_db"]}}
+    for st in stages:
+        out[st.name] = {f: flat[f"{st.name}.{f}"] for f in STAGE_FIGURES}
     return out

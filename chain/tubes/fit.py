@@ -196,7 +196,7 @@ def read_points(path: str | Path, *, text: str | None = None) -> TubeData:
             raise FitDataError([error("E701", f"cannot read the data file: {exc}", Span(path, 1, 1))]) from None
     lines = text.splitlines()
     problems: list[Diagnostic] = []
-    header_at = next((i for i, ln in enumerate(lines) if ln.strip() and not ln.lstrip().startswith("#")), None)
+    header_at = next((i for i, ln in enumerate(lines) if ln.strip() and ln.lstrip()[:1] != "#"), None)
     if header_at is None:
         raise FitDataError([error("E701", "the data file has no header row and no points", Span(path, 1, 1),
                                   "first line: vpk_v,vgk_v,ip_a  (optional ig_a; ip_ma for milliamperes)")])
@@ -224,7 +224,7 @@ def read_points(path: str | Path, *, text: str | None = None) -> TubeData:
     points: list[DataPoint] = []
     for i in range(header_at + 1, len(lines)):
         raw = lines[i]
-        if not raw.strip() or raw.lstrip().startswith("#"):
+        if not raw.strip() or raw.lstrip()[:1] == "#":
             continue
         cells = next(csv.reader([raw]))
         offsets, pos = [], 0
