@@ -921,7 +921,9 @@ def _cmd_spread(args) -> int:
     except KeyError as exc:
         raise UsageError(f"--what-if: {exc.args[0]!r} is neither a stage nor a varied part "
                          f"(parts are named as in the report's parts list)") from None
-    data = spread_data(result, path=design.path, title=design.title)
+    # an unstable nominal circuit: the report says so, E801 goes to standard error, exit 4 (as `report`)
+    unstable = _bias_stability(design, circuit, dc)
+    data = spread_data(result, path=design.path, title=design.title, diagnostics=unstable)
     text = dumps(data) if args.format == "json" else render_spread(data, fmt_name=args.format)
     figure = None
     if plot_path:
@@ -932,7 +934,8 @@ def _cmd_spread(args) -> int:
     if figure is not None:
         _save_figure(figure, plot_path)
         print(f"wrote {plot_path}")
-    return 0
+    _print_diagnostics(unstable)
+    return EXIT_UNSTABLE if unstable else 0
 
 
 def _deviation(text: str) -> float:

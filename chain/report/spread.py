@@ -25,15 +25,54 @@ FIGURES = {"vp_v": ("Vp", "V"), "vk_v": ("Vk", "V"), "vgk_v": ("Vgk (bias)", "V"
            "pd_w": ("Pd", "W"), "gain_db": ("gain", "dB"), "zout_ohm": ("|Zout|", "ohm")}
 
 
-def _p(p) -> dict[str, Any]:
+def _p(p, unstable_corners: frozenset = frozenset(), key: str = "") -> dict[str, Any]:
     return {"nominal": num(p.nominal), "median": num(p.median), "p5": num(p.p5), "p95": num(p.p95),
-            "corner_low": num(p.corner_low), "corner_high": num(p.corner_high)}
+            "corner_low": num(p.corner_low), "corner_high": num(p.corner_high),
+            "corner_low_stable": (key, "low") not in unstable_corners,
+            "corner_high_stable": (key, "high") not in unstable_corners}
 
 
-def spread_data(result, *, path: str = "", title: str = "") -> dict[str, Any]:
-    """The JSON-ready document of a spread analysis."""
+def _draws(draws) -> list[dict[str, Any]]:
+    return [{"sample": i, "deviations": [{"group": lab, "deviation": num(d)} for lab, d in devs]}
+            for i, devs in draws]
+
+
+def _complex(z) -> dict[str, Any] | None:
+    return None if z is None else {"re": num(z.real), "im": num(z.imag)}
+
+
+def stability_section(r) -> dict[str, Any]:
+    """The ``stability`` part of the spread document."""
+    ins = r.instability
+    return {
+        "nominal_stable": r.nominal_rhp_hz is None,
+        "nominal_rhp_hz": _complex(r.nominal_rhp_hz),
+        "unstable_builds": 0 if ins is None else int(ins.count),
+        "unstable_fraction": 0.0 if ins is None else num(ins.fraction),
+        "oscillation_hz": None if ins is None else
+        dict(zip(("p5", "median", "p95"), (num(x) for x in ins.oscillation_hz))),
+        "draws": [] if ins is None else _draws(ins.draws),
+        "influence": [] if ins is None else [{"group": g, "rho": num(rho)} for g, rho in ins.influence],
+    }
+
+
+def _diagnostics(diagnostics) -> list[dict[str, Any]]:
+    out = []
+    for d in diagnostics:
+        loc = None
+        if d.span is not None and d.span.line > 0:
+            loc = {"path": d.span.path, "line": int(d.span.line), "column": int(d.span.column)}
+        out.append({"code": d.code, "severity": d.severity, "subject": d.subject, "message": d.message,
+                    "hint": d.hint, "location": loc})
+    return out
+
+
+def spread_data(result, *, path: str = "", title: str = "", diagnostics=()) -> dict[str, Any]:
+    """The JSON-ready document of a spread analysis (``diagnostics``: located
+    problems of the nominal circuit, e.g. E801 when it is unstable)."""
     r = result
     env = np.asarray(r.envelope_db)
+    bad_corners = frozenset((c.figure, c.end) for c in r.corners if not c.stable)
     return {
         "schema": SPREAD_SCHEMA,
         "netlist": {"path": path, "title": title},
@@ -46,15 +85,18 @@ def spread_data(result, *, path: str = "", title: str = "") -> dict[str, Any]:
         "nominal": {s: {k: num(v) for k, v in figs.items()} for s, figs in r.nominal.items()},
         "what_if": None if r.what_if is None else
         {s: {k: num(v) for k, v in figs.items()} for s, figs in r.what_if.items()},
-        "stages": [{"stage": s.stage, "figures": {k: _p(v) for k, v in s.figures.items()}} for s in r.stages],
-        "overall_gain_db": _p(r.overall_gain_db),
+        "counted": int(r.counted),
+        "stages": [{"stage": s.stage, "figures": {k: _p(v, bad_corners, f"{s.stage}.{k}")
+                                                  for k, v in s.figures.items()}} for s in r.stages],
+        "overall_gain_db": _p(r.overall_gain_db, bad_corners, "overall_gain_db"),
         "response": {"f_hz": [num(x) for x in r.f_hz], "p5_db": [num(x) for x in env[0]],
                      "median_db": [num(x) for x in env[1]], "p95_db": [num(x) for x in env[2]],
                      "nominal_db": [num(x) for x in r.nominal_db]},
         "checks": [{"subject": b.subject, "check": b.check, "fraction": num(b.fraction),
-                    "draws": [{"sample": i, "deviations": [{"group": lab, "deviation": num(d)} for lab, d in devs]}
-                              for i, devs in b.draws]} for b in r.breaks],
+                    "draws": _draws(b.draws)} for b in r.breaks],
+        "stability": stability_section(r),
         "unconverged": int(r.unconverged), "resolved": int(r.resolved),
+        "diagnostics": _diagnostics(diagnostics),
     }
 
 
@@ -64,6 +106,11 @@ def _val(v, unit: str) -> str:
     if unit == "dB":
         return f"{v:.2f} dB"
     return fmt.si(v, {"ohm": "Ω"}.get(unit, unit))
+
+
+def _corner(p: dict[str, Any], end: str, unit: str) -> str:
+    text = _val(p[f"corner_{end}"], unit)
+    return text if p.get(f"corner_{end}_stable", True) else "!" + text
 
 
 def _dev(d: float) -> str:
@@ -109,10 +156,18 @@ def render_spread(data: dict[str, Any], *, fmt_name: str = "text") -> str:
             lines.extend(row(r).rstrip() for r in rows)
 
     title(f"chain spread: {data['netlist']['title'] or data['netlist']['path']}", 1)
+    st = data["stability"]
+    if not st["nominal_stable"]:
+        z = st["nominal_rhp_hz"]
+        lines.append(f"UNSTABLE: the nominal circuit oscillates (at about {fmt.si(abs(z['im']), 'Hz')}; a pole in "
+                     "the right half-plane, error E801); the small-signal figures below are not what it will do.")
     lines.append(data["safety"])
     ref = fmt.si(data["reference_hz"], "Hz")
     kv("samples", f"{data['samples']} builds (seed {data['seed']}), {len(data['groups'])} parts and tubes "
                   f"varied, {data['distribution']}")
+    if data["counted"] != data["samples"]:
+        kv("in the statistics", f"{data['counted']} builds (left out: {st['unstable_builds']} unstable, "
+                                f"{data['unconverged']} whose DC solve did not converge)")
     kv("tolerances", _groups_line(data))
     if data["fixed"]:
         kv("held in every sample", ", ".join(f"{k} at {_dev(v)}" for k, v in data["fixed"].items()))
@@ -145,14 +200,20 @@ def render_spread(data: dict[str, Any], *, fmt_name: str = "text") -> str:
             if p is None:
                 continue
             rows.append([s["stage"], label, _val(p["nominal"], unit), _val(p["p5"], unit), _val(p["median"], unit),
-                         _val(p["p95"], unit), _val(p["corner_low"], unit), _val(p["corner_high"], unit)])
+                         _val(p["p95"], unit), _corner(p, "low", unit), _corner(p, "high", unit)])
     p = data["overall_gain_db"]
     rows.append(["overall", "gain", _val(p["nominal"], "dB"), _val(p["p5"], "dB"), _val(p["median"], "dB"),
-                 _val(p["p95"], "dB"), _val(p["corner_low"], "dB"), _val(p["corner_high"], "dB")])
+                 _val(p["p95"], "dB"), _corner(p, "low", "dB"), _corner(p, "high", "dB")])
     table(["stage", "figure", "nominal", "5 %", "median", "95 %", "corner low", "corner high"], rows,
           [7, 11, 11, 11, 11, 11, 11, 11])
     note = ("(corners: every part at the end of its band that moves the figure down or up, by the sign of "
-            "its sensitivity; first-order, so a good estimate of the extremes, not a bound)")
+            "its sensitivity; first-order, so a good estimate of the extremes, not a bound")
+    if any(not f[f"corner_{e}_stable"] for s in data["stages"] for f in s["figures"].values()
+           for e in ("low", "high")) or not (p["corner_low_stable"] and p["corner_high_stable"]):
+        note += "; ! marks a corner build that is unstable"
+    if st["unstable_builds"]:
+        note += f"; percentiles over the {data['counted']} stable builds"
+    note += ")"
     lines.extend([note] if not md else ["", f"_{note}_"])
 
     from chain.report.base import spot_frequencies
@@ -165,6 +226,21 @@ def render_spread(data: dict[str, Any], *, fmt_name: str = "text") -> str:
                 for k in ("p5_db", "median_db", "p95_db", "nominal_db")]
         kv(f"response at {fmt.si(fs, 'Hz')}", f"median {vals[1]:.2f} dB, 5–95 %: {vals[0]:.2f} to "
                                               f"{vals[2]:.2f} dB (nominal {vals[3]:.2f} dB)")
+
+    title("Stability of the builds")
+    if not st["unstable_builds"]:
+        lines.append("every build is stable: no pole in the right half-plane")
+    else:
+        osc = st["oscillation_hz"]
+        kv("unstable builds", f"{st['unstable_builds']} ({100 * st['unstable_fraction']:.1f} %), oscillating at "
+                              f"{fmt.si(osc['p5'], 'Hz')} to {fmt.si(osc['p95'], 'Hz')} (5-95 %; median "
+                              f"{fmt.si(osc['median'], 'Hz')}); left out of every figure above and below")
+        if st["influence"]:
+            kv("most influential draws", ", ".join(f"{x['group']} (rho {x['rho']:+.2f})" for x in st["influence"]))
+            lines.append("    (Spearman rank correlation of each part's deviation with being unstable)")
+        for d in st["draws"][:3]:
+            devs = ", ".join(f"{x['group']} {_dev(x['deviation'])}" for x in d["deviations"])
+            lines.append(f"    e.g. build {d['sample']}: {devs}")
 
     title("Ratings and bias checks broken in some builds")
     if not data["checks"]:

@@ -46,6 +46,7 @@ from chain.circuit import GROUND, Circuit, Role
 from chain.dc.result import DcSolution, SolveOptions
 from chain.smallsignal.mna import Mna, _equilibrate, _matrices, assemble, solve
 from chain.smallsignal.model import SmallSignalCircuit
+from chain.smallsignal.poles import INFINITE_BETA, S0, UNSTABLE_REL
 from chain.tubes import grid_current_and_derivative, plate_current_and_derivatives
 
 __all__ = ["DcBatch", "BatchCircuit", "CHECK_RTOL"]
@@ -361,10 +362,46 @@ class BatchCircuit:
             self._scale_cache = _equilibrate(np.abs(self._mna.g) + s_mid * np.abs(self._mna.c))
         return self._scale_cache
 
+    def rhp_poles(self, g: np.ndarray, c: np.ndarray) -> np.ndarray:
+        """(S,) the right-half-plane pole of largest real part of each build, as
+        ``s/2π`` (Hz, complex); NaN for a stable build.
+
+        The natural frequencies are those of the pencil ``G + s·C`` (as
+        :func:`chain.smallsignal.poles.pencil_eigen`), found here from the
+        eigenvalues ``λ`` of ``(G + s0·C)⁻¹·C`` (``s = s0 − 1/λ``), batched; a
+        pole counts as finite and unstable by the same rules as the single
+        analysis (:data:`chain.smallsignal.poles.INFINITE_BETA`,
+        :data:`~chain.smallsignal.poles.UNSTABLE_REL`).
+        """
+        s0 = S0
+        r, cs = _equilibrate(np.abs(self._mna.g) + s0 * np.abs(self._mna.c))
+        gs = r[None, :, None] * g * cs[None, None, :]
+        ccs = r[None, :, None] * c * cs[None, None, :]
+        out = np.full(g.shape[0], np.nan, dtype=complex)
+        for lo in range(0, g.shape[0], CHUNK):
+            sl = slice(lo, min(lo + CHUNK, g.shape[0]))
+            try:
+                lam = np.linalg.eigvals(np.linalg.solve(gs[sl] + s0 * ccs[sl], ccs[sl]))
+            except np.linalg.LinAlgError:
+                for i in range(sl.start, sl.stop):
+                    out[i] = self._rhp_single(g[i], c[i])
+                continue
+            out[sl] = _worst_rhp(lam, s0)
+        return out
+
+    def _rhp_single(self, g: np.ndarray, c: np.ndarray) -> complex:
+        from chain.smallsignal.poles import pencil_eigen
+
+        s = pencil_eigen(Mna(self._mna.nodes, self._mna.index, g, c, self._mna.stamps, self._mna.source))
+        bad = s[s.real > UNSTABLE_REL * np.abs(s)]
+        return complex(bad[np.argmax(bad.real)] / (2 * np.pi)) if bad.size else complex(np.nan, np.nan)
+
     def output_response(self, g: np.ndarray, c: np.ndarray, f_hz: np.ndarray, node: int,
-                        check_hz: tuple[float, ...] = ()) -> tuple[np.ndarray, int]:
+                        check_hz: tuple[float, ...] = ()) -> tuple[np.ndarray, int, np.ndarray]:
         """(S, nf) transfer from the source EMF to unknown ``node`` over ``f_hz``;
-        also the number of samples re-solved after the direct check."""
+        also the number of samples re-solved after the direct check, and each
+        build's worst right-half-plane pole (as :meth:`rhp_poles`, from the
+        same eigen-decomposition)."""
         s = 2j * np.pi * np.asarray(f_hz, dtype=float)
         w = np.abs(s.imag)
         s0 = float(np.sqrt(w.min() * w.max()))
@@ -374,6 +411,7 @@ class BatchCircuit:
         b = self.source_rhs * r
         s_count = g.shape[0]
         h = np.empty((s_count, s.size), dtype=complex)
+        rhp = np.full(s_count, np.nan, dtype=complex)
         bad = np.zeros(s_count, dtype=bool)
         for lo in range(0, s_count, CHUNK):
             sl = slice(lo, min(lo + CHUNK, s_count))
@@ -386,6 +424,7 @@ class BatchCircuit:
             except np.linalg.LinAlgError:
                 bad[sl] = True
                 continue
+            rhp[sl] = _worst_rhp(lam, s0)
             coef = vec[:, node, :] * wv  # (chunk, N)
             with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
                 d = 1.0 / (1.0 + (s[None, :, None] - s0) * lam[:, None, :])
@@ -402,4 +441,20 @@ class BatchCircuit:
             one = Mna(self._mna.nodes, self._mna.index, g[i], c[i], self._mna.stamps, self._mna.source)
             x, _ = solve(one, s, rhs, "auto")
             h[i] = x[:, node]
-        return h, int(bad.sum())
+            rhp[i] = self._rhp_single(g[i], c[i])
+        return h, int(bad.sum()), rhp
+
+
+def _worst_rhp(lam: np.ndarray, s0: float) -> np.ndarray:
+    """(S,) from eigenvalues ``λ`` (S, N) of ``(G + s0·C)⁻¹·C``: the finite pole
+    ``s = s0 − 1/λ`` of largest real part if it lies in the right half-plane,
+    as ``s/2π`` (Hz), else NaN."""
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        s = s0 - 1.0 / lam
+    finite = np.isfinite(s) & (np.abs(s) < S0 / INFINITE_BETA)
+    unstable = finite & (s.real > UNSTABLE_REL * np.abs(s))
+    re = np.where(unstable, s.real, -np.inf)
+    k = np.argmax(re, axis=1)
+    with np.errstate(invalid="ignore"):
+        worst = np.take_along_axis(s, k[:, None], axis=1)[:, 0] / (2 * np.pi)
+    return np.where(unstable.any(axis=1), worst, complex(np.nan, np.nan))

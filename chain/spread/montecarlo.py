@@ -43,7 +43,8 @@ from chain.errors import AnalysisError, error
 from chain.spread.engine import BatchCircuit, DcBatch
 from chain.spread.tolerance import Tolerance, Varied, varied_parts
 
-__all__ = ["Percentiles", "StageSpread", "RatingBreak", "Corner", "SpreadResult", "spread", "draw",
+__all__ = ["Percentiles", "StageSpread", "RatingBreak", "Corner", "Instability", "SpreadResult", "spread", "draw",
+           "rank_correlation",
            "STAGE_FIGURES", "PERCENTILES"]
 
 #: the percentiles reported
@@ -101,6 +102,28 @@ class Corner:
     end: str
     value: float
     deviations: tuple[tuple[str, float], ...]
+    #: False when the corner build has a pole in the right half-plane
+    stable: bool = True
+
+
+@dataclass(frozen=True, slots=True)
+class Instability:
+    """Builds with a pole in the right half-plane (as
+    :mod:`chain.smallsignal.stability` decides for one circuit).  They are left
+    out of every percentile, the response band and the checks.
+
+    ``draws`` are the first few unstable builds with their largest part and
+    tube deviations; ``influence`` ranks the varied groups by Spearman's rank
+    correlation of their deviation with being unstable (ties averaged;
+    positive: a high value makes instability likelier), largest ``|ρ|`` first.
+    """
+
+    count: int
+    fraction: float
+    #: oscillation frequency |Im s|/2π of each unstable build's worst pole: 5 %, median, 95 %, Hz
+    oscillation_hz: tuple[float, float, float]
+    draws: tuple[tuple[int, tuple[tuple[str, float], ...]], ...]
+    influence: tuple[tuple[str, float], ...]
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -128,6 +151,12 @@ class SpreadResult:
     what_if: Mapping[str, Mapping[str, float]] | None
     nominal: Mapping[str, Mapping[str, float]]
     reference_hz: float
+    #: unstable builds (left out of the statistics)
+    instability: Instability | None = None
+    #: the nominal build's worst right-half-plane pole s/2π (Hz), None when it is stable
+    nominal_rhp_hz: complex | None = None
+    #: builds in the statistics: converged and stable
+    counted: int = 0
 
 
 def draw(groups: tuple[Varied, ...], samples: int, seed: int,
@@ -197,10 +226,14 @@ class _Model:
         out["_dc"] = dc
         if sweep:
             checks = (self.f_hz[0], self.reference_hz, self.f_hz[-1])
-            h, resolved = b.output_response(g, c, self.f_hz, self.out, checks)
+            h, resolved, rhp = b.output_response(g, c, self.f_hz, self.out, checks)
             with np.errstate(divide="ignore"):
                 out["response_db"] = 20 * np.log10(np.abs(h))
             out["resolved"] = np.array(resolved)
+        else:
+            rhp = b.rhp_poles(g, c)
+        out["rhp_hz"] = rhp
+        out["stable"] = np.isnan(rhp.real)
         return out
 
 
@@ -247,6 +280,50 @@ def _own_groups(model: _Model, subject: str) -> list[int]:
     return sorted(set(own))
 
 
+def ranks(x: np.ndarray) -> np.ndarray:
+    """Ranks 0…n−1 of ``x`` along its first axis, ties given their average rank."""
+    x = np.asarray(x, dtype=float)
+    order = np.argsort(x, axis=0, kind="mergesort")
+    r = np.empty_like(x)
+    np.put_along_axis(r, order, np.arange(x.shape[0], dtype=float).reshape((-1,) + (1,) * (x.ndim - 1)), axis=0)
+    cols = r.reshape(x.shape[0], -1)
+    flat = x.reshape(x.shape[0], -1)
+    for j in range(flat.shape[1]):
+        _, inv, counts = np.unique(flat[:, j], return_inverse=True, return_counts=True)
+        if counts.size < flat.shape[0]:
+            cols[:, j] = (np.bincount(inv, weights=cols[:, j]) / counts)[inv]
+    return cols.reshape(x.shape)
+
+
+def rank_correlation(deviations: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Spearman's rank correlation of each column of ``deviations`` (S, G) with
+    ``y`` (S,): Pearson's correlation of the ranks (ties averaged); 0 for a
+    constant column or a constant ``y``."""
+    rx = ranks(deviations)
+    ry = ranks(y)
+    rx = rx - rx.mean(axis=0)
+    ry = ry - ry.mean()
+    den = np.sqrt((rx ** 2).sum(axis=0) * (ry ** 2).sum())
+    with np.errstate(invalid="ignore", divide="ignore"):
+        rho = (rx * ry[:, None]).sum(axis=0) / den
+    return np.where(den > 0, rho, 0.0)
+
+
+def _influence(groups, deviations: np.ndarray, y: np.ndarray, count: int = 4) -> tuple[tuple[str, float], ...]:
+    """The ``count`` groups of largest |ρ| (Spearman) with ``y``, largest first."""
+    if deviations.shape[0] < 3:
+        return ()
+    rho = rank_correlation(deviations, y.astype(float))
+    order = np.argsort(-np.abs(rho), kind="mergesort")[:count]
+    return tuple((groups[i].label, float(rho[i])) for i in order if rho[i] != 0.0)
+
+
+def _largest(groups, row: np.ndarray, among: list[int] | None = None, count: int = 4):
+    idx = range(len(groups)) if among is None else among
+    pairs = sorted(((groups[gi].label, float(row[gi])) for gi in idx), key=lambda p: -abs(p[1]))
+    return tuple(pairs[:count])
+
+
 def _pct(values: np.ndarray, ok: np.ndarray) -> tuple[float, float, float]:
     v = values[ok & np.isfinite(values)]
     if v.size == 0:
@@ -284,7 +361,7 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
                                                  f"{int(MEMORY_LIMIT_BYTES // (model.batch.size ** 2 * BYTES_PER_ENTRY))})"))
     dev = draw(groups, samples, seed, fixed_idx)
     res = model.run(dev, sweep=True)
-    ok = res["converged"]
+    ok = res["converged"] & res["stable"]
     keys = _figure_keys(model)
 
     # nominal, corners, what-if: one more batch
@@ -328,14 +405,26 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
         for i, k in enumerate(keys):
             lo_v, hi_v = float(corner_res[k][2 * i]), float(corner_res[k][2 * i + 1])
             corner_values[k] = (lo_v, hi_v)
-            for end, r, v in (("low", rows[2 * i], lo_v), ("high", rows[2 * i + 1], hi_v)):
+            for j, (end, r, v) in enumerate((("low", rows[2 * i], lo_v), ("high", rows[2 * i + 1], hi_v))):
                 corner_list.append(Corner(k, end, v, tuple((groups[gi].label, float(r[gi]))
-                                                              for gi in range(n_groups))))
+                                                              for gi in range(n_groups)),
+                                          stable=bool(corner_res["stable"][2 * i + j])))
 
     def pct(k):
         p5, med, p95 = _pct(res[k], ok)
         lo_v, hi_v = corner_values.get(k, (float("nan"), float("nan")))
         return Percentiles(p5, med, p95, nominal[k], lo_v, hi_v)
+
+    instability = None
+    bad = res["converged"] & ~res["stable"]
+    if bad.any():
+        osc = np.abs(res["rhp_hz"][bad].imag)
+        instability = Instability(
+            count=int(bad.sum()), fraction=float(bad.sum() / max(res["converged"].sum(), 1)),
+            oscillation_hz=tuple(float(x) for x in np.percentile(osc, PERCENTILES)),  # type: ignore[arg-type]
+            draws=tuple((int(i), _largest(groups, dev[i])) for i in np.flatnonzero(bad)[:SHOWN_DRAWS]),
+            influence=_influence(groups, dev[res["converged"]], bad[res["converged"]]))
+    rhp0 = complex(first["rhp_hz"][0])
 
     stages = tuple(StageSpread(st.name, {f: pct(f"{st.name}.{f}") for f in STAGE_FIGURES}) for st in model.stages)
 
@@ -358,9 +447,10 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
         samples=samples, seed=seed, groups=groups, deviations=dev,
         fixed={groups[gi].label: v for gi, v in fixed_idx.items()}, stages=stages,
         overall_gain_db=pct("overall_gain_db"), f_hz=model.f_hz, envelope_db=env, nominal_db=nom_resp,
-        breaks=tuple(breaks), corners=tuple(corner_list), unconverged=int((~ok).sum()),
+        breaks=tuple(breaks), corners=tuple(corner_list), unconverged=int((~res["converged"]).sum()),
         resolved=int(res["resolved"]), what_if=_by_stage(what_if, model.stages) if what_if else None,
-        nominal=_by_stage(nominal, model.stages), reference_hz=float(reference_hz),
+        nominal=_by_stage(nominal, model.stages), reference_hz=float(reference_hz), instability=instability,
+        nominal_rhp_hz=None if np.isnan(rhp0.real) else rhp0, counted=int(ok.sum()),
     )
 
 
