@@ -415,6 +415,8 @@ def build(design: Design) -> Circuit:
     elif src.kind == "pickup":
         x.add(Resistor("input.Rw", emf, "input.w", src.r_ohm, own, Role.PICKUP_WINDING), src.span)
         x.add(Inductor("input.L", "input.w", first_in, src.l_h, own, Role.PICKUP_INDUCTANCE), src.span)
+        if src.loss_ohm is not None:
+            x.add(Resistor("input.Rloss", "input.w", first_in, src.loss_ohm, own, Role.PICKUP_LOSS), src.span)
         if src.c_f > 0:
             x.add(Capacitor("input.C", first_in, GROUND, src.c_f, None, own, Role.PICKUP_CAPACITANCE), src.span)
         if src.cable_f > 0:

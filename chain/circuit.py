@@ -138,6 +138,7 @@ class Role(str, Enum):
     SOURCE_RESISTANCE = "source resistance"
     PICKUP_WINDING = "pickup winding resistance"
     PICKUP_INDUCTANCE = "pickup inductance"
+    PICKUP_LOSS = "pickup eddy-current loss"
     PICKUP_CAPACITANCE = "pickup capacitance"
     CABLE_CAPACITANCE = "cable capacitance"
     COUPLING = "coupling capacitor"

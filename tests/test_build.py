@@ -50,6 +50,11 @@ def test_pickup_source_parts():
     assert (p["input.Rw"].ohms, p["input.L"].henries) == (6500.0, 2.5)
     assert (p["input.C"].farads, p["input.Ccable"].farads) == (120e-12, 470e-12)
     assert p["input.L"].b == p["input.C"].a == "V1.in"
+    # the eddy-current loss sits across the inductance (its stated default: chain.language.design)
+    assert (p["input.Rloss"].a, p["input.Rloss"].b) == (p["input.L"].a, p["input.L"].b)
+    assert p["input.Rloss"].ohms == 300e3
+    lossless = text.replace("cable 470p", "cable 470p loss off")
+    assert "input.Rloss" not in parts(load_text(lossless)[1])
 
 
 @pytest.mark.parametrize("position, expected", [(0.0, 0.0), (0.5, 0.1), (1.0, 1.0)])

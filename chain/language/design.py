@@ -62,6 +62,15 @@ KIND_PORTS = {
     "long-tailed-pair": (("in", "in2"), ("plate1", "plate2")),
 }
 
+#: Eddy-current loss of a pickup when its line names none, ohm: a resistance
+#: across the coil's inductance.  Common practice: passive magnetic pickups
+#: loaded by a 1 MΩ input and a few hundred pF of cable show a resonance peak
+#: of a few dB up to about +10 dB, not the +14 to +20 dB a lossless coil gives;
+#: 300 kΩ across a 2–4 H coil puts typical windings in that range (about +7 dB
+#: for 9.2 kΩ, 3.6 H, 610 pF into 1 MΩ).  Write ``loss off`` for the lossless
+#: coil or ``loss R`` for a measured value.
+DEFAULT_PICKUP_LOSS_OHM = 300e3
+
 _NOWHERE = Span("<none>", 0, 0)
 
 
@@ -273,8 +282,9 @@ class Source:
 
     ``kind`` is ``ideal``, ``resistance`` (``r_ohm``) or ``pickup``
     (winding resistance ``r_ohm`` and inductance ``l_h`` in series, its own
-    capacitance ``c_f`` and the cable's ``cable_f`` across the output);
-    ``cap_f`` couples it to the stage through a capacitor."""
+    capacitance ``c_f`` and the cable's ``cable_f`` across the output, and
+    its eddy-current loss ``loss_ohm`` across the inductance — None for a
+    lossless coil); ``cap_f`` couples it to the stage through a capacitor."""
 
     kind: str
     into: str
@@ -282,6 +292,8 @@ class Source:
     l_h: float = 0.0
     c_f: float = 0.0
     cable_f: float = 0.0
+    #: eddy-current loss of a pickup, a resistance across its inductance, ohm (None: lossless)
+    loss_ohm: float | None = None
     #: coupling capacitor between the source and the first stage, F (None: DC-coupled)
     cap_f: float | None = None
     cap_rated_v: float | None = None

@@ -24,6 +24,7 @@ from chain.errors import Diagnostic, LanguageError, Span, error
 from chain.language.design import (
     ToleranceDef,
     parse_tolerance,
+    DEFAULT_PICKUP_LOSS_OHM,
     Cathode,
     Coupling,
     Design,
@@ -589,13 +590,21 @@ class _Builder:
             self.sources.append(Source("resistance", str(into), self.value(src.children[0], span, "ohm", "source resistance"),
                                        span=self.at(into, span), **cap))
         else:
-            r, l, c, *cable = src.children
+            r, l, c, *rest = src.children
+            loss = [t for t in rest if getattr(t, "data", None) in ("loss_value", "loss_off")]
+            cable = [t for t in rest if t not in loss]
+            loss_ohm: float | None = DEFAULT_PICKUP_LOSS_OHM
+            if loss and loss[0].data == "loss_off":
+                loss_ohm = None
+            elif loss:
+                loss_ohm = self.value(loss[0].children[0], span, "ohm", "pickup loss resistance")
             self.sources.append(Source(
                 "pickup", str(into),
                 r_ohm=self.value(r, span, "ohm", "winding resistance"),
                 l_h=self.value(l, span, "H", "pickup inductance"),
                 c_f=self.value(c, span, "F", "pickup capacitance"),
                 cable_f=self.value(cable[0], span, "F", "cable capacitance") if cable else 0.0,
+                loss_ohm=loss_ohm,
                 span=self.at(into, span), **cap))
 
     def _output(self, tree, span):

@@ -50,6 +50,7 @@ RANGES = {
     "pickup_l": (1e-3, 100.0, "pickup inductance"),
     "pickup_c": (0.0, 10e-9, "pickup capacitance"),
     "cable": (0.0, 100e-9, "cable capacitance"),
+    "pickup_loss": (1e3, 100e6, "pickup loss resistance"),
     "load": (100.0, 1e9, "output load"),
     "stray": (0.0, 10e-9, "stray capacitance"),
     "reference": (1.0, 1e6, "reference frequency"),
@@ -95,7 +96,7 @@ TUBE_RANGES = {
 _SI_UNITS = {"supply": "V", "bias_supply": "V", "supply_impedance": "Ω", "drop": "Ω", "decouple": "F", "plate_load": "Ω",
              "cathode": "Ω", "bypass": "F", "bypass_series": "Ω", "grid_leak": "Ω", "grid_stopper": "Ω",
              "coupling": "F", "resistor": "Ω", "capacitor": "F", "inductor": "H", "pot": "Ω",
-             "source_r": "Ω", "pickup_r": "Ω", "pickup_l": "H", "pickup_c": "F", "cable": "F", "load": "Ω",
+             "source_r": "Ω", "pickup_r": "Ω", "pickup_l": "H", "pickup_c": "F", "cable": "F", "pickup_loss": "Ω", "load": "Ω",
              "stray": "F", "reference": "Hz", "level": "V", "rated": "V", "heater": "V", "band": "Hz",
              "tail": "Ω", "grid_bypass": "F"}
 
@@ -566,6 +567,7 @@ class _Checker:
                 self.in_range("pickup_l", src.l_h, src.span)
                 self.in_range("pickup_c", src.c_f, src.span, zero_ok=True)
                 self.in_range("cable", src.cable_f, src.span, zero_ok=True)
+                self.in_range("pickup_loss", src.loss_ohm, src.span)
             if src.cap_f is not None:
                 self.in_range("coupling", src.cap_f, src.span)
                 self.in_range("rated", src.cap_rated_v, src.span)

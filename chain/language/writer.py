@@ -82,8 +82,9 @@ def format_design(d: Design) -> str:
             how = f"resistance {_r(src.r_ohm)}"
         else:
             cable = f" cable {_c(src.cable_f)}" if src.cable_f else ""
+            loss = " loss off" if src.loss_ohm is None else f" loss {_r(src.loss_ohm)}"
             how = (f"pickup winding {_r(src.r_ohm)} inductance {_l(src.l_h)} "
-                   f"capacitance {_c(src.c_f)}{cable}")
+                   f"capacitance {_c(src.c_f)}{cable}{loss}")
         if src.cap_f is not None:
             how += f" cap {_c(src.cap_f)}{_rated(src.cap_rated_v)}"
         out.append(f"input into {src.into} {how}")

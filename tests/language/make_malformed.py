@@ -54,6 +54,8 @@ CASES = [
     ("zero_plate_load", "plate 100k from B1\n  cathode 1k5\n", "plate 0 from B1\n  cathode 1k5\n", "E301", 13, 3),
     ("negative_cathode", "cathode 1k5\n  grid leak 1M\n\ncouple", "cathode -1k5\n  grid leak 1M\n\ncouple", "E301", 14, 3),
     ("absurd_coupling_cap", "cap 22n", "cap 10F", "E302", 17, 8),
+    ("pickup_loss_tiny", "input into V1 resistance 10k",
+     "input into V1 pickup winding 6k5 inductance 2.5H capacitance 120p loss 10", "E302", 5, 12),
     ("absurd_plate_load", "plate 100k from B1\n  cathode 1k5\n", "plate 1m from B1\n  cathode 1k5\n", "E302", 13, 3),
     ("unknown_input_stage", "input into V1", "input into V7", "E215", 5, 12),
     ("no_output", "output V2 load 1M\n", "", "E221", 1, 1),

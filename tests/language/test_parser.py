@@ -89,6 +89,7 @@ def test_sources_output_stray():
     assert (src.kind, src.into, src.r_ohm, src.l_h, src.c_f, src.cable_f) == ("pickup", "V1", 6500.0, 2.5, 120e-12, 470e-12)
     assert (d.output.node, d.output.load_ohm) == ("V4", 1e6)
     assert (d.strays[0].node, d.strays[0].farads) == ("V1.plate", 5e-12)
+    assert src.loss_ohm == 300e3  # the stated default eddy-current loss (chain.language.design)
     assert parse("input into V1 ideal\n").source.kind == "ideal"
     assert parse("input into V1 resistance 10k\n").source.r_ohm == 10e3
 
@@ -177,3 +178,9 @@ def test_anode_is_the_plate():
     r, r2 = d.network("fb").parts
     assert r.a == "V1.plate" and r2.b == "tone.anode"  # only a stage's terminal is renamed
     assert d.output.node == "V1.plate" and d.strays[0].node == "V1.plate"
+
+
+@pytest.mark.parametrize("tail, loss", [("", 300e3), (" loss 150k", 150e3), (" loss 1M5", 1.5e6), (" loss off", None)])
+def test_pickup_loss_is_read_after_the_cable(tail, loss):
+    d = parse(f"input into V1 pickup winding 6k5 inductance 2.5H capacitance 120p cable 470p{tail}\n")
+    assert d.source.loss_ohm == loss and d.source.cable_f == 470e-12

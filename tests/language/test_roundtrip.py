@@ -68,7 +68,8 @@ def designs(draw):
         source=draw(st.sampled_from([
             Source("ideal", stage_names[0]),
             Source("resistance", stage_names[0], 10e3),
-            Source("pickup", stage_names[0], 6500.0, 2.5, 120e-12, 470e-12)])),
+            Source("pickup", stage_names[0], 6500.0, 2.5, 120e-12, 470e-12),
+            Source("pickup", stage_names[0], 6500.0, 2.5, 120e-12, 470e-12, loss_ohm=180e3)])),
         output=draw(st.sampled_from([Output(None, 1e6),
                                      Output(f"{stage_names[-1]}.plate", 220e3,
                                             more=(Output(f"{stage_names[-1]}.cathode", 270e3),))])),

@@ -14,9 +14,9 @@ def _parts_line(name: str) -> str:
 
 
 def test_pot_halves_are_counted_as_pots_and_one_is_singular():
-    # lead demo: 21 resistors written as resistors or made by stages, rails and the
-    # load; 4 controls (drive gain and treble are pots, bass and mid rheostats)
+    # lead demo: 22 resistors written as resistors or made by stages, rails, the
+    # pickup (its eddy-current loss) and the load; 4 controls (drive gain and treble are pots, bass and mid rheostats)
     assert _parts_line("lead_four_stage.chain") == \
-        "  parts:    21 resistors, 4 pots, 13 capacitors, 1 inductor, 4 triodes"
+        "  parts:    22 resistors, 4 pots, 13 capacitors, 1 inductor, 4 triodes"
     assert _parts_line("clean_two_stage.chain") == \
-        "  parts:    11 resistors, 1 pot, 8 capacitors, 1 inductor, 2 triodes"
+        "  parts:    12 resistors, 1 pot, 8 capacitors, 1 inductor, 2 triodes"
