@@ -209,7 +209,7 @@ def parse_quantity(text: str, unit: str | None = None) -> float:
         fixed = text[:comma] + "." + text[comma + 1:]
         whole, digits = text[:comma], text[comma + 1:]
         stop = _scan_digits(digits, 0)
-        letter = digits[stop:stop + 1]
+        letter: str | None = digits[stop:stop + 1]
         rkm = f" or {whole}{letter}{digits[:stop]}{digits[stop + 1:]}" if letter and letter in _RKM_EXP else ""
         raise fail(comma, "a comma in a number (the decimal point is '.')", f"write {fixed}{rkm}")
 
@@ -276,7 +276,7 @@ def parse_quantity(text: str, unit: str | None = None) -> float:
     if got is not None and want is not None and got != want:
         raise fail(symbol_col, f"{text!r} is {_QUANTITY[got]} where {_QUANTITY[want]} is expected")
     if letter == "R" and (want or got or "ohm") != "ohm":
-        raise fail(letter_col, f"R (the RKM ohm marker) where {_QUANTITY[want or got]} is expected",
+        raise fail(letter_col, f"R (the RKM ohm marker) where {_QUANTITY[want or got or 'ohm']} is expected",
                    "write the value with a prefix or a decimal point")
     scale = _RKM_EXP[letter] if letter is not None else 0
     if (got or want) == "%":

@@ -306,7 +306,7 @@ class Output:
     node; None when a coupling leads to ``output``) and the load there."""
 
     node: str | None
-    load_ohm: float | None
+    load_ohm: float
     span: Span = _span()
     #: further output ports named on the same line (``… and PI.cathode load 220k``)
     more: tuple["Output", ...] = ()

@@ -251,7 +251,7 @@ def parse_syntax(text: str, source: str = "<string>") -> Design:
         try:
             tree = _lark().parse(body.strip())
         except UnexpectedInput as exc:
-            members = BLOCK_WORDS.get(block) if indent > 0 else None
+            members = BLOCK_WORDS.get(block) if indent > 0 and block is not None else None
             diagnostics.append(_syntax_error(exc, body.strip(), span, members))
             head = body.split()[0]
             if indent == 0 and head in ("stage", "network"):
@@ -404,7 +404,7 @@ class _Builder:
         self.source = source
         self.lines = lines
         self.title = ""
-        self.settings: dict[str, float] = {}
+        self.settings: dict[str, tuple[float, Span]] = {}
         self.supplies: list[Supply] = []
         self.rails: list[Rail] = []
         self.tubes: list[TubeDef] = []
@@ -482,7 +482,7 @@ class _Builder:
     def _set_band(self, tree, span):
         lo = self.value(tree.children[0], span, "Hz", "band start")
         hi = self.value(tree.children[1], span, "Hz", "band end")
-        self.settings["band"] = ((lo, hi), span)
+        self.settings["band_low_hz"], self.settings["band_high_hz"] = (lo, span), (hi, span)
 
     def _set_level(self, tree, span):
         token = tree.children[0].children[0]
@@ -643,6 +643,7 @@ class _Builder:
     _prefix = ""
 
     def _member(self, key: str, value, span: Span) -> None:
+        assert self.block is not None  # members are dispatched only inside an open block
         _, stage = self.block
         key = self._prefix + key
         if key in stage:
@@ -786,20 +787,20 @@ class _Builder:
         problems: list[Diagnostic] = []
         settings = Settings()
         s = self.settings
-        kw = {}
-        for key in ("reference_hz", "level_v", "heater_v"):
-            if key in s:
-                kw[key] = s[key][0]
+
+        def given(key: str, default: float) -> float:
+            return s[key][0] if key in s else default
+
         if "points" in s:
             pts, sp = s["points"]
             if pts != int(pts) or not 10 <= pts <= 100000:
                 problems.append(error("E112", f"number of points must be a whole number from 10 to 100000, not {pts:g}", sp))
             else:
-                kw["points"] = int(pts)
-        if "band" in s:
-            (lo, hi), sp = s["band"]
-            kw["band_low_hz"], kw["band_high_hz"] = lo, hi
-        settings = replace(settings, **kw)
+                settings = replace(settings, points=int(pts))
+        settings = replace(settings, reference_hz=given("reference_hz", settings.reference_hz),
+                           level_v=given("level_v", settings.level_v), heater_v=given("heater_v", settings.heater_v),
+                           band_low_hz=given("band_low_hz", settings.band_low_hz),
+                           band_high_hz=given("band_high_hz", settings.band_high_hz))
         stages = []
         for st in self.stages:
             load, rail = st.get("plate", (None, ""))
@@ -818,9 +819,9 @@ class _Builder:
                                 st.get("heater"), st["span"], dict(st.get("spans", {})), second))
         stage_names = {st["name"] for st in self.stages}
 
-        def node(name: str | None) -> str | None:
+        def node(name: str) -> str:
             """``V1.anode`` is ``V1.plate`` (anode: the trade's other word for the plate)."""
-            if name is not None and "." in name:
+            if "." in name:
                 head, tail = name.split(".", 1)
                 if head in stage_names and tail in TERMINAL_SYNONYMS:
                     return f"{head}.{TERMINAL_SYNONYMS[tail]}"
@@ -834,11 +835,12 @@ class _Builder:
         networks = tuple(Network(n["name"], n["ports"], tuple(renamed(p) for p in n["parts"]), n["span"])
                          for n in self.networks)
         strays = tuple(replace(st, node=node(st.node)) for st in self.strays)
-        outputs = [replace(o, node=node(o.node)) for o in self.outputs]
+        outputs = [replace(o, node=None if o.node is None else node(o.node)) for o in self.outputs]
         for extra in self.sources[1:]:
             problems.append(error("E113", "a design has one input; this is a second 'input' line", extra.span))
-        for extra in self.outputs[1:]:
-            problems.append(error("E113", "a design has one output; this is a second 'output' line", extra.span))
+        for extra_output in self.outputs[1:]:
+            problems.append(error("E113", "a design has one output; this is a second 'output' line",
+                                  extra_output.span))
         if problems:
             raise LanguageError(problems)
         return Design(

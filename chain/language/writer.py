@@ -135,6 +135,7 @@ def format_design(d: Design) -> str:
         out.append("")
     for c in d.couplings:
         if c.kind == "cap":
+            assert c.cap_f is not None  # the parser gives every cap coupling its value
             how = f"cap {_c(c.cap_f)}{_rated(c.rated_v)}"
         elif c.kind == "direct":
             how = "direct"
@@ -145,12 +146,12 @@ def format_design(d: Design) -> str:
         node = f" {d.output.node}" if d.output.node else ""
         more = "".join(f" and {m.node} load {_r(m.load_ohm)}" for m in d.output.more)
         out.append(f"output{node} load {_r(d.output.load_ohm)}{more}")
-    for st in d.strays:
-        out.append(f"stray {st.node} {_c(st.farads)}")
-    for t in d.tolerances:
-        lo, hi = round(100 * t.low, 9), round(100 * t.high, 9)
+    for stray in d.strays:
+        out.append(f"stray {stray.node} {_c(stray.farads)}")
+    for tol in d.tolerances:
+        lo, hi = round(100 * tol.low, 9), round(100 * tol.high, 9)
         band = f"{_n(hi)}%" if lo == -hi else f"{_n(lo)}%+{_n(hi)}%"
-        out.append(f"tolerance {'tube ' if t.tube_type else ''}{t.target} {band}")
+        out.append(f"tolerance {'tube ' if tol.tube_type else ''}{tol.target} {band}")
     return "\n".join(out) + "\n"
 
 

@@ -29,8 +29,10 @@ from __future__ import annotations
 
 import csv
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -142,7 +144,7 @@ class FitResult:
     ----------
     form : str
         Model form fitted.
-    params : dict
+    params : Mapping[str, float]
         Fitted parameter values by :class:`TriodeModel` field name, rounded
         to 4 significant figures (what ships and what the tube line says).
     model : TriodeModel
@@ -158,7 +160,7 @@ class FitResult:
     """
 
     form: str
-    params: dict
+    params: Mapping[str, float]
     model: TriodeModel
     residuals: tuple[PointResidual, ...]
     rms_fit: float
@@ -232,7 +234,7 @@ def read_points(path: str | Path, *, text: str | None = None) -> TubeData:
             k = raw.find(cell, pos)
             offsets.append(k + 1 if k >= 0 else 1)
             pos = max(k, pos) + len(cell)
-        values: dict[str, float | None] = {}
+        values: dict[str, float] = {}  # an empty optional cell stays absent (read with .get)
         bad = False
         for q, (j, scale) in cols.items():
             cell = cells[j].strip() if j < len(cells) else ""
@@ -241,7 +243,6 @@ def read_points(path: str | Path, *, text: str | None = None) -> TubeData:
                 if q in ("vpk", "vgk", "ip"):
                     problems.append(error("E702", f"missing {q} value", Span(path, i + 1, col, raw)))
                     bad = True
-                values[q] = None
                 continue
             try:
                 v = float(cell)
@@ -409,8 +410,10 @@ def fit_points(data: TubeData | tuple[DataPoint, ...], form: str, *, base: Triod
                             xtol=1e-12, ftol=1e-12, gtol=1e-12, max_nfev=4000)
         if best is None or res.cost < best[0].cost - 1e-15:
             best = (res, start)
+    assert best is not None  # _starts gives several starting models
     res, start = best
-    params = {n: _round4(v) for n, v in _unpack(names, res.x).items()}
+    # float fields of TriodeModel by name, the keyword arguments of replace() below
+    params: dict[str, Any] = {n: _round4(v) for n, v in _unpack(names, res.x).items()}
     if form == "koren":  # the held parameter belongs to the set (and to the tube line)
         params = {"mu": params["mu"], "ex": params["ex"], "kg1": params["kg1"], "kp": params["kp"],
                   "kvb": KOREN_KVB, "vct": params["vct"]}
@@ -430,7 +433,7 @@ def fit_points(data: TubeData | tuple[DataPoint, ...], form: str, *, base: Triod
 
         g = least_squares(gres, np.clip(_pack(gnames, model), glo + 1e-9, ghi - 1e-9), bounds=(glo, ghi),
                           method="trf", xtol=1e-12, ftol=1e-12, gtol=1e-12, max_nfev=2000)
-        gparams = {n: _round4(v) for n, v in _unpack(gnames, g.x).items()}
+        gparams: dict[str, Any] = {n: _round4(v) for n, v in _unpack(gnames, g.x).items()}
         params.update(gparams)
         model = replace(model, **gparams)
         grid_fitted = True
@@ -463,7 +466,7 @@ def fit_library(names: tuple[str, ...] | None = None) -> dict[str, dict[str, dic
     out: dict[str, dict[str, dict[str, float]]] = {}
     for name in names or tuple(LIBRARY):
         data = library_data(name)
-        out[name] = {form: fit_points(data, form, base=LIBRARY[name]).params for form in FORMS}
+        out[name] = {form: dict(fit_points(data, form, base=LIBRARY[name]).params) for form in FORMS}
     return out
 
 
