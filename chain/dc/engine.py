@@ -49,7 +49,7 @@ Solving
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Mapping, cast
+from typing import Literal, Mapping, cast, overload
 
 import logging
 import numpy as np
@@ -421,6 +421,14 @@ class NetworkSystem:
         assert jac is not None
         return jac
 
+    @overload
+    def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: np.ndarray, *,
+                           jacobian: Literal[True] = ...) -> tuple[np.ndarray, np.ndarray, np.ndarray]: ...
+
+    @overload
+    def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: np.ndarray, *,
+                           jacobian: Literal[False]) -> tuple[np.ndarray, None, np.ndarray]: ...
+
     def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: np.ndarray, *,
                            jacobian: bool = True) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
         f = a @ x - b
@@ -534,8 +542,8 @@ class NetworkSystem:
 
     def cold_solution(self, signal_v: float = 0.0) -> np.ndarray:
         """The unknown vector with every triode drawing no current (cold tubes), V/A."""
-        self._prepare_guess()
-        return self._z @ self.rhs(signal_v)
+        z, _, _, _ = self._prepare_guess()
+        return z @ self.rhs(signal_v)
 
     def initial_guess(self, signal_v: float = 0.0) -> np.ndarray:
         """Stage-by-stage starting point for Newton.
@@ -544,8 +552,8 @@ class NetworkSystem:
         line given the present currents of all the others (grid current
         neglected), repeated for a few Gauss–Seidel sweeps.
         """
-        self._prepare_guess()
-        x_base = self._z @ self.rhs(signal_v)
+        z, d, dvpk, dvgk = self._prepare_guess()
+        x_base = z @ self.rhs(signal_v)
         t = len(self.triode_names)
         if t == 0:
             return x_base
@@ -553,7 +561,7 @@ class NetworkSystem:
         # currents: vpk = base_pk + Dpk @ current (Dpk: t × t), so one Gauss-Seidel
         # step costs O(t) instead of forming every node voltage, O(N·t)
         dpad = np.zeros((self._n + 1, t))
-        dpad[:self._n] = self._d[:self._n]
+        dpad[:self._n] = d[:self._n]
         dpk = dpad[self._p] - dpad[self._k]
         dgk = dpad[self._g] - dpad[self._k]
         v = self._padded_v(x_base)
@@ -565,12 +573,12 @@ class NetworkSystem:
             for i in self._order:
                 vpk0 = base_pk[i] + dpk[i] @ current - dpk[i, i] * current[i]
                 vgk0 = base_gk[i] + dgk[i] @ current - dgk[i, i] * current[i]
-                new = _load_point(self._models[i], vpk0, self._dvpk[i], vgk0, self._dvgk[i])
+                new = _load_point(self._models[i], vpk0, dvpk[i], vgk0, dvgk[i])
                 change = max(change, abs(new - current[i]))
                 current[i] = new
             if change <= 1e-9 + 1e-4 * float(np.abs(current).max()):
                 break
-        return x_base + self._d @ current
+        return x_base + d @ current
 
     def vector_from_voltages(self, node_v: Mapping[str, float], signal_v: float = 0.0) -> np.ndarray:
         """Unknown vector from node voltages; missing nodes from the cold solution."""
@@ -812,13 +820,13 @@ class NetworkSystem:
         currents in ``x``; the linear network then makes Vpk and Vgk affine in
         this triode's plate current.
         """
-        self._prepare_guess()
+        _, _, dvpk, dvgk = self._prepare_guess()
         i = self.triode_names.index(triode)
         ip, _, _, _, _, vpk, vgk = self.triode_currents(x)
         return LoadLineCoefficients(
             triode=triode,
-            vpk0_v=float(vpk[i] - ip[i] * self._dvpk[i]), dvpk_dip_ohm=float(self._dvpk[i]),
-            vgk0_v=float(vgk[i] - ip[i] * self._dvgk[i]), dvgk_dip_ohm=float(self._dvgk[i]))
+            vpk0_v=float(vpk[i] - ip[i] * dvpk[i]), dvpk_dip_ohm=float(dvpk[i]),
+            vgk0_v=float(vgk[i] - ip[i] * dvgk[i]), dvgk_dip_ohm=float(dvgk[i]))
 
     def branch_current_out_of(self, x: np.ndarray, node: str, *, exclude=frozenset()) -> float:
         """Current leaving ``node`` through the voltage branches not named in ``exclude``, A."""

@@ -44,7 +44,7 @@ a fallback, and every larger circuit, uses the direct solve — dense below
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Iterable
+from typing import Iterable, overload
 
 import numpy as np
 
@@ -502,7 +502,7 @@ def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple
     check = _Checker(mna, s, b)
     if method == "direct" or (method == "auto" and (s.size <= DIRECT_BELOW or mna.size > MODAL_UP_TO)):
         solver = direct_solver(mna.g, mna.c, s)
-        return _refine_all(solver, check, b, accept=np.inf), _name(solver)
+        return _refine_all(solver, check, b, accept=None), _name(solver)
     try:
         solver = ModalSolver(mna.g, mna.c, s)
     except _Unsuitable:
@@ -516,7 +516,7 @@ def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple
             "E506", "the modal frequency solve is inaccurate for this circuit",
             hint="use method='direct'"))
     solver = direct_solver(mna.g, mna.c, s)
-    return _refine_all(solver, check, b, accept=np.inf), _name(solver)
+    return _refine_all(solver, check, b, accept=None), _name(solver)
 
 
 def _name(solver) -> str:
@@ -548,7 +548,7 @@ def solve_entry(mna: Mna, s: np.ndarray, b: np.ndarray, index: int,
             raise AnalysisError(error(
                 "E506", "the modal frequency solve is inaccurate for this circuit",
                 hint="use method='direct'"))
-    x = _refine_all(direct_solver(mna.g, mna.c, s), _Checker(mna, s, b), b, accept=np.inf)
+    x = _refine_all(direct_solver(mna.g, mna.c, s), _Checker(mna, s, b), b, accept=None)
     return x[:, index]
 
 
@@ -571,11 +571,20 @@ def _refine_entry(solver: ModalSolver, mna: Mna, s: np.ndarray, b: np.ndarray,
     return None
 
 
+@overload
+def _refine_all(solver, check: "_Checker", b: np.ndarray, *, accept: None) -> np.ndarray: ...
+
+
+@overload
+def _refine_all(solver, check: "_Checker", b: np.ndarray, *, accept: float = ...) -> np.ndarray | None: ...
+
+
 def _refine_all(solver, check: "_Checker", b: np.ndarray, *,
-                accept: float = BACKWARD_TOL) -> np.ndarray | None:
+                accept: float | None = BACKWARD_TOL) -> np.ndarray | None:
     """Iterative refinement (from memory of Higham, "Accuracy and Stability of
     Numerical Algorithms", ch. 12): ``x ← x + solve(b − Y·x)`` while the
-    componentwise backward error improves; None unless it ends ≤ ``accept``."""
+    componentwise backward error improves; None unless it ends ≤ ``accept``
+    (``accept=None``: the result is kept whatever its backward error)."""
     x = solver.solve(b)
     if isinstance(solver, ModalSolver):
         # the modal solve is never at rounding level by itself: one correction
@@ -590,7 +599,7 @@ def _refine_all(solver, check: "_Checker", b: np.ndarray, *,
         if not berr_new < berr:
             break
         x, r, berr = x_new, r_new, berr_new
-    return x if berr <= accept else None
+    return x if accept is None or berr <= accept else None
 
 
 class _Checker:

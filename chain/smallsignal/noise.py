@@ -320,7 +320,7 @@ def noise(ss: SmallSignalCircuit, *, reference_hz: float = 1000.0, level_v: floa
     contributors.sort(key=lambda c: -c.power_v2)
     iref = int(np.argmin(np.abs(f - reference_hz)))
     return NoiseResult(
-        f_hz=_frozen(f), output_psd_v2_hz=_frozen(total), gain=_frozen(gain), band_hz=tuple(band_hz),
+        f_hz=_frozen(f), output_psd_v2_hz=_frozen(total), gain=_frozen(gain), band_hz=(band_hz[0], band_hz[1]),
         reference_hz=float(reference_hz), temperature_k=float(temperature_k),
         grid_noise_factor=float(grid_noise_factor), flicker_corner_hz=float(flicker_corner_hz),
         output_rms_v=float(np.sqrt(p_tot)), output_rms_a_v=float(np.sqrt(p_tot_a)),

@@ -266,6 +266,7 @@ def overall(resp: Response, f_ref_hz: float, *, at: Response | None = None) -> O
         low, high = response_corners(resp, ref_hz=f_ref_hz)
     else:
         low, high = None, None
+    assert at.zout_ohm is not None  # a reference response computes every impedance
     outputs = []
     for label, node in resp.ss.circuit.outputs.items():
         g = complex(at.h[node][0])
