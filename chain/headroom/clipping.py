@@ -304,8 +304,8 @@ class StageHeadroom:
     def compression(self, db: float) -> Compression | None:
         """The earlier of the two half-waves' compression points for ``db`` (1 or 3)."""
         k = COMPRESSION_DB.index(db)
-        found = [h.compression[k] for h in (self.positive, self.negative)
-                 if len(h.compression) > k and h.compression[k] is not None]
+        found = [c for h in (self.positive, self.negative)
+                 if len(h.compression) > k and (c := h.compression[k]) is not None]
         return min(found, key=lambda c: c.input_v) if found else None
 
 
@@ -358,8 +358,8 @@ class Headroom:
     def first_thd(self) -> StageHeadroom | None:
         """The first stage to reach the lowest THD threshold of its own
         (``thd_input_v[0]``) as the input rises; None when none does."""
-        reaching = [r for r in self.stages if r.thd_input_v and r.thd_input_v[0] is not None]
-        return min(reaching, key=lambda r: r.thd_input_v[0]) if reaching else None
+        reaching = [(v, r) for r in self.stages if r.thd_input_v and (v := r.thd_input_v[0]) is not None]
+        return min(reaching, key=lambda p: p[0])[1] if reaching else None
 
     def stage(self, name: str) -> StageHeadroom:
         for s in self.stages:
@@ -404,7 +404,7 @@ def _onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, pola
     """The onset of one mechanism on one side over all the stage's triodes (the
     earliest), and the last sweep index before it."""
     found = [_triode_onset(net, curves, stage, name, polarity, mechanism) for name in stage.triodes]
-    hits = [f for f in found if f[0] is not None]
+    hits = [(o, k) for o, k in found if o is not None]
     if not hits:
         return None, min(k for _, k in found)
     return min(hits, key=lambda f: f[0].input_v)
@@ -478,7 +478,7 @@ def _compression(curves: TransferCurves, stage: StageRecord, polarity: str) -> t
     mid_v = 0.5 * (v[1:] + v[:-1])
     mid_x = 0.5 * (x[1:] + x[:-1])
     mid_y = 0.5 * (y[1:] + y[:-1])
-    out = []
+    out: list[Compression | None] = []
     for db in COMPRESSION_DB:
         target = gain[0] * 10.0 ** (-db / 20.0)
         below = np.flatnonzero(np.isfinite(gain) & (gain <= target))
@@ -531,7 +531,7 @@ def _half_wave(net: MidBandNetwork, curves: TransferCurves, stage: StageRecord, 
                           compression=_compression(curves, stage, polarity))
     reaches = {}
     for i, (port, node) in enumerate(stage.outputs.items()):
-        reaches[port] = _reach(curves, node, polarity, limit, k_grid, k_cut, lambda o, i=i: o.ports_v[i])
+        reaches[port] = _reach(curves, node, polarity, limit, k_grid, k_cut, lambda o: o.ports_v[i])
     return limit, reaches
 
 
@@ -579,6 +579,7 @@ def _summary(first: StageHeadroom | None, level_v: float, first_thd: StageHeadro
         text = "no stage clips within the sweep (neither grid conduction nor cutoff was reached)"
     else:
         onset = first.first
+        assert onset is not None  # a stage that clips has an onset
         if onset.input_v == 0.0:
             return (f"first to clip: stage {first.stage}, by {onset.mechanism}, already at rest "
                     f"({first.first_polarity} half-wave: the DC operating point is past the limit)")
@@ -594,14 +595,15 @@ def _summary(first: StageHeadroom | None, level_v: float, first_thd: StageHeadro
             text += f"; its own THD there is {_pct(first.own_thd_at_clip)}"
     if thd_level is not None:
         pct = f"{100 * thd_level:g} %"
-        if first_thd is None:
+        thd_v = first_thd.thd_input_v[0] if first_thd is not None else None
+        if first_thd is None or thd_v is None:
             text += f"; no stage reaches {pct} THD of its own in the sweep"
         elif first is None or first_thd is not first:
             text += (f"; first to reach {pct} THD of its own: stage {first_thd.stage}, at "
-                     f"{format_si(first_thd.thd_input_v[0], 'V')} peak at the input")
+                     f"{format_si(thd_v, 'V')} peak at the input")
         else:
             text += f" and it is also the first to reach {pct} THD of its own, at " \
-                    f"{format_si(first_thd.thd_input_v[0], 'V')} peak at the input"
+                    f"{format_si(thd_v, 'V')} peak at the input"
     return text
 
 
@@ -682,8 +684,8 @@ def headroom(circuit: Circuit, dc: DcSolution, *, level_v: float, f_ref_hz: floa
                    cutoff_fraction=cutoff_fraction)
     thd_levels = tuple(float(t) for t in thd_levels)
     rows = tuple(_stage_headroom(net, curves, s, level_v, thd_levels) for s in circuit.stages)
-    clipping = [r for r in rows if r.clip_input_v is not None]
-    first = min(clipping, key=lambda r: r.clip_input_v) if clipping else None
+    clipping = [(v, r) for r in rows if (v := r.clip_input_v) is not None]
+    first = min(clipping, key=lambda p: p[0])[1] if clipping else None
     span = min(abs(float(curves.input_v[0])), float(curves.input_v[-1]))
     levels = np.abs(curves.input_v[curves.zero_index + 1:])
     levels = levels[levels <= span]
@@ -693,8 +695,8 @@ def headroom(circuit: Circuit, dc: DcSolution, *, level_v: float, f_ref_hz: floa
     else:
         overall_thd = tuple(None for _ in thd_levels)
     spec = distortion_in(net, level_v=level_v, points=spectrum_points) if spectrum else None
-    reaching = [r for r in rows if r.thd_input_v and r.thd_input_v[0] is not None]
-    first_thd = min(reaching, key=lambda r: r.thd_input_v[0]) if reaching else None
+    reaching = [(v, r) for r in rows if r.thd_input_v and (v := r.thd_input_v[0]) is not None]
+    first_thd = min(reaching, key=lambda p: p[0])[1] if reaching else None
     summary = _summary(first, level_v, first_thd, thd_levels[0] if thd_levels else None)
     return Headroom(level_v=float(level_v), stages=rows, first=first, summary=summary,
                     thd_levels=thd_levels, overall_thd_input_v=overall_thd,
