@@ -291,7 +291,8 @@ def noise(ss: SmallSignalCircuit, *, reference_hz: float = 1000.0, level_v: floa
         f = np.geomspace(band_hz[0], band_hz[1], points)
     else:
         f = np.asarray(f_hz, dtype=float)
-    f = np.unique(np.append(f, reference_hz))
+    f = np.sort(np.append(f, reference_hz))
+    f = f[np.r_[True, f[1:] != f[:-1]]]  # np.unique imports numpy.ma on first use (start-up)
     s = 2j * np.pi * f
     mna = assemble(ss)
     sources = noise_sources(ss, temperature_k=temperature_k, grid_noise_factor=grid_noise_factor,

@@ -12,6 +12,19 @@ Computations", §7.7).  Before QZ the pencil is equilibrated (rows and
 columns scaled by powers of two) and ``s`` is scaled by ``s0 = 2π·1 kHz``
 so that both matrices are of order one.
 
+QZ lives in ``scipy.linalg``, whose import alone costs more than a whole
+report; so the finite eigenvalues are first sought without it.  With the
+singular value decomposition ``C = U·Σ·Vᵀ`` (rank ``r``) the pencil becomes
+``Uᵀ(G + sC)V = [[A₁₁ + sΣ₁, A₁₂], [A₂₁, A₂₂]]``; when ``A₂₂`` is well
+conditioned (the algebraic unknowns are fixed by the dynamic ones: an
+index-1 system) its Schur complement ``S = A₁₁ − A₁₂·A₂₂⁻¹·A₂₁`` leaves the
+ordinary eigenproblem ``−Σ₁⁻¹·S·y = s·y`` of size ``r`` whose eigenvalues
+are exactly the finite ones of the pencil, and the pencil's eigenvectors
+follow from ``y`` by the same elimination (from memory of Golub & Van
+Loan, §7.7, on deflating the infinite eigenvalues of a pencil).  When
+``A₂₂`` is ill conditioned (eigenvalues at infinity of higher index) QZ is
+used.
+
 Zeros of the transfer from the source EMF to node ``k`` are the finite
 generalized eigenvalues of the pencil bordered by the source column and
 the output row (the Rosenbrock system matrix; from memory of H. H.
@@ -186,23 +199,147 @@ def pencil_eigen(mna: Mna, *, vectors: bool = False):
     unscaled coordinates, columns matching ``s``:
     ``wᴴ·(G + sC) = 0``, ``(G + sC)·v = 0``.
     """
-    from scipy.linalg import eig
-
     gs, cs, r, col = _scaled_pencil(mna.g, mna.c)
-    if vectors:
-        (alpha, beta), wl, vr = eig(gs, -cs, left=True, right=True, homogeneous_eigvals=True)
-    else:
-        alpha, beta = eig(gs, -cs, right=False, homogeneous_eigvals=True)
-    keep = _finite(alpha, beta)
-    s = alpha[keep] / beta[keep] * S0
+    got = _reduced_eigen(gs, cs, vectors=vectors)
+    if got is None:
+        got = _qz_eigen(gs, cs, vectors=vectors)
+    s, wl, vr = got
+    s = s * S0
     order = np.lexsort((s.imag, _magnitude_key(s)))
     s = s[order]
     if not vectors:
         return s
     # scaled pencil: R·(G + sC)·Col; right vector v = Col·ṽ, left w = R·w̃
-    v = col[:, None] * vr[:, keep][:, order]
-    w = r[:, None] * wl[:, keep][:, order]
+    v = col[:, None] * vr[:, order]
+    w = r[:, None] * wl[:, order]
     return s, w, v
+
+
+#: a singular value of the scaled ``C`` below this fraction of the largest is zero
+RANK_REL = 1e-13
+#: reciprocal condition of ``A₂₂`` below which the reduction gives way to QZ
+REDUCTION_RCOND = 1e-10
+#: largest relative step of the Rayleigh-quotient correction of an eigenvalue
+RQ_STEP_REL = 1e-6
+
+
+@dataclass(frozen=True, slots=True)
+class _Reduced:
+    """The scaled pencil with its infinite eigenvalues deflated (module docstring):
+    ``Uᵀ(gs + s̃·cs)V = [[A₁₁ + s̃Σ₁, A₁₂], [A₂₁, A₂₂]]`` and
+    ``S = A₁₁ − A₁₂·A₂₂⁻¹·A₂₁``; the state matrix is ``−Σ₁⁻¹·S``."""
+
+    k: int
+    sig: np.ndarray
+    u: np.ndarray
+    v: np.ndarray
+    #: A₂₂⁻¹·A₂₁ and A₁₂·A₂₂⁻¹
+    x21: np.ndarray
+    x12: np.ndarray
+    a22: np.ndarray
+    schur: np.ndarray | None
+
+    @property
+    def state(self) -> np.ndarray:
+        assert self.schur is not None
+        return -(self.schur / self.sig[:, None])
+
+
+def _reduce(gs: np.ndarray, cs: np.ndarray, *, allow_singular: bool = False) -> _Reduced | None:
+    """Deflate the infinite eigenvalues of ``gs + s̃·cs``; None when ``A₂₂`` is
+    too ill conditioned for that (eigenvalues at infinity of higher index),
+    or with ``allow_singular`` the rotations alone (``schur`` None)."""
+    n = gs.shape[0]
+    rows = np.flatnonzero(np.any(cs != 0.0, axis=1))
+    cols = np.flatnonzero(np.any(cs != 0.0, axis=0))
+    if rows.size == 0:
+        return None
+    u, sig, vt = np.linalg.svd(cs[np.ix_(rows, cols)])
+    k = int(np.sum(sig > RANK_REL * sig[0]))
+    # orthogonal U, V acting on the dynamic rows and columns only; the k
+    # directions with a capacitance first, then everything else
+    big_u = np.eye(n)
+    big_u[np.ix_(rows, rows)] = u
+    big_v = np.eye(n)
+    big_v[np.ix_(cols, cols)] = vt.T
+    rest_r = np.setdiff1d(np.arange(n), rows[:k], assume_unique=True)
+    rest_c = np.setdiff1d(np.arange(n), cols[:k], assume_unique=True)
+    # column j < k of the reordered U is column rows[j] of big_u (u's j-th left vector)
+    big_u = big_u[:, np.r_[rows[:k], rest_r]]
+    big_v = big_v[:, np.r_[cols[:k], rest_c]]
+    a = big_u.T @ gs @ big_v
+    a11, a12, a21, a22 = a[:k, :k], a[:k, k:], a[k:, :k], a[k:, k:]
+    if a22.size:
+        try:
+            if 1.0 / np.linalg.cond(a22, 1) < REDUCTION_RCOND:
+                raise np.linalg.LinAlgError("ill conditioned")
+            x21 = np.linalg.solve(a22, a21)
+            x12 = np.linalg.solve(a22.T, a12.T).T
+        except np.linalg.LinAlgError:
+            if not allow_singular:
+                return None
+            return _Reduced(k, sig[:k], big_u, big_v, np.zeros((0, k)), np.zeros((k, 0)), a22, None)
+        schur = a11 - a12 @ x21
+    else:
+        x21 = np.zeros((0, k))
+        x12 = np.zeros((k, 0))
+        schur = a11
+    return _Reduced(k, sig[:k], big_u, big_v, x21, x12, a22, schur)
+
+
+def _reduced_eigen(gs: np.ndarray, cs: np.ndarray, *, vectors: bool):
+    """Finite eigenvalues ``s̃`` of the scaled pencil ``gs + s̃·cs`` (and left,
+    right eigenvectors) by deflating the infinite ones (module docstring);
+    None when ``A₂₂`` is too ill conditioned for that."""
+    if not np.any(cs != 0.0):
+        empty = np.empty((gs.shape[0], 0), dtype=complex)
+        return np.empty(0, dtype=complex), empty, empty
+    red = _reduce(gs, cs)
+    if red is None:
+        return None
+    k, sig, big_u, big_v, x21, x12 = red.k, red.sig, red.u, red.v, red.x21, red.x12
+    lam, y = np.linalg.eig(red.state)
+    try:
+        # rows of Y⁻¹ are the left eigenvectors of m: uᴴ·m = λ·uᴴ
+        u_left = np.linalg.inv(y).conj().T
+    except np.linalg.LinAlgError:
+        return None
+    keep = np.abs(lam) * INFINITE_BETA < 1.0
+    lam, y, u_left = lam[keep], y[:, keep], u_left[:, keep]
+    # right: ξ = [y; −A₂₂⁻¹A₂₁·y];  left: zᴴ = uᴴ·Σ₁⁻¹, ηᴴ = −zᴴ·A₁₂·A₂₂⁻¹
+    z = u_left / sig[:k, None]
+    right = big_v @ np.vstack([y, -(x21 @ y)])
+    left = big_u @ np.vstack([z, -(x12.T @ z)])
+    # the elimination costs some digits on close poles; the two-sided Rayleigh
+    # quotient −wᴴ·G·v / wᴴ·C·v on the whole pencil wins them back (its error is
+    # the product of the two vectors' errors); a step larger than a rounding
+    # correction (a nearly defective pair, wᴴ·C·v ≈ 0) is not taken
+    den = np.sum(left.conj() * (cs @ right), axis=0)
+    num = np.sum(left.conj() * (gs @ right), axis=0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rq = -num / den
+    take = np.isfinite(rq) & (np.abs(rq - lam) <= RQ_STEP_REL * np.abs(lam))
+    # a real eigenvalue of the real reduced matrix stays real
+    rq = np.where(lam.imag == 0.0, rq.real + 0j, rq)
+    lam = np.where(take, rq, lam)
+    if not vectors:
+        return lam, None, None
+    return lam, left, right
+
+
+def _qz_eigen(gs: np.ndarray, cs: np.ndarray, *, vectors: bool):
+    """Finite eigenvalues of the scaled pencil by QZ (``scipy.linalg.eig``)."""
+    from scipy.linalg import eig
+
+    if vectors:
+        (alpha, beta), wl, vr = eig(gs, -cs, left=True, right=True, homogeneous_eigvals=True)
+    else:
+        alpha, beta = eig(gs, -cs, right=False, homogeneous_eigvals=True)
+    keep = _finite(alpha, beta)
+    lam = alpha[keep] / beta[keep]
+    if not vectors:
+        return lam, None, None
+    return lam, wl[:, keep], vr[:, keep]
 
 
 def _stamp_pair(st: Stamp, w: np.ndarray, v: np.ndarray, s: complex) -> tuple[complex, complex]:
@@ -266,21 +403,86 @@ def poles(ss: SmallSignalCircuit, *, mna: Mna | None = None, parts: int = 3) -> 
 
 
 def zeros(mna: Mna, node: int) -> np.ndarray:
-    """Finite zeros ``s`` (rad/s) of the transfer from the source EMF to unknown ``node``."""
-    from scipy.linalg import eig
+    """Finite zeros ``s`` (rad/s) of the transfer from the source EMF to unknown ``node``.
 
-    n = mna.size
-    g = np.zeros((n + 1, n + 1))
-    c = np.zeros((n + 1, n + 1))
-    g[:n, :n] = mna.g
-    c[:n, :n] = mna.c
-    g[:n, n] = mna.source_rhs()
-    g[n, node] = 1.0
-    gs, cs, _, _ = _scaled_pencil(g, c)
-    alpha, beta = eig(gs, -cs, right=False, homogeneous_eigvals=True)
-    keep = _finite(alpha, beta)
-    z = alpha[keep] / beta[keep] * S0
+    By Cramer's rule (on the transposed system) the transfer's numerator is
+    the determinant of the pencil with the source's own equation (the row
+    of its branch: the EMF across its nodes) replaced by ``x_node = 0``;
+    that row holds no capacitance, so ``C`` stays as it is.
+    """
+    g = mna.g.copy()
+    br = mna.source.branch
+    g[br, :] = 0.0
+    g[br, node] = 1.0
+    gs, cs, _, _ = _scaled_pencil(g, mna.c)
+    z = _finite_eigenvalues(gs, cs)
+    if z is None:
+        z = _qz_eigen(gs, cs, vectors=False)[0]
+    z = z * S0
     return z[np.lexsort((z.imag, _magnitude_key(z)))]
+
+
+#: real shifts (scaled, ``s̃``) for the zeros' shift-and-invert, tried in turn
+ZERO_SHIFTS = (1.0, 2.0 ** 0.5, 3.0)
+#: the shift for the zeros far above the band (10 MHz), whose digits a shift near
+#: 1 kHz loses
+FAR_SHIFT = 1e4
+#: an eigenvalue ``μ`` of the shifted inverse below this fraction of the largest
+#: stands for a zero at infinity
+INFINITE_MU = 1e-8
+
+
+def _finite_eigenvalues(gs: np.ndarray, cs: np.ndarray) -> np.ndarray | None:
+    """Finite eigenvalues ``s̃`` of ``gs + s̃·cs`` by shift and invert.
+
+    ``(gs + σ·cs)⁻¹·cs·v = μ·v`` with ``s̃ = σ − 1/μ``: the eigenvalues at
+    infinity become ``μ = 0`` (exactly, or within rounding of it when they
+    are of higher index, as when the output node has a capacitance; from
+    memory of Golub & Van Loan, §7.6, shift-and-invert).  An eigenvalue
+    near the shift comes out to full accuracy, one far from it loses
+    ``|s̃/σ|`` in relative accuracy; so those far above the band are taken
+    from a second solve shifted to :data:`FAR_SHIFT`.  The shifts are real
+    so that real eigenvalues stay real.  None when every shift is (nearly)
+    an eigenvalue.
+    """
+    near = None
+    for sigma in ZERO_SHIFTS:
+        near = _shift_invert(gs, cs, sigma)
+        if near is not None:
+            break
+    if near is None or near.size == 0 or np.max(np.abs(near)) < math.sqrt(FAR_SHIFT):
+        return near
+    far = _shift_invert(gs, cs, FAR_SHIFT)
+    if far is None or far.size == 0:
+        return near
+    out = near.copy()
+    for i in np.flatnonzero(np.abs(near) > math.sqrt(FAR_SHIFT)):
+        j = int(np.argmin(np.abs(far - near[i])))
+        if abs(far[j] - near[i]) <= 1e-4 * abs(near[i]):
+            out[i] = far[j]
+    return out
+
+
+def _shift_invert(gs: np.ndarray, cs: np.ndarray, sigma: float) -> np.ndarray | None:
+    if gs.shape[0] == 0 or not np.any(cs != 0.0):
+        return np.empty(0, dtype=complex)
+    shifted = gs + sigma * cs
+    try:
+        m = np.linalg.solve(shifted, cs)
+    except np.linalg.LinAlgError:
+        return None
+    if not np.all(np.isfinite(m)):
+        return None
+    mu = np.linalg.eigvals(m)
+    big = np.max(np.abs(mu))
+    if big == 0.0:
+        return np.empty(0, dtype=complex)
+    mu = mu[np.abs(mu) > INFINITE_MU * big]
+    return _finite_only(sigma - 1.0 / mu.astype(complex))
+
+
+def _finite_only(lam: np.ndarray) -> np.ndarray:
+    return lam[np.abs(lam) * INFINITE_BETA < 1.0]
 
 
 def _magnitude_key(s: np.ndarray) -> np.ndarray:

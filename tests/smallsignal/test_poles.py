@@ -155,3 +155,83 @@ def test_pole_sensitivities_match_finite_differences():
             assert abs(fd - sens) <= 1e-4 * max(abs(sens), 1e-2), (name, p.s_hz, fd, sens)
             checked += 1
     assert checked >= 12
+
+
+def _rc_ladder(sections: int, r: float, c: float):
+    def build(net):
+        prev = "src"
+        for i in range(1, sections + 1):
+            node = "out" if i == sections else f"n{i}"
+            net.r(f"R{i}", prev, node, r)
+            net.c(f"C{i}", node, GROUND, c)
+            prev = node
+    return _passive(build)
+
+
+@pytest.mark.parametrize("sections", [1, 3, 8])
+def test_rc_ladder_poles_closed_form(sections):
+    """A uniform RC ladder (series R, shunt C, open at the far end) driven by a
+    voltage source: its nodal matrix is (1/R)·T with T tridiagonal (2, −1) and
+    a last diagonal entry 1, whose eigenvalues are 2 − 2·cos((2k−1)π/(2n+1)),
+    k = 1…n (the discrete Laplacian with one fixed and one free end; from memory
+    of G. Strang, "Introduction to Applied Mathematics", §1.5), so the poles
+    are s = −(2 − 2cos((2k−1)π/(2n+1)))/(RC)."""
+    r, c = 10e3, 47e-9
+    got = np.sort(np.array([p.s_hz for p in poles(_rc_ladder(sections, r, c), parts=0)]).real)
+    k = np.arange(1, sections + 1)
+    expected = np.sort(-(2 - 2 * np.cos((2 * k - 1) * np.pi / (2 * sections + 1))) / (r * c) / (2 * np.pi))
+    assert_allclose(got, expected, rtol=1e-10)
+
+
+def _qz(g, c):
+    """Finite generalized eigenvalues of G + sC by scipy's QZ (the outside reference)."""
+    from scipy.linalg import eig
+
+    alpha, beta = eig(g, -c, right=False, homogeneous_eigvals=True)
+    keep = np.abs(beta) > 1e-9 * np.abs(alpha)
+    return alpha[keep] / beta[keep]
+
+
+def _matched_rel_error(got, ref):
+    got = np.asarray(got)
+    assert got.size == len(ref)
+    return max(float(np.min(np.abs(got - x)) / max(abs(x), 1.0)) for x in ref)
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
+def test_poles_and_zeros_agree_with_qz(path):
+    """The poles (deflated reduction) and output zeros (shift and invert on
+    the Cramer numerator) against scipy.linalg.eig's QZ of the same pencils,
+    equilibrated the way the module does it."""
+    from chain.smallsignal.poles import S0, _scaled_pencil, zeros
+
+    ss = demo_ss(path)
+    mna = assemble(ss)
+    gs, cs, _, _ = _scaled_pencil(mna.g, mna.c)
+    assert _matched_rel_error(pencil_eigen(mna), _qz(gs, cs) * S0) < 1e-8
+    k = mna.index[ss.node_of.get(ss.output_node, ss.output_node)]
+    n = mna.size
+    g = np.zeros((n + 1, n + 1))
+    c = np.zeros((n + 1, n + 1))
+    g[:n, :n], c[:n, :n] = mna.g, mna.c
+    g[:n, n] = mna.source_rhs()
+    g[n, k] = 1.0  # the bordered (Rosenbrock) pencil
+    gb, cb, _, _ = _scaled_pencil(g, c)
+    assert _matched_rel_error(zeros(mna, k), _qz(gb, cb) * S0) < 1e-7
+
+
+def test_zeros_of_an_rc_low_pass_pair_at_a_capacitive_node():
+    """Source → R1 → a (C1 to ground) → R2 → out (C2 to ground), read at ``a``:
+    H = (1 + s·R2·C2)/D(s), a single zero at −1/(R2·C2) (nodal analysis by
+    hand); the output node has a capacitance, which makes the bordered
+    pencil of higher index."""
+    from chain.smallsignal.poles import zeros
+
+    r1, r2, c1, c2 = 1e3, 22e3, 100e-9, 4.7e-9
+    ss = _passive(lambda n: (n.r("R1", "src", "a", r1), n.c("C1", "a", GROUND, c1),
+                             n.r("R2", "a", "out", r2), n.c("C2", "out", GROUND, c2)))
+    mna = assemble(ss)
+    z = zeros(mna, mna.index[ss.node_of.get("a", "a")])
+    assert_allclose(z, [-1.0 / (r2 * c2)], rtol=1e-10)
+    z_out = zeros(mna, mna.index[ss.node_of.get(ss.output_node, ss.output_node)])
+    assert z_out.size == 0
