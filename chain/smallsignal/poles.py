@@ -536,12 +536,15 @@ def pole_zero(ss: SmallSignalCircuit, node: str | None = None, *, ref_hz: float 
 def _snap_conjugates(roots: list[complex]) -> list[complex]:
     """Make real roots exactly real (tiny imaginary parts from rounding) and
     roots within rounding of the origin (a coupling capacitor's zero at DC,
-    found as ~1e-14 Hz) exactly zero."""
+    found as ~1e-14 Hz) exactly zero.  A double real root (two equal stages'
+    plate-to-grid zeros) comes out of any eigen-solver as two roots about
+    √ε·|r| apart, as often a complex pair as two real ones; a pair that close
+    to the real axis (``|Im r| ≤ 1e-6·|r|``) is taken as real."""
     out = []
     for r in roots:
         if abs(r) < 1e-9:
             r = 0j
-        elif abs(r.imag) <= 1e-12 * abs(r):
+        elif abs(r.imag) <= 1e-6 * abs(r):
             r = complex(r.real, 0.0)
         out.append(r)
     return out

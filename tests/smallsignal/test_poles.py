@@ -217,7 +217,8 @@ def test_poles_and_zeros_agree_with_qz(path):
     g[:n, n] = mna.source_rhs()
     g[n, k] = 1.0  # the bordered (Rosenbrock) pencil
     gb, cb, _, _ = _scaled_pencil(g, c)
-    assert _matched_rel_error(zeros(mna, k), _qz(gb, cb) * S0) < 1e-7
+    # two equal stages give a double zero (gm/Cgp), which any solver splits by about √ε
+    assert _matched_rel_error(zeros(mna, k), _qz(gb, cb) * S0) < 1e-6
 
 
 def test_zeros_of_an_rc_low_pass_pair_at_a_capacitive_node():
