@@ -8,11 +8,15 @@ batched
     Newton, per-sample small-signal matrices, the response at the design's
     500 sweep points (+ the reference frequency), and per stage at 1 kHz the
     loaded gain and output impedance.  Best of REPEATS.
+    With the first clip of every build (``chain.spread.clip``: the batched
+    quasi-static mid-band sweep of the headroom analysis); the time without
+    it is printed beside.
 loop
     the same figures one build at a time with the single-circuit code:
     ``chain.dc.solve`` + ``linearize`` + ``response`` (500 points) +
-    ``stage_table`` at 1 kHz, on LOOP builds (parts scaled in the circuit);
-    the time per build × N gives the loop's cost for N builds.
+    ``stage_table`` at 1 kHz + ``chain.headroom.headroom`` (no spectrum), on
+    LOOP builds (parts scaled in the circuit); the time per build × N gives
+    the loop's cost for N builds.
 noise
     ``chain.smallsignal.noise.noise`` of the nominal build (one adjoint sweep
     over 242 points) against one ``response`` sweep of the same circuit
@@ -49,6 +53,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from chain.analysis import sweep_frequencies  # noqa: E402
 from chain.build import load  # noqa: E402
 from chain.dc import SolveOptions, solve  # noqa: E402
+from chain.headroom import headroom  # noqa: E402
 from chain.smallsignal import linearize, response, stage_table  # noqa: E402
 from chain.smallsignal.noise import noise  # noqa: E402
 from chain.spread.montecarlo import _Model, draw  # noqa: E402
@@ -101,8 +106,13 @@ def main() -> int:
     def batched():
         out["r"] = model.run(dev, sweep=True)
 
-    t_batch = best(batched, args.repeats, args.clock)
+    def batched_clip():
+        out["c"] = model.run(dev, sweep=True, clip=True)
+
+    t_small = best(batched, args.repeats, args.clock)
+    t_batch = best(batched_clip, args.repeats, args.clock)
     assert out["r"]["converged"].all()
+    assert not out["c"]["_clip"].failed.any()
 
     fac = model.factors(dev[:args.loop])
     circuits = [_modified(circuit, dict(zip(model.batch.elements, row))) for row in fac]
@@ -113,6 +123,7 @@ def main() -> int:
             ss = linearize(cm, dm)
             resp = response(ss, f, stage_impedances=False)
             stage_table(cm, dm, resp, design.settings.reference_hz, design.settings.level_v)
+            headroom(cm, dm, level_v=design.settings.level_v, spectrum=False)
 
     t_loop = best(loop, args.repeats, args.clock) / args.loop * args.n
 
@@ -123,6 +134,7 @@ def main() -> int:
     print(f"python {platform.python_version()}, numpy {np.__version__}, {os.cpu_count()} CPUs, "
           f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS')}, clock: {args.clock}")
     print(f"{NETLIST}: {len(groups)} varied groups, {len(f)} frequencies")
+    print(f"batched  {args.n} builds, small-signal only: {t_small:8.3f} s; first clip adds {t_batch - t_small:6.3f} s")
     print(f"batched  {args.n} builds: {t_batch:8.3f} s  ({args.n / t_batch:8.0f} builds/s)")
     print(f"loop     {args.n} builds: {t_loop:8.3f} s  (extrapolated from {args.loop} builds, "
           f"{args.n / t_loop:6.1f} builds/s)")

@@ -190,8 +190,9 @@ def _parser() -> argparse.ArgumentParser:
     sp = sub.add_parser("spread", help="many builds at once: part and tube tolerances, worst cases, what-ifs",
                         description="Monte Carlo over the part and tube tolerances (the netlist's 'tolerance' "
                                     "lines, else common-practice defaults): per stage the spread of the bias "
-                                    "point, dissipation, gain and output impedance, the response band, and "
-                                    "the builds that break a rating; worst-case corners beside the percentiles.")
+                                    "point, dissipation, gain, output impedance and first-clip level, which "
+                                    "stage clips first, the unstable builds, the response band, and the "
+                                    "builds that break a rating; worst-case corners beside the percentiles.")
     sp.add_argument("file", metavar="FILE")
     sp.add_argument("--samples", "-n", type=int, default=1000, metavar="N", help="builds drawn (default 1000)")
     sp.add_argument("--seed", type=int, default=1, help="random seed (default 1): the same seed, the same builds")

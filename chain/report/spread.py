@@ -56,6 +56,29 @@ def stability_section(r) -> dict[str, Any]:
     }
 
 
+def first_clip_section(r) -> dict[str, Any] | None:
+    """The ``first_clip`` part of the spread document (None when not computed)."""
+    fc = r.first_clip
+    if fc is None:
+        return None
+    return {
+        "method": "quasi-static mid-band sweep of every build, as the nominal headroom analysis",
+        "nominal_first": fc.nominal or None,
+        "first_fractions": {k: num(v) for k, v in fc.fractions.items()},
+        "changed_fraction": num(fc.changed),
+        "counted": int(fc.counted), "failed": int(fc.failed),
+        "draws": [{"sample": i, "first": first, "deviations": [{"group": lab, "deviation": num(d)}
+                                                               for lab, d in devs]}
+                  for i, first, devs in fc.draws],
+        "influence": [{"group": g, "rho": num(rho)} for g, rho in fc.influence],
+        "stages": [{"stage": c.stage, "nominal_v": num(c.nominal), "nominal_mechanism": c.nominal_mechanism,
+                    "p5_v": num(c.p5), "median_v": num(c.median), "p95_v": num(c.p95),
+                    "clips_fraction": num(c.clips), "mechanisms": {k: num(v) for k, v in c.mechanisms.items()},
+                    "influence": [{"group": g, "rho": num(rho)} for g, rho in c.influence]}
+                   for c in r.clips],
+    }
+
+
 def _diagnostics(diagnostics) -> list[dict[str, Any]]:
     out = []
     for d in diagnostics:
@@ -95,6 +118,7 @@ def spread_data(result, *, path: str = "", title: str = "", diagnostics=()) -> d
         "checks": [{"subject": b.subject, "check": b.check, "fraction": num(b.fraction),
                     "draws": _draws(b.draws)} for b in r.breaks],
         "stability": stability_section(r),
+        "first_clip": first_clip_section(r),
         "unconverged": int(r.unconverged), "resolved": int(r.resolved),
         "diagnostics": _diagnostics(diagnostics),
     }
@@ -106,6 +130,17 @@ def _val(v, unit: str) -> str:
     if unit == "dB":
         return f"{v:.2f} dB"
     return fmt.si(v, {"ohm": "Ω"}.get(unit, unit))
+
+
+def _lvl(v) -> str:
+    """A source peak with its dBV: ``498 µV (-69.1 dBV)``."""
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return "never"
+    return f"{fmt.si(v, 'V')} ({20 * math.log10(v / math.sqrt(2)):.1f} dBV)" if v > 0 else "at rest"
+
+
+def _short(mechanism: str) -> str:
+    return {"grid conduction": "grid", "cutoff": "cutoff"}.get(mechanism, "")
 
 
 def _corner(p: dict[str, Any], end: str, unit: str) -> str:
@@ -226,6 +261,36 @@ def render_spread(data: dict[str, Any], *, fmt_name: str = "text") -> str:
                 for k in ("p5_db", "median_db", "p95_db", "nominal_db")]
         kv(f"response at {fmt.si(fs, 'Hz')}", f"median {vals[1]:.2f} dB, 5–95 %: {vals[0]:.2f} to "
                                               f"{vals[2]:.2f} dB (nominal {vals[3]:.2f} dB)")
+
+    fc = data.get("first_clip")
+    if fc is not None:
+        title("First clip: input level (source peak) at each stage's first clipping onset")
+        rows = []
+        for c in fc["stages"]:
+            mech = ", ".join(f"{k} {100 * v:.0f} %" for k, v in c["mechanisms"].items() if v)
+            rows.append([c["stage"], f"{_lvl(c['nominal_v'])} {_short(c['nominal_mechanism'])}".rstrip(),
+                         _lvl(c["p5_v"]), _lvl(c["median_v"]), _lvl(c["p95_v"]), mech or fmt.NONE])
+        table(["stage", "nominal", "5 %", "median", "95 %", "mechanism in the builds"], rows,
+              [7, 28, 20, 20, 20, 32])
+        lines.append("")
+        shares = ", ".join(f"{k} {100 * v:.1f} %" for k, v in fc["first_fractions"].items() if v)
+        kv("first stage to clip", f"nominal {fc['nominal_first'] or 'none'}; in the builds: {shares}")
+        kv("another stage clips first", f"{100 * fc['changed_fraction']:.1f} % of the builds")
+        if fc["influence"]:
+            kv("most influential draws", ", ".join(f"{x['group']} (rho {x['rho']:+.2f})" for x in fc["influence"]))
+            lines.append("    (Spearman rank correlation of each part's deviation with another stage clipping first)")
+        for d in fc["draws"][:3]:
+            devs = ", ".join(f"{x['group']} {_dev(x['deviation'])}" for x in d["deviations"])
+            lines.append(f"    e.g. build {d['sample']}, {d['first']} first: {devs}")
+        for c in fc["stages"]:
+            if c["influence"]:
+                kv(f"{c['stage']} first clip moves with", ", ".join(f"{x['group']} (rho {x['rho']:+.2f})"
+                                                                   for x in c["influence"]))
+        if fc["failed"]:
+            lines.append(f"{fc['failed']} builds whose large-signal sweep could not be solved are left out")
+        note = ("(quasi-static mid-band model of the headroom analysis for every build; levels are source "
+                "peaks; the rank correlations are Spearman's)")
+        lines.extend([note] if not md else ["", f"_{note}_"])
 
     title("Stability of the builds")
     if not st["unstable_builds"]:

@@ -109,6 +109,11 @@ class BatchCircuit:
         branches += [(r.a, r.b, 0.0) for r in circuit.resistors if r.ohms == 0.0]
         m = n + len(branches)
         self.n, self.m = n, m
+        #: the voltage branches (pos, neg, role) after the nodes among the unknowns: supplies and the
+        #: signal source (its role "signal"), inductors ("inductor") and zero-ohm links ("link")
+        self.branches = tuple([(s.pos, s.neg, str(s.role.value)) for s in circuit.sources]
+                              + [(ind.a, ind.b, "inductor") for ind in circuit.inductors]
+                              + [(r.a, r.b, "link") for r in circuit.resistors if r.ohms == 0.0])
         ground = m  # padded index of ground
         self._ground = ground
         ix = {**index, GROUND: ground}
@@ -163,13 +168,43 @@ class BatchCircuit:
         out[:, take] = factors[:, cols[take]]
         return out
 
+    def linear_matrix(self, factors: np.ndarray) -> np.ndarray:
+        """(S, m, m) the DC nodal matrix without the triodes: resistors (value ×
+        factor), gmin and the voltage-branch incidence, in the order of the
+        unknowns (:attr:`nodes`, then the branches of :attr:`branches`)."""
+        factors = np.atleast_2d(np.asarray(factors, dtype=float))
+        s_count = factors.shape[0]
+        g = self._g0[None, :] / self._column(factors, self._res_col)  # (S, R)
+        return self._g_fixed[None] + (g @ self._pattern).reshape(s_count, self.m, self.m)
+
+    @property
+    def rhs_dc(self) -> np.ndarray:
+        """(m,) the DC right-hand side: each supply branch's volts (the signal source at 0 V)."""
+        return self._b.copy()
+
+    def plate_factors(self, factors: np.ndarray) -> np.ndarray:
+        """(S, T) each triode's plate-current factor."""
+        return self._column(np.atleast_2d(np.asarray(factors, dtype=float)), self._tcol)
+
+    def column_of(self, node: str) -> int:
+        """Index of a node's voltage among the unknowns (``m`` for ground)."""
+        return self._ix[node]
+
+    def jacobian(self, factors: np.ndarray, batch: DcBatch) -> np.ndarray:
+        """(S, m, m) the DC Jacobian at each build's operating point (the
+        linearised DC network: what :func:`chain.headroom.network.seen_resistances`
+        solves for one circuit)."""
+        g_lin = self.linear_matrix(factors)
+        x = np.zeros((g_lin.shape[0], self.m))
+        x[:, :self.n] = batch.node_v
+        return self._residual(x, g_lin, self.plate_factors(factors))[1]
+
     def dc(self, factors: np.ndarray) -> DcBatch:
         """Batched DC solve for ``factors`` (S, len(elements))."""
         factors = np.atleast_2d(np.asarray(factors, dtype=float))
         s_count = factors.shape[0]
         m, n = self.m, self.n
-        g = self._g0[None, :] / self._column(factors, self._res_col)  # (S, R)
-        g_lin = self._g_fixed[None] + (g @ self._pattern).reshape(s_count, m, m)
+        g_lin = self.linear_matrix(factors)
         scale = self._column(factors, self._tcol)  # (S, T) plate-current factors
         x = np.broadcast_to(self._x0, (s_count, m)).copy()
         done = np.zeros(s_count, dtype=bool)

@@ -32,6 +32,7 @@ hold a group at that deviation in every sample and in a separate single
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Mapping
 
@@ -43,7 +44,8 @@ from chain.errors import AnalysisError, error
 from chain.spread.engine import BatchCircuit, DcBatch
 from chain.spread.tolerance import Tolerance, Varied, varied_parts
 
-__all__ = ["Percentiles", "StageSpread", "RatingBreak", "Corner", "Instability", "SpreadResult", "spread", "draw",
+__all__ = ["Percentiles", "StageSpread", "RatingBreak", "Corner", "Instability", "ClipSpread", "FirstClip",
+           "SpreadResult", "spread", "draw",
            "rank_correlation",
            "STAGE_FIGURES", "PERCENTILES"]
 
@@ -107,6 +109,53 @@ class Corner:
 
 
 @dataclass(frozen=True, slots=True)
+class ClipSpread:
+    """One stage's first clip over the builds (source peak, V).
+
+    ``p5``, ``median``, ``p95`` over the builds in which the stage clips within
+    the sweep (``clips``: their fraction); ``mechanisms``: fraction of those
+    builds per mechanism (``"grid conduction"``, ``"cutoff"``); ``nominal`` and
+    ``nominal_mechanism`` of the nominal build (inf and "none" when it does
+    not clip); ``influence``: the groups of largest Spearman rank correlation
+    of their deviation with this stage's first-clip level.
+    """
+
+    stage: str
+    nominal: float
+    nominal_mechanism: str
+    p5: float
+    median: float
+    p95: float
+    clips: float
+    mechanisms: Mapping[str, float]
+    influence: tuple[tuple[str, float], ...]
+
+
+@dataclass(frozen=True, slots=True)
+class FirstClip:
+    """Which stage clips first, over the builds.
+
+    ``nominal``: the nominal build's first stage ("" when none clips);
+    ``fractions``: stage → fraction of the builds in which it clips first;
+    ``changed``: fraction in which another stage than the nominal one clips
+    first; ``draws``: the first few such builds (sample, first stage, the
+    largest deviations of the parts and tubes of the two stages);
+    ``influence``: groups ranked by Spearman's rank correlation of their
+    deviation with the first stage having changed.  ``counted``: builds in
+    these statistics (converged, stable, sweep solved); ``failed``: builds
+    whose large-signal sweep could not be solved at some level.
+    """
+
+    nominal: str
+    fractions: Mapping[str, float]
+    changed: float
+    draws: tuple[tuple[int, str, tuple[tuple[str, float], ...]], ...]
+    influence: tuple[tuple[str, float], ...]
+    counted: int
+    failed: int
+
+
+@dataclass(frozen=True, slots=True)
 class Instability:
     """Builds with a pole in the right half-plane (as
     :mod:`chain.smallsignal.stability` decides for one circuit).  They are left
@@ -157,6 +206,9 @@ class SpreadResult:
     nominal_rhp_hz: complex | None = None
     #: builds in the statistics: converged and stable
     counted: int = 0
+    #: first clip per stage (signal order) and which stage clips first; empty/None when not computed
+    clips: tuple[ClipSpread, ...] = ()
+    first_clip: FirstClip | None = None
 
 
 def draw(groups: tuple[Varied, ...], samples: int, seed: int,
@@ -198,7 +250,7 @@ class _Model:
     def factors(self, deviations: np.ndarray) -> np.ndarray:
         return 1.0 + deviations[:, self.group_of_col]
 
-    def run(self, deviations: np.ndarray, *, sweep: bool) -> dict[str, np.ndarray]:
+    def run(self, deviations: np.ndarray, *, sweep: bool, clip: bool = False) -> dict[str, np.ndarray]:
         b = self.batch
         fac = self.factors(deviations)
         dc = b.dc(fac)
@@ -234,6 +286,10 @@ class _Model:
             rhp = b.rhp_poles(g, c)
         out["rhp_hz"] = rhp
         out["stable"] = np.isnan(rhp.real)
+        if clip:
+            from chain.spread.clip import clip_batch
+
+            out["_clip"] = clip_batch(b, self.circuit, fac, dc)  # type: ignore[assignment]
         return out
 
 
@@ -335,7 +391,7 @@ def _pct(values: np.ndarray, ok: np.ndarray) -> tuple[float, float, float]:
 def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: float, samples: int = 1000,
            seed: int = 1, by_kind: Mapping[str, Tolerance] | None = None,
            by_part: Mapping[str, Tolerance] | None = None, fixed: Mapping[str, float] | None = None,
-           options: SolveOptions = SolveOptions(), corners: bool = True) -> SpreadResult:
+           options: SolveOptions = SolveOptions(), corners: bool = True, clip: bool = True) -> SpreadResult:
     """Monte Carlo and worst-case corners (see the module docstring).
 
     ``fixed`` maps a varied element's name (or a stage name for its tube) to a
@@ -360,7 +416,7 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
                     f"{need / 1e9:.1f} GB", hint=f"ask for fewer builds (at most about "
                                                  f"{int(MEMORY_LIMIT_BYTES // (model.batch.size ** 2 * BYTES_PER_ENTRY))})"))
     dev = draw(groups, samples, seed, fixed_idx)
-    res = model.run(dev, sweep=True)
+    res = model.run(dev, sweep=True, clip=clip)
     ok = res["converged"] & res["stable"]
     keys = _figure_keys(model)
 
@@ -425,6 +481,11 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
             draws=tuple((int(i), _largest(groups, dev[i])) for i in np.flatnonzero(bad)[:SHOWN_DRAWS]),
             influence=_influence(groups, dev[res["converged"]], bad[res["converged"]]))
     rhp0 = complex(first["rhp_hz"][0])
+    clips: tuple[ClipSpread, ...] = ()
+    first_clip = None
+    if clip:
+        nominal_clip = model.run(np.zeros((1, n_groups)), sweep=False, clip=True)["_clip"]
+        clips, first_clip = _clip_statistics(model, groups, dev, res["_clip"], nominal_clip, ok)
 
     stages = tuple(StageSpread(st.name, {f: pct(f"{st.name}.{f}") for f in STAGE_FIGURES}) for st in model.stages)
 
@@ -451,7 +512,48 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
         resolved=int(res["resolved"]), what_if=_by_stage(what_if, model.stages) if what_if else None,
         nominal=_by_stage(nominal, model.stages), reference_hz=float(reference_hz), instability=instability,
         nominal_rhp_hz=None if np.isnan(rhp0.real) else rhp0, counted=int(ok.sum()),
+        clips=clips, first_clip=first_clip,
     )
+
+
+def _clip_statistics(model: _Model, groups, dev: np.ndarray, batch, nominal, ok: np.ndarray):
+    """Per stage the first-clip percentiles and mechanisms; the first stage to clip
+    (see :class:`ClipSpread`, :class:`FirstClip`)."""
+    from chain.spread.clip import MECHANISMS
+
+    use = ok & ~batch.failed
+    names = batch.stages
+    out = []
+    for j, name in enumerate(names):
+        lv = batch.level_v[use, j]
+        hit = np.isfinite(lv)
+        p5, med, p95 = (np.percentile(lv[hit], PERCENTILES) if hit.any() else (math.nan,) * 3)
+        mech = batch.mechanism[use, j][hit]
+        shares = {m: float((mech == i).sum() / max(hit.sum(), 1)) for i, m in enumerate(MECHANISMS)}
+        # the level's rank correlation; a build where the stage never clips ranks above every finite level
+        influence = _influence(groups, dev[use], np.where(hit, lv, np.inf), count=3) if use.sum() > 2 else ()
+        m0 = int(nominal.mechanism[0, j])
+        out.append(ClipSpread(name, float(nominal.level_v[0, j]), MECHANISMS[m0] if m0 >= 0 else "none",
+                              float(p5), float(med), float(p95), float(hit.sum() / max(use.sum(), 1)),
+                              shares, influence))
+    f0 = int(nominal.first[0])
+    first = batch.first[use]
+    counted = int(use.sum())
+    fractions = {name: float((first == j).sum() / max(counted, 1)) for j, name in enumerate(names)}
+    if (first < 0).any():
+        fractions["none"] = float((first < 0).sum() / max(counted, 1))
+    changed = first != f0
+    idx = np.flatnonzero(use)[changed]
+    draws = []
+    for i in idx[:SHOWN_DRAWS]:
+        j = int(batch.first[i])
+        involved = sorted(set((_own_groups(model, names[f0]) if f0 >= 0 else [])
+                              + (_own_groups(model, names[j]) if j >= 0 else [])))
+        draws.append((int(i), names[j] if j >= 0 else "none", _largest(groups, dev[i], involved)))
+    influence = _influence(groups, dev[use], changed) if changed.any() and counted > 2 else ()
+    return tuple(out), FirstClip(names[f0] if f0 >= 0 else "", fractions,
+                                 float(changed.sum() / max(counted, 1)), tuple(draws), influence, counted,
+                                 int((ok & batch.failed).sum()))
 
 
 def _by_stage(flat: Mapping[str, float], stages) -> dict[str, dict[str, float]]:
