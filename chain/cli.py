@@ -17,7 +17,7 @@ import argparse
 import os
 import sys
 from pathlib import Path
-from typing import Sequence
+from typing import TYPE_CHECKING, Sequence
 
 # The matrices here are small (tens of nodes): BLAS threads only add overhead,
 # and on a busy two-core machine they made the response several times slower.
@@ -29,6 +29,9 @@ from chain import bode as chain_bode  # noqa: E402
 from chain.about import SAFETY, __version__  # noqa: E402
 from chain.errors import ChainError, Diagnostic  # noqa: E402
 from chain.fileio import OutputPathError, check_output, write_atomically  # noqa: E402
+
+if TYPE_CHECKING:  # pragma: no cover - typing only
+    from chain.transient.measure import DistortionPoint
 
 __all__ = ["main", "run"]
 
@@ -491,7 +494,7 @@ def _cmd_report(args) -> int:
         text = render(analysis, fmt=args.format)
     figure = chain_bode(analysis).figure if plot_path else None
     _emit(text, args.output)
-    if figure is not None:
+    if figure is not None and plot_path:
         _save_figure(figure, plot_path)
         print(f"wrote {plot_path}")
     # the report itself says it; echo to standard error only when it went to a file
@@ -598,6 +601,7 @@ def _cmd_headroom(args) -> int:
         from chain.plot.headroom import plot_harmonics, plot_transfer
 
         h = analysis.headroom
+        assert h is not None  # analyze(headroom=True) computes it
         drawn = [plot_transfer(h.curves, headroom=h, title=analysis.design.title).figure]
         if h.distortion is not None:
             drawn.append(plot_harmonics(h.distortion, title=analysis.design.title).figure)
@@ -717,7 +721,7 @@ def _cmd_drive(args) -> int:
         wav_in = read_wav(args.wav[0])  # before the long work: a bad file fails fast
     sections = [f"chain drive — {design.title}", SAFETY, ""]
     unstable = _bias_stability(design, circuit, dc)
-    points = ()
+    points: tuple[DistortionPoint, ...] = ()
     if unstable:
         # no settled response exists: only runs in time (burst, WAV) show what it does
         sections.append("The circuit is unstable (E801 below): it has no settled response, so distortion, "
@@ -739,6 +743,7 @@ def _cmd_drive(args) -> int:
         sections.append(sag_text([(f, v, measure.sag(system, f, v)) for f in freqs for v in levels]))
     burst = None
     if args.burst:
+        assert loud is not None and quiet is not None  # set with --burst
         with _progress("burst") as bar:
             burst = measure.burst(system, freqs[0], loud, quiet, oversample=args.oversample, progress=bar)
         sections.append(burst_text(burst))
@@ -747,6 +752,7 @@ def _cmd_drive(args) -> int:
         from chain.transient.wav import render, wav_bytes
         from chain.units import format_si
 
+        assert peak is not None  # --wav needs --peak
         with _progress("render", enabled=wav_in.samples.size / wav_in.fs_hz > 1.0) as bar:
             out = render(system, wav_in, peak_v=peak, full_scale_v=full_scale, oversample=args.oversample,
                          progress=bar)
@@ -932,7 +938,7 @@ def _cmd_spread(args) -> int:
 
         figure = envelope(data, title=design.title).figure
     _emit(text.rstrip("\n"), args.output)
-    if figure is not None:
+    if figure is not None and plot_path:
         _save_figure(figure, plot_path)
         print(f"wrote {plot_path}")
     _print_diagnostics(unstable)

@@ -16,10 +16,14 @@ objects are used (no pyplot state).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Sequence
+from typing import TYPE_CHECKING, Sequence
 
 import numpy as np
 from chain.decibels import db_array
+
+if TYPE_CHECKING:  # pragma: no cover - typing only
+    from matplotlib.lines import Line2D
+    from matplotlib.text import Annotation
 
 __all__ = ["BodePlot", "ImpedancePlot", "BalancePlot", "bode", "impedance", "balance", "phase_deg", "wrap_turns",
            "PALETTE"]
@@ -198,7 +202,7 @@ def _mark_unstable(mag_ax, ph_ax, text: str, lines) -> None:
 
 
 def _labels(circuit, nodes: Sequence[str]) -> list[str]:
-    outs = {}
+    outs: dict[str, str] = {}
     for st in circuit.stages:
         for port, node in st.outputs.items():
             outs.setdefault(node, st.name if len(st.outputs) == 1 else f"{st.name} {port}")
@@ -216,8 +220,9 @@ def _labels(circuit, nodes: Sequence[str]) -> list[str]:
     return labels
 
 
-def _mark_corners(mag_ax, ph_ax, corners) -> tuple[list, list]:
-    marks, notes = [], []
+def _mark_corners(mag_ax, ph_ax, corners) -> tuple[list[Line2D], list[Annotation]]:
+    marks: list[Line2D] = []
+    notes: list[Annotation] = []
     if not corners:
         return marks, notes
     for f_c, name in zip(corners, ("low", "high")):
@@ -347,6 +352,7 @@ def balance(response, stages, *, title: str = "") -> BalancePlot:
     lines, phase_lines, names = [], [], []
     for k, st in enumerate(s for s in stages if len(s.outputs) >= 2):
         ratio = output_balance(response, st)
+        assert ratio is not None  # a stage with two outputs has a balance
         first, second = list(st.outputs)[:2]
         label = f"{st.name}: {second} against {first}"
         style = dict(color=PALETTE[k % len(PALETTE)], linestyle=DASHES[k % len(DASHES)], linewidth=1.8)

@@ -459,6 +459,7 @@ def _couplings(pen: _Pen, design: Design, ports, stages) -> float:
         pen.wire(start, (turn, start[1]), (turn, end[1]))
         a = (turn, end[1])
         if c.kind == "cap":
+            assert c.cap_f is not None  # the parser gives every cap coupling its value
             b = (a[0] + 3.2, a[1])
             pen.two("C", a, b, _c(c.cap_f), f"{c.src}->{c.dst}.C")
         elif c.kind == "network":

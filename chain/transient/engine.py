@@ -72,7 +72,7 @@ import numpy as np
 
 from chain.circuit import GROUND, Circuit, Role
 from chain.errors import AnalysisError, error
-from chain.tubes import grid_current_and_derivative, plate_current_and_derivatives
+from chain.tubes import TriodeModel, grid_current_and_derivative, plate_current_and_derivatives
 
 __all__ = [
     "TransientOptions",
@@ -263,7 +263,7 @@ class TransientSystem:
                 if i >= 0:
                     inc[i, col] += sign
         self.inc = inc
-        groups: dict[int, tuple[object, list[int]]] = {}
+        groups: dict[int, tuple[TriodeModel, list[int]]] = {}
         for i, t in enumerate(tri):
             groups.setdefault(id(t.model), (t.model, []))[1].append(i)
         self._groups = tuple((m, np.array(ix, dtype=np.intp)) for m, ix in groups.values())
@@ -480,7 +480,7 @@ class TransientSystem:
         v, res = getattr(self, "_last_failure", (None, None))
         subject = ""
         detail = ""
-        if v is not None and self._nt:
+        if v is not None and res is not None and self._nt:
             t = int(np.argmax(res[:self._nt] + res[self._nt:]))
             name = self.triode_names[t]
             subject = self.circuit.stage_of_triode(name)

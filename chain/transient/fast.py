@@ -29,14 +29,13 @@ try:  # pragma: no cover - depends on the environment
 
     AVAILABLE = True
 except ImportError:  # pragma: no cover
-    numba = None
     AVAILABLE = False
 
 __all__ = ["AVAILABLE", "triode_params", "run_kernel", "koren_scalar"]
 
 
 def _jit(fn):
-    if numba is None:
+    if not AVAILABLE:
         return fn
     return numba.njit(cache=True, fastmath=False)(fn)
 
