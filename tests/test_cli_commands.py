@@ -116,6 +116,21 @@ def test_formulas_for_one_stage_plain_and_latex(capsys):
     assert "\\frac{R_{L} \\mu}{R_{L} + r_{p}}" in capsys.readouterr().out
 
 
+@pytest.mark.parametrize("demo, labels", [
+    ("splitter_cathodyne.chain", ("stage PI (cathodyne)", "gain to the plate", "gain to the cathode",
+                                  "balance, cathode against plate", "output impedance at the cathode")),
+    ("splitter_long_tail.chain", ("stage PI (long-tailed-pair)", "gain to plate 2", "differential gain",
+                                  "common-mode gain", "output impedance at plate 2")),
+])
+def test_formulas_of_the_phase_inverter_demos(demo, labels, capsys):
+    """The two-triode stages have closed forms too (once refused with E520)."""
+    assert main(["formulas", str(ROOT / "netlists" / demo), "PI"]) == 0
+    out = capsys.readouterr().out
+    for label in labels:
+        assert label in out
+    assert "balance:" in out and "ideal 0 dB and 180°" in out
+
+
 def test_formulas_unknown_stage(capsys):
     assert main(["formulas", str(CLEAN), "V9"]) == 2
     assert "no stage 'V9'" in capsys.readouterr().err

@@ -23,31 +23,18 @@ the source EMF to that node.
 from __future__ import annotations
 
 import re
-from typing import TYPE_CHECKING, Iterable
+from dataclasses import dataclass
+from types import MappingProxyType
+from typing import TYPE_CHECKING, Iterable, Mapping
 
-from chain.formulas.parts import StageParts
+from chain.formulas.parts import SYMBOLS, StageParts
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
     from chain.circuit import Circuit
     from chain.dc.result import DcSolution
 
-__all__ = ["SYMBOLS", "DRIVES", "stage_netlist", "flat_netlist", "flat_model", "flat_node_names"]
-
-#: StageParts field -> the symbol name used in the symbolic netlist and formulas
-SYMBOLS = {
-    "mu": "mu",
-    "rp_ohm": "r_p",
-    "rl_ohm": "R_L",
-    "rk_ohm": "R_k",
-    "ck_f": "C_k",
-    "rkc_ohm": "R_kc",
-    "rg_ohm": "R_g",
-    "rs_ohm": "R_s",
-    "rload_ohm": "R_load",
-    "cgk_f": "C_gk",
-    "cgp_f": "C_gp",
-    "cpk_f": "C_pk",
-}
+__all__ = ["SYMBOLS", "DRIVES", "StageModel", "Lines", "number", "stage_netlist", "single_model", "flat_netlist",
+           "flat_model", "flat_node_names"]
 
 #: ways to drive the stage model: a unit source at the input, or the input
 #: shorted and a unit test source at the output (load removed)
@@ -56,12 +43,29 @@ DRIVES = ("input", "output")
 _GROUND = "0"
 
 
-def _number(x: float) -> str:
+def number(x: float) -> str:
     """Shortest text that reads back as the same float."""
     return repr(float(x))
 
 
-class _Lines:
+@dataclass(frozen=True, slots=True)
+class StageModel:
+    """One stage's small-signal model as lcapy netlist text.
+
+    ``nodes`` maps the model's own node names (``"p"``, ``"k"``, ``"in"``, …)
+    to the names in :attr:`text` after shorted nodes were merged (``"0"``:
+    ground), so that a quantity can be read at a node that a missing part
+    merged into another.
+    """
+
+    text: str
+    nodes: Mapping[str, str]
+
+    def node(self, name: str) -> str:
+        return self.nodes.get(name, name)
+
+
+class Lines:
     """Collects two-terminal netlist lines, merging shorted nodes into one.
 
     A short (``alias(a, b)``) renames node ``a`` to ``b`` everywhere; a
@@ -89,6 +93,11 @@ class _Lines:
     def add(self, name: str, nodes: tuple[str, ...], value: str, comment: str = "") -> None:
         self._lines.append((name, nodes, value, comment))
 
+    def model(self, head: str, names: Iterable[str]) -> StageModel:
+        """The netlist text under a ``#`` comment ``head``, and where ``names`` ended up."""
+        return StageModel("\n".join([f"# {head}", *self.lines()]),
+                          MappingProxyType({n: self.node(n) for n in names}))
+
     def lines(self) -> list[str]:
         out = []
         for name, nodes, value, comment in self._lines:
@@ -103,7 +112,16 @@ class _Lines:
 
 def stage_netlist(parts: StageParts, *, symbolic: bool = True, drive: str = "input",
                   midband: bool = False, interelectrode: bool = True) -> str:
-    """The lcapy netlist of one stage's small-signal model.
+    """The lcapy netlist of a single-triode stage's small-signal model (:func:`single_model`'s text)."""
+    return single_model(parts, symbolic=symbolic, drive=drive, midband=midband,
+                        interelectrode=interelectrode).text
+
+
+def single_model(parts: StageParts, *, symbolic: bool = True, drive: str = "input",
+                 midband: bool = False, interelectrode: bool = True) -> StageModel:
+    """The small-signal model of a single-triode stage, the template of
+    :mod:`chain.formulas.kinds.common_cathode`, ``cathode_follower`` and
+    ``common_grid``.
 
     Nodes: ``in`` (top of the grid leak, the input of a grid-driven stage),
     ``g`` (grid pin), ``k`` (cathode), ``kb`` (bypass node of the
@@ -135,16 +153,16 @@ def stage_netlist(parts: StageParts, *, symbolic: bool = True, drive: str = "inp
 
     Returns
     -------
-    str
-        One part per line, no trailing newline.
+    StageModel
+        One part per line, no trailing newline, under a ``#`` comment.
     """
     if drive not in DRIVES:
         raise ValueError(f"drive must be one of {DRIVES}, got {drive!r}")
 
     def val(field_name: str) -> str:
-        return SYMBOLS[field_name] if symbolic else _number(getattr(parts, field_name))
+        return SYMBOLS[field_name] if symbolic else number(getattr(parts, field_name))
 
-    net = _Lines()
+    net = Lines()
     grid_driven = parts.kind != "common-grid"
     inp = "in" if grid_driven else "k"
     out = "k" if parts.kind == "cathode-follower" else "p"
@@ -199,10 +217,10 @@ def stage_netlist(parts: StageParts, *, symbolic: bool = True, drive: str = "inp
         net.short(inp, _GROUND)
         net.add("Vt", (out, _GROUND), "s 1")
 
-    head = [f"# stage {parts.name} ({parts.kind}) small-signal model; "
+    head = (f"stage {parts.name} ({parts.kind}) small-signal model; "
             f"input {net.node(inp)}, output {net.node(out)}, drive {drive}"
-            + ("; mid-band" if midband else "")]
-    return "\n".join(head + net.lines())
+            + ("; mid-band" if midband else ""))
+    return net.model(head, ("in", "g", "k", "kb", "p", "pi"))
 
 
 # ---------------------------------------------------------------------------
@@ -272,7 +290,7 @@ def flat_model(circuit: "Circuit", dc: "DcSolution") -> tuple[str, dict[str, str
     ground and for every node a supply shorts to ground)."""
     mapping = flat_node_names(["gnd", *circuit.nodes(),
                                *(f"{t.name}.internal" for t in circuit.triodes)])
-    parts = _Lines()
+    parts = Lines()
     serial = iter(range(1, 1 << 30))
 
     def add(letter: str, label: str, nodes: tuple[str, ...], value: str) -> None:
@@ -283,15 +301,15 @@ def flat_model(circuit: "Circuit", dc: "DcSolution") -> tuple[str, dict[str, str
         if r.ohms == 0:
             parts.short(mapping[r.a], mapping[r.b])
         else:
-            add("R", r.name, (r.a, r.b), _number(r.ohms))
+            add("R", r.name, (r.a, r.b), number(r.ohms))
     for c in circuit.capacitors:
         if c.farads > 0:
-            add("C", c.name, (c.a, c.b), _number(c.farads))
+            add("C", c.name, (c.a, c.b), number(c.farads))
     for ind in circuit.inductors:
         if ind.henries == 0:
             parts.short(mapping[ind.a], mapping[ind.b])
         else:
-            add("L", ind.name, (ind.a, ind.b), _number(ind.henries))
+            add("L", ind.name, (ind.a, ind.b), number(ind.henries))
     for src in circuit.sources:
         if src.role == "signal":
             add("V", f"{src.name} (signal, unit EMF)", (src.pos, src.neg), "s 1")
@@ -300,14 +318,14 @@ def flat_model(circuit: "Circuit", dc: "DcSolution") -> tuple[str, dict[str, str
     for t in circuit.triodes:
         op = dc.points[t.name]
         internal = f"{t.name}.internal"
-        add("E", f"{t.name}: -mu*vgk", (internal, t.cathode, t.cathode, t.grid), _number(op.mu))
-        add("R", f"{t.name}: rp", (t.plate, internal), _number(op.rp_ohm))
+        add("E", f"{t.name}: -mu*vgk", (internal, t.cathode, t.cathode, t.grid), number(op.mu))
+        add("R", f"{t.name}: rp", (t.plate, internal), number(op.rp_ohm))
         for attr, label, a, b in (("cgk_f", "Cgk", t.grid, t.cathode),
                                   ("cgp_f", "Cgp", t.grid, t.plate),
                                   ("cpk_f", "Cpk", t.plate, t.cathode)):
             value = getattr(t.model, attr)
             if value > 0:
-                add("C", f"{t.name}: {label}", (a, b), _number(value))
+                add("C", f"{t.name}: {label}", (a, b), number(value))
 
     head = f"# {circuit.title or 'chain'}: flat small-signal model (supplies shorted)"
     nodes = {n: parts.node(lcapy_name) for n, lcapy_name in mapping.items()}

@@ -1,9 +1,12 @@
-"""One stage's small-signal parts, pulled out of a Circuit and its DC solution.
+"""A stage's small-signal parts, pulled out of a Circuit and its DC solution.
 
-:class:`StageParts` is the only input of the per-stage formulas: the triode's
-small-signal constants at its operating point and the values of the parts the
-builder placed around it.  It is frozen and hashable, so solved formulas can
-be cached on it.
+:func:`stage_parts` hands a stage to its kind's module
+(:mod:`chain.formulas.kinds`).  :class:`StageParts` is the parts record of
+the single-triode kinds (common cathode, cathode follower, common grid),
+which share one template: the triode's small-signal constants at its
+operating point and the values of the parts the builder placed around it.
+Every parts record is frozen and hashable, so solved formulas can be cached
+on it.
 
 No heavy imports here: this module is plain Python.
 """
@@ -16,15 +19,37 @@ from typing import TYPE_CHECKING
 from chain.circuit import GROUND as _GROUND
 from chain.circuit import Owner, Role
 from chain.errors import FormulaError, error
+from chain.formulas.kinds.base import load_on
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
     from chain.circuit import Circuit
     from chain.dc.result import DcSolution
 
-__all__ = ["KINDS", "StageParts", "stage_parts"]
+__all__ = ["SINGLE_KINDS", "SYMBOLS", "StageParts", "stage_parts", "single_parts"]
 
-#: the stage configurations the per-stage template can represent
-KINDS = ("common-cathode", "cathode-follower", "common-grid")
+#: the stage configurations the single-triode template can represent
+SINGLE_KINDS = ("common-cathode", "cathode-follower", "common-grid")
+
+#: StageParts field -> the symbol name used in the symbolic netlist and formulas
+SYMBOLS = {
+    "mu": "mu",
+    "rp_ohm": "r_p",
+    "rl_ohm": "R_L",
+    "rk_ohm": "R_k",
+    "ck_f": "C_k",
+    "rkc_ohm": "R_kc",
+    "rg_ohm": "R_g",
+    "rs_ohm": "R_s",
+    "rload_ohm": "R_load",
+    "cgk_f": "C_gk",
+    "cgp_f": "C_gp",
+    "cpk_f": "C_pk",
+}
+
+#: StageParts field → (symbol, unit) as printed, in print order
+_SHOWN = (("mu", "mu", ""), ("rp_ohm", "r_p", "Ω"), ("rl_ohm", "R_L", "Ω"), ("rk_ohm", "R_k", "Ω"),
+          ("ck_f", "C_k", "F"), ("rkc_ohm", "R_kc", "Ω"), ("rg_ohm", "R_g", "Ω"), ("rs_ohm", "R_s", "Ω"),
+          ("rload_ohm", "R_load", "Ω"))
 
 
 @dataclass(frozen=True, slots=True)
@@ -83,8 +108,8 @@ class StageParts:
 
     def __post_init__(self) -> None:
         problems = []
-        if self.kind not in KINDS:
-            problems.append(f"kind {self.kind!r} is not one of {', '.join(KINDS)}")
+        if self.kind not in SINGLE_KINDS:
+            problems.append(f"kind {self.kind!r} is not one of {', '.join(SINGLE_KINDS)}")
         if not self.mu > 0:
             problems.append(f"mu must be positive, got {self.mu!r}")
         if not self.rp_ohm > 0:
@@ -103,6 +128,15 @@ class StageParts:
         if problems:
             raise FormulaError(tuple(
                 error("E520", f"stage {self.name}: {p}", subject=self.name) for p in problems))
+
+    def values(self) -> dict[str, float]:
+        """Symbol name → number (SI), for every part present."""
+        return {sym: float(getattr(self, f)) for f, sym in SYMBOLS.items() if getattr(self, f) is not None}
+
+    def known(self) -> tuple[tuple[str, float, str], ...]:
+        """(symbol, number, unit) of the stage's own values, as printed beside the formulas."""
+        return tuple((sym, float(getattr(self, f)), unit) for f, sym, unit in _SHOWN
+                     if getattr(self, f) is not None)
 
 
 def _find(circuit, owner, role):
@@ -129,9 +163,30 @@ def _positive_or_none(x) -> float | None:
     return x if x > 0 else None
 
 
-def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
-                rload_ohm: float | None = None) -> StageParts:
-    """Extract one stage's :class:`StageParts` from a built circuit.
+def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *, rload_ohm: float | None = None):
+    """One stage's parts record, by its kind's module (:mod:`chain.formulas.kinds`).
+
+    A single-triode stage gives a :class:`StageParts`, a cathodyne a
+    :class:`~chain.formulas.kinds.cathodyne.CathodyneParts`, a long-tailed
+    pair a :class:`~chain.formulas.kinds.long_tailed_pair.PairParts`.
+    ``rload_ohm`` overrides the load on the (main) output.
+
+    Raises
+    ------
+    FormulaError
+        E522 unknown stage or missing operating point; E520 a kind without
+        closed forms; E521 a part where the kind's model cannot represent it.
+    """
+    from chain.formulas.kinds import kind_module
+    from chain.formulas.kinds.base import find_stage
+
+    st = find_stage(circuit, stage_name)
+    return kind_module(st.kind, stage_name).parts(circuit, dc, stage_name, rload_ohm=rload_ohm)
+
+
+def single_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
+                 rload_ohm: float | None = None) -> StageParts:
+    """Extract a single-triode stage's :class:`StageParts` from a built circuit.
 
     Parts are found by their owner (the stage) and role (plate load,
     cathode resistor, bypass series resistor, bypass, grid leak, grid
@@ -217,9 +272,7 @@ def stage_parts(circuit: "Circuit", dc: "DcSolution", stage_name: str, *,
             "is no grid stopper between them", subject=stage_name))
 
     if rload_ohm is None:
-        load = _find(circuit, Owner("output", "output"), Role.LOAD)
-        if load is not None and _between(load, st.output, _GROUND):
-            rload_ohm = load.ohms
+        rload_ohm = load_on(circuit, st.output)
 
     model = tri.model
     return StageParts(

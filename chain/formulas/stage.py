@@ -14,14 +14,20 @@ Three levels, chosen so that every stage solves in well under a second:
     including Cgk, Cgp and Cpk; evaluated at ``f_hz`` and, through
     :meth:`Formula.at`, at any frequencies.
 
-Definitions (all with the triode's Thevenin model, see
+Each stage kind's module (:mod:`chain.formulas.kinds`) says which
+quantities it has, on which drive of its netlist each is solved and how it
+is read (a node voltage per volt of drive, the impedance a unit source
+sees, a ratio of node voltages, half their difference or sum).  Here every
+drive is solved once per level and every quantity read from it.
+
+Definitions (with the triode's Thevenin model, see
 :mod:`chain.formulas.netlist`):
 
-* gain — output node voltage per volt at the input node, stage load
-  ``R_load`` attached;
-* input impedance — seen by a source at the input node, load attached;
-* output impedance — seen looking back into the output node with the input
-  node shorted to ground and the load removed.
+* gain — output node voltage per volt at the input node, stage loads
+  attached;
+* input impedance — seen by a source at the input node, loads attached;
+* output impedance — seen looking back into an output node with the inputs
+  at AC ground and that output's load removed.
 
 lcapy and sympy are imported inside the functions that use them.
 """
@@ -37,15 +43,15 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from chain.errors import FormulaError, error
-from chain.formulas.netlist import SYMBOLS, stage_netlist
-from chain.formulas.parts import StageParts
+from chain.formulas.kinds import kind_module
+from chain.formulas.kinds.base import Quantity
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
-    pass
+    from chain.formulas.netlist import StageModel
 
 __all__ = ["Formula", "StageFormulas", "stage_formulas", "QUANTITIES"]
 
-#: the quantities a stage's formulas give, in order
+#: the quantities of a single-triode stage's formulas, in order
 QUANTITIES = ("gain", "zin", "zout")
 
 
@@ -56,7 +62,8 @@ class Formula:
     Attributes
     ----------
     name : str
-        ``"gain"``, ``"zin"`` or ``"zout"``.
+        The quantity's key (``"gain"``, ``"zin"``, ``"zout"``,
+        ``"gain_cathode"``, ``"balance"``, … see the stage kind's module).
     midband : sympy.Expr or None
         Symbolic mid-band closed form (None when solved with
         ``symbolic=False``).
@@ -113,17 +120,22 @@ def _rational_at(num_coeffs, den_coeffs, f_hz) -> np.ndarray:
 
 @dataclass(frozen=True, slots=True)
 class StageFormulas:
-    """Gain, input and output impedance of one stage.
+    """The closed forms of one stage, by its kind's quantities.
 
     Attributes
     ----------
-    parts : StageParts
-    gain, zin, zout : Formula
+    parts
+        The stage's parts record (:class:`~chain.formulas.parts.StageParts`
+        for a single-triode stage; the kind module's record otherwise).
+    quantities : tuple of Quantity
+        What was solved, in print order (name, label, unit, drive, read).
+    formulas : Mapping[str, Formula]
+        Each quantity's formula by name.
     netlist : str
         The numeric netlist of the full model (input drive), as solved.
     symbolic_netlist : str
-        The symbolic netlist (input drive, with bypass capacitor; empty when
-        solved with ``symbolic=False``).
+        The symbolic netlist (input drive, with capacitors but without
+        interelectrode ones; empty when solved with ``symbolic=False``).
     symbols : Mapping[str, sympy.Symbol]
         The symbols of the symbolic forms by name (``"mu"``, ``"R_L"``, …),
         exactly as they occur in the expressions.
@@ -131,23 +143,34 @@ class StageFormulas:
         The Laplace variable of the s-domain forms.
     """
 
-    parts: StageParts
-    gain: Formula
-    zin: Formula
-    zout: Formula
+    parts: Any
+    quantities: tuple[Quantity, ...]
+    formulas: Any
     netlist: str
     symbolic_netlist: str
     symbols: Any
     s: Any
 
     def formula(self, name: str) -> Formula:
-        """The formula named ``"gain"``, ``"zin"`` or ``"zout"``."""
-        if name not in QUANTITIES:
-            raise KeyError(name)
-        return getattr(self, name)
+        """The formula of quantity ``name`` (KeyError when the kind has none)."""
+        return self.formulas[name]
+
+    @property
+    def gain(self) -> Formula:
+        """A single-triode stage's gain."""
+        return self.formulas["gain"]
+
+    @property
+    def zin(self) -> Formula:
+        return self.formulas["zin"]
+
+    @property
+    def zout(self) -> Formula:
+        """A single-triode stage's output impedance."""
+        return self.formulas["zout"]
 
 
-def _fail(parts: StageParts, what: str, netlist: str, exc: Exception) -> FormulaError:
+def _fail(parts, what: str, netlist: str, exc: Exception) -> FormulaError:
     return FormulaError(
         error("E530", f"stage {parts.name}: lcapy/sympy could not solve the {what}: "
               f"{type(exc).__name__}: {exc}", subject=parts.name,
@@ -155,46 +178,50 @@ def _fail(parts: StageParts, what: str, netlist: str, exc: Exception) -> Formula
         netlist=netlist)
 
 
-def _output_node(parts: StageParts) -> str:
-    return "k" if parts.kind == "cathode-follower" else "p"
-
-
-def _solve(parts: StageParts, netlist: str, drive: str, what: str):
-    """Solve one netlist; return (gain or None, impedance) as sympy expressions."""
+def _solve(parts, model: "StageModel", quantities, what: str) -> dict[str, Any]:
+    """Solve one drive's netlist; each quantity read from it as a sympy expression."""
     import lcapy
     import sympy
 
     try:
-        cct = lcapy.Circuit(netlist)
+        cct = lcapy.Circuit(model.text)
         s = lcapy.s
-        if drive == "input":
-            out = _output_node(parts)
-            if out in cct.nodes:
-                gain = cct[out].V(s).sympy
-            else:
-                gain = sympy.Integer(0)
-            y = -cct.Vin.I(s).sympy
-        else:
-            gain = None
-            y = -cct.Vt.I(s).sympy
-        y = sympy.cancel(y)
-        z = sympy.zoo if y == 0 else sympy.factor(sympy.cancel(1 / y))
-        if gain is not None:
-            gain = sympy.factor(sympy.cancel(gain))
-        return gain, z
+        voltages: dict[str, Any] = {}
+
+        def v(node: str):
+            n = model.node(node)
+            if n not in voltages:
+                voltages[n] = sympy.Integer(0) if n == "0" or n not in cct.nodes else cct[n].V(s).sympy
+            return voltages[n]
+
+        out = {}
+        for q in quantities:
+            how, *args = q.read
+            if how == "z":
+                y = sympy.cancel(-cct[args[0]].I(s).sympy)
+                out[q.name] = sympy.zoo if y == 0 else sympy.factor(sympy.cancel(1 / y))
+                continue
+            if how == "v":
+                expr = v(args[0])
+            elif how == "ratio":
+                den = v(args[1])
+                expr = sympy.nan if den == 0 else v(args[0]) / den
+            elif how == "half_diff":
+                expr = (v(args[0]) - v(args[1])) / 2
+            elif how == "half_sum":
+                expr = (v(args[0]) + v(args[1])) / 2
+            else:  # pragma: no cover - the kind modules use the reads above
+                raise ValueError(f"unknown read {how!r}")
+            out[q.name] = sympy.factor(sympy.cancel(expr))
+        return out
     except Exception as exc:  # lcapy raises many kinds; report them all the same way
-        raise _fail(parts, what, netlist, exc) from exc
+        raise _fail(parts, what, model.text, exc) from exc
 
 
 def _laplace_symbol():
     import lcapy
 
     return lcapy.s.sympy
-
-
-def _values(parts: StageParts) -> dict[str, float]:
-    return {sym: float(getattr(parts, field_name)) for field_name, sym in SYMBOLS.items()
-            if getattr(parts, field_name) is not None}
 
 
 def _substitute(expr, values: dict[str, float]):
@@ -271,96 +298,107 @@ def _strings(expr, s) -> tuple[str, str]:
     return text, latex
 
 
+def _numeric_s_strings(num_c, den_c, s) -> tuple[str, str]:
+    """Plain text and LaTeX of a numeric ``N(s)/D(s)``, coefficients to 6
+    significant digits, scaled so that ``D``'s lowest-order coefficient is 1."""
+    import sympy
+
+    if den_c == (0.0,):
+        return "inf", r"\infty"
+    low = next((c for c in reversed(den_c) if c != 0.0), 1.0)
+
+    def poly(coeffs):
+        n = len(coeffs) - 1
+        return sum((sympy.Float(c / low, 6) * s ** (n - i) for i, c in enumerate(coeffs) if c != 0.0),
+                   sympy.Integer(0))
+
+    num, den = poly(num_c), poly(den_c)
+    if den == 1:
+        return sympy.sstr(num), sympy.latex(num)
+    return f"({sympy.sstr(num)})/({sympy.sstr(den)})", f"\\frac{{{sympy.latex(num)}}}{{{sympy.latex(den)}}}"
+
+
 def _number_strings(x: float) -> tuple[str, str]:
     if math.isinf(x):
         return "inf", r"\infty"
     return f"{x:.6g}", f"{x:.6g}"
 
 
+def _levels(parts, kind, drive: str, symbolic: bool):
+    """The netlists of one drive: full numeric, symbolic s-domain (or None), mid-band."""
+    full = kind.model(parts, symbolic=False, drive=drive)
+    s_form = kind.model(parts, symbolic=True, drive=drive, interelectrode=False) \
+        if symbolic and kind.SYMBOLIC_S else None
+    mid = kind.model(parts, symbolic=symbolic, drive=drive, midband=True)
+    return full, s_form, mid
+
+
 @functools.lru_cache(maxsize=256)
-def _stage_formulas_cached(parts: StageParts, symbolic: bool, f_hz: float) -> StageFormulas:
+def _stage_formulas_cached(parts, symbolic: bool, f_hz: float) -> StageFormulas:
     import sympy
 
+    kind = kind_module(parts.kind, parts.name)
     s = _laplace_symbol()
-    values = _values(parts)
-
-    # full numeric model, both drives
-    num_in = stage_netlist(parts, symbolic=False, drive="input")
-    num_out = stage_netlist(parts, symbolic=False, drive="output")
-    gain_n, zin_n = _solve(parts, num_in, "input", "numeric gain and input impedance")
-    _, zout_n = _solve(parts, num_out, "output", "numeric output impedance")
-
-    if symbolic:
-        sym_in = stage_netlist(parts, symbolic=True, drive="input", interelectrode=False)
-        sym_out = stage_netlist(parts, symbolic=True, drive="output", interelectrode=False)
-        mid_in = stage_netlist(parts, symbolic=True, drive="input", midband=True)
-        mid_out = stage_netlist(parts, symbolic=True, drive="output", midband=True)
-        gain_s, zin_s = _solve(parts, sym_in, "input", "symbolic gain and input impedance")
-        _, zout_s = _solve(parts, sym_out, "output", "symbolic output impedance")
-        gain_m, zin_m = _solve(parts, mid_in, "input", "mid-band gain and input impedance")
-        _, zout_m = _solve(parts, mid_out, "output", "mid-band output impedance")
-        symbolic_netlist = sym_in
-        forms = {"gain": (gain_m, gain_s, gain_n), "zin": (zin_m, zin_s, zin_n),
-                 "zout": (zout_m, zout_s, zout_n)}
-    else:
-        mid_in = stage_netlist(parts, symbolic=False, drive="input", midband=True)
-        mid_out = stage_netlist(parts, symbolic=False, drive="output", midband=True)
-        gain_m, zin_m = _solve(parts, mid_in, "input", "mid-band gain and input impedance")
-        _, zout_m = _solve(parts, mid_out, "output", "mid-band output impedance")
-        symbolic_netlist = ""
-        forms = {"gain": (gain_m, None, gain_n), "zin": (zin_m, None, zin_n),
-                 "zout": (zout_m, None, zout_n)}
+    values = parts.values()
+    quantities = tuple(kind.QUANTITIES)
+    forms: dict[str, tuple[Any, Any, Any]] = {}
+    netlists: dict[str, tuple[str, str]] = {}
+    for drive in dict.fromkeys(q.drive for q in quantities):
+        reading = [q for q in quantities if q.drive == drive]
+        full, s_form, mid = _levels(parts, kind, drive, symbolic)
+        numeric = _solve(parts, full, reading, f"numeric model, drive {drive}")
+        s_exprs = _solve(parts, s_form, reading, f"symbolic s-domain model, drive {drive}") \
+            if s_form is not None else {}
+        mids = _solve(parts, mid, reading, f"mid-band model, drive {drive}")
+        for q in reading:
+            forms[q.name] = (mids[q.name], s_exprs.get(q.name), numeric[q.name])
+        netlists[drive] = (full.text, s_form.text if s_form is not None else "")
 
     built = {}
-    for name, (mid, s_expr, numeric) in forms.items():
+    for q in quantities:
+        mid, s_expr, numeric = forms[q.name]
         try:
             mid_value = _to_float(_substitute(mid, values)) if symbolic else _to_float(mid)
             num_c, den_c = _coefficients(numeric, s)
             if symbolic:
                 text, latex = _strings(mid, s)
-                s_text, s_latex = _strings(s_expr, s)
             else:
                 text, latex = _number_strings(mid_value)
-                s_text, s_latex = sympy.sstr(numeric), sympy.latex(numeric)
+            if s_expr is not None:
+                s_text, s_latex = _strings(s_expr, s)
+            else:
+                s_text, s_latex = _numeric_s_strings(num_c, den_c, s)
         except (TypeError, ValueError, ZeroDivisionError, sympy.SympifyError,
                 sympy.PolynomialError) as exc:
-            raise _fail(parts, f"{name} (evaluation)", num_in, exc) from exc
-        built[name] = Formula(name=name, midband=mid if symbolic else None, s_expr=s_expr,
-                              numeric_s=numeric, midband_value=mid_value, f_hz=float(f_hz),
-                              value=complex(_rational_at(num_c, den_c, f_hz)[0]),
-                              text=text, latex=latex, s_text=s_text, s_latex=s_latex,
-                              num_coeffs=num_c, den_coeffs=den_c)
+            raise _fail(parts, f"{q.name} (evaluation)", netlists[q.drive][0], exc) from exc
+        built[q.name] = Formula(name=q.name, midband=mid if symbolic else None, s_expr=s_expr,
+                                numeric_s=numeric, midband_value=mid_value, f_hz=float(f_hz),
+                                value=complex(_rational_at(num_c, den_c, f_hz)[0]),
+                                text=text, latex=latex, s_text=s_text, s_latex=s_latex,
+                                num_coeffs=num_c, den_coeffs=den_c)
 
     symbols = {}
     for f in built.values():
         for expr in (f.midband, f.s_expr):
             if expr is not None:
                 symbols.update({x.name: x for x in expr.free_symbols if x != s})
-    return StageFormulas(parts=parts, gain=built["gain"], zin=built["zin"], zout=built["zout"],
-                         netlist=num_in, symbolic_netlist=symbolic_netlist,
+    first = quantities[0].drive
+    return StageFormulas(parts=parts, quantities=quantities, formulas=MappingProxyType(built),
+                         netlist=netlists[first][0], symbolic_netlist=netlists[first][1],
                          symbols=MappingProxyType(symbols), s=s)
 
 
-def stage_formulas(parts: StageParts, *, symbolic: bool = True, f_hz: float = 1000.0
-                   ) -> StageFormulas:
+def stage_formulas(parts, *, symbolic: bool = True, f_hz: float = 1000.0) -> StageFormulas:
     """Solve one stage's small-signal model with lcapy.
 
-    Standard results the symbolic mid-band forms reduce to (M. Jones,
-    "Valve Amplifiers", chapter on the common-cathode stage and the cathode
-    follower, from memory), with no stopper capacitance and no load:
-
-    * common cathode, Rk unbypassed: ``A = −mu·R_L / (R_L + r_p + (mu+1)·R_k)``
-    * common cathode, Rk bypassed (mid-band): ``A = −mu·R_L / (R_L + r_p)``
-    * output impedance at the plate: ``R_L ∥ (r_p + (mu+1)·R_k)``
-    * cathode follower: ``A = mu·R_k / (r_p + (mu+1)·R_k)``,
-      ``Zout = r_p/(mu+1) ∥ R_k``
-    * common grid: ``A = (mu+1)·R_L / (R_L + r_p)``,
-      ``Zin = R_k ∥ (R_L + r_p)/(mu+1)``
+    The quantities, the model and the published closed forms the symbolic
+    mid-band forms reduce to are in the stage kind's module
+    (:mod:`chain.formulas.kinds`).
 
     Parameters
     ----------
-    parts : StageParts
-        The stage (see :func:`chain.formulas.stage_parts`).
+    parts
+        The stage's parts record (see :func:`chain.formulas.stage_parts`).
     symbolic : bool
         Also solve the symbolic forms (``midband``, ``s_expr``); with False
         only the numeric forms are solved and the strings show numbers.

@@ -130,39 +130,51 @@ def formulas_text(design: Design, results, *, latex: bool = False) -> str:
     """The closed forms printed by ``chain formulas``.
 
     ``results`` is a sequence of :class:`chain.formulas.StageFormulas` in
-    signal order.  Each quantity: its mid-band formula in the stage's own
-    symbols, its s-domain form (without interelectrode capacitances), the
-    mid-band number, and the full model's value at the reference frequency.
+    signal order.  Each quantity of the stage's kind: its mid-band formula
+    in the stage's own symbols, its s-domain form (symbolic without
+    interelectrode capacitances, or numeric where the kind gives none), the
+    mid-band number, and the full model's value at the reference frequency;
+    a balance also in dB and degrees.
     """
-    units = {"gain": "V/V", "zin": "Ω", "zout": "Ω"}
-    names = {"gain": "gain", "zin": "input impedance", "zout": "output impedance"}
     lines = [f"{design.title or design.path} — stage formulas (small-signal, at each stage's operating point)",
              "each stage alone: what follows it is left out unless it is the output load "
              "(`chain report` gives the gains with everything connected)", ""]
     for res in results:
         p = res.parts
         lines.append(f"stage {p.name} ({p.kind})")
-        known = [("mu", f"{p.mu:.4g}"), ("r_p", format_si(p.rp_ohm, "Ω", 4))]
-        for label, value, unit in (("R_L", p.rl_ohm, "Ω"), ("R_k", p.rk_ohm, "Ω"), ("C_k", p.ck_f, "F"),
-                                   ("R_kc", p.rkc_ohm, "Ω"), ("R_g", p.rg_ohm, "Ω"), ("R_s", p.rs_ohm, "Ω"),
-                                   ("R_load", p.rload_ohm, "Ω")):
-            if value is not None:
-                known.append((label, format_si(value, unit, 4)))
+        known = [(sym, f"{value:.4g}" if not unit else format_si(value, unit, 4)) for sym, value, unit in p.known()]
         lines.append("  with  " + ", ".join(f"{k} = {v}" for k, v in known))
-        for q in ("gain", "zin", "zout"):
-            f = res.formula(q)
+        for q in res.quantities:
+            f = res.formula(q.name)
+            unit = "Ω" if q.unit == "ohm" else "V/V"
             mid = f.latex if latex else f.text
             sform = f.s_latex if latex else f.s_text
-            lines.append(f"  {names[q]}")
+            lines.append(f"  {q.label}")
             lines.append(f"    mid-band:  {mid}")
             lines.append(f"    s-domain:  {sform}")
-            mid_v = "open" if f.midband_value == float("inf") else \
-                f"{f.midband_value:.4g}" if q == "gain" else format_si(f.midband_value, "Ω", 4)
-            lines.append(f"    value:     {mid_v} {'V/V' if q == 'gain' else ''}".rstrip()
-                         + f" mid-band; {_complex(f.value, units[q])} at {format_si(f.f_hz, 'Hz')}"
+            if f.midband_value == float("inf"):
+                mid_v = "open"
+            elif unit == "V/V":
+                mid_v = f"{f.midband_value:.4g} V/V"
+            else:
+                mid_v = format_si(f.midband_value, "Ω", 4)
+            lines.append(f"    value:     {mid_v} mid-band; {_complex(f.value, unit)} at {format_si(f.f_hz, 'Hz')}"
                          " (full model, interelectrode capacitances included)")
+            if q.name == "balance":
+                lines.append(f"    balance:   {_balance(f.value)} at {format_si(f.f_hz, 'Hz')}; ideal 0 dB and 180°")
         lines.append("")
     return "\n".join(lines).rstrip() + "\n"
+
+
+def _balance(z: complex) -> str:
+    import cmath
+    import math
+
+    from chain.decibels import db
+
+    if not cmath.isfinite(z) or z == 0:
+        return "undefined"
+    return f"{db(abs(z)):+.3g} dB, {math.degrees(cmath.phase(z)):.1f}°"
 
 
 def _complex(z: complex, unit: str) -> str:

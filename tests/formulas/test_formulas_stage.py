@@ -19,7 +19,6 @@ pytest.importorskip("lcapy")
 
 from chain.errors import FormulaError  # noqa: E402
 from chain.formulas import StageParts, stage_formulas  # noqa: E402
-from chain.formulas import stage as stage_module  # noqa: E402
 
 MU, RP = 100.0, 62.5e3
 CAPS = dict(cgk_f=1.6e-12, cgp_f=1.7e-12, cpk_f=0.46e-12)
@@ -142,7 +141,10 @@ def test_results_are_cached_on_frozen_parts():
 
 def test_lcapy_failure_becomes_formula_error_with_netlist(monkeypatch):
     broken = "Rbad only_one_node"
-    monkeypatch.setattr(stage_module, "stage_netlist", lambda *a, **k: broken)
+    from chain.formulas.kinds import common_cathode
+    from chain.formulas.netlist import StageModel
+
+    monkeypatch.setattr(common_cathode, "model", lambda *a, **k: StageModel(broken, {}))
     parts = StageParts("V9", "common-cathode", 42.0, 1e4, rl_ohm=1e5)
     with pytest.raises(FormulaError) as info:
         stage_formulas(parts)
