@@ -466,6 +466,18 @@ class NetworkSystem:
             scale += np.bincount(self._f_rows, weights=tcur[self._f_tri], minlength=self.size)[:n]
         return branch_ok and bool(np.all(fn <= options.tol_a + _ROUNDING_RTOL * scale))
 
+    def _at_rounding_floor(self, x: np.ndarray, f: np.ndarray, a_abs: np.ndarray, tcur: np.ndarray,
+                           b: np.ndarray) -> bool:
+        """Every row's residual within the rounding of the terms that make it up
+        (``_ROUNDING_RTOL`` times the sum of their magnitudes)."""
+        n = self._n
+        if not np.all(np.isfinite(f)):
+            return False
+        scale = a_abs @ np.abs(x) + np.abs(b)
+        if tcur.size:
+            scale += np.bincount(self._f_rows, weights=tcur[self._f_tri], minlength=self.size)
+        return bool(np.all(np.abs(f) <= _ROUNDING_RTOL * scale)) and n > 0
+
     # ---------------------------------------------------------------- Newton
     def _newton(self, x: np.ndarray, b: np.ndarray, options: SolveOptions, *, max_iter: int,
                 a: np.ndarray | None = None, line_search: bool = False
@@ -496,6 +508,12 @@ class NetworkSystem:
                 return x, it, False, f
             step = float(np.abs(dx[:n]).max()) if n else 0.0
             if step <= options.tol_v and self._residual_ok(x, f, a_abs, tcur, options, b):
+                return x, it, True, f
+            if self._at_rounding_floor(x, f, a_abs, tcur, b):
+                # every equation holds to the rounding of its own terms, so the
+                # step is rounding noise amplified by the system's conditioning
+                # (a DC-coupled chain of high-gain stages: 10¹⁴ over eight), and
+                # no step can make the point better
                 return x, it, True, f
             if not line_search:
                 if step > options.max_step_v:
