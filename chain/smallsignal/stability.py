@@ -9,6 +9,14 @@ the circuit oscillates at about ``ω/2π`` Hz (or, for a real pole, runs
 away without oscillating) until the tubes limit it.  The small-signal
 response computed for such a circuit is not what it will do.
 
+Poles are located by an eigen-solve; in a long chain of similar stages
+they come in near-equal clusters whose computed positions rounding
+scatters by many percent, some of them across the axis.  So a pole
+located in the right half-plane is checked by counting such poles with
+the argument principle (:func:`chain.smallsignal.poles.rhp_count`); when
+the count is zero the chain is stable and W802 says the positions are
+uncertain.
+
 Which loop closes it
 --------------------
 Each candidate feedback path is broken in turn and the poles are computed
@@ -52,7 +60,7 @@ from chain.circuit import Circuit, Role
 from chain.errors import Diagnostic, error, warning
 from chain.smallsignal.mna import DirectSolver, Mna, assemble
 from chain.smallsignal.model import SmallSignalCircuit
-from chain.smallsignal.poles import Pole, PoleZero, pencil_eigen, pole_zero, poles
+from chain.smallsignal.poles import Pole, PoleZero, pencil_eigen, pole_zero, poles, rhp_count
 from chain.decibels import db_array
 
 __all__ = [
@@ -376,6 +384,17 @@ def stability(ss: SmallSignalCircuit, *, ref_hz: float = 1e3, band_hz: tuple[flo
     ps = poles(ss, mna=mna)
     out = pole_zero(ss, ref_hz=ref_hz, mna=mna)
     unstable = _pair_representatives(tuple(p for p in ps if p.unstable))
+    diags: list[Diagnostic] = []
+    if unstable and rhp_count(mna, np.array([2.0 * math.pi * p.s_hz for p in ps])) == 0:
+        # located in the right half-plane, counted there by none: rounding has
+        # scattered a cluster of near-equal poles across the axis (module docstring)
+        diags.append(warning(
+            "W802",
+            f"{len(tuple(p for p in ps if p.unstable))} of the {len(ps)} poles were located in the right "
+            "half-plane, but counting them by the argument principle on det Y(jω) finds none there: "
+            "the circuit is stable, and the listed pole positions are uncertain (near-equal poles of "
+            "similar stages in a long chain, which rounding scatters by many percent)"))
+        unstable = ()
     guilty = culprits(ss, mna, unstable) if unstable else ()
     loops = []
     f_loop = loop_frequencies(*band_hz)
@@ -383,7 +402,6 @@ def stability(ss: SmallSignalCircuit, *, ref_hz: float = 1e3, band_hz: tuple[flo
         lg = loop_gain(ss, path, f_loop, mna=mna)
         if lg is not None:
             loops.append(lg)
-    diags: list[Diagnostic] = []
     for p, paths in zip(unstable, guilty):
         where = f"; the loop closes through {describe_paths(paths)}" if paths else \
             "; breaking no single feedback network or rail removes it (a loop inside the stages)"

@@ -236,3 +236,34 @@ def test_zeros_of_an_rc_low_pass_pair_at_a_capacitive_node():
     assert_allclose(z, [-1.0 / (r2 * c2)], rtol=1e-10)
     z_out = zeros(mna, mna.index[ss.node_of.get(ss.output_node, ss.output_node)])
     assert z_out.size == 0
+
+
+@pytest.mark.parametrize("margin, expected", [(0.95, 0), (1.05, 2), (3.0, 2)])
+def test_rhp_count_of_the_phase_shift_oscillator(margin, expected):
+    """The argument-principle count agrees with the 1/29 criterion of the RC
+    phase-shift oscillator (Millman & Halkias, as above): a pair of poles
+    crosses into the right half-plane when the gain passes 29."""
+    from chain.smallsignal.poles import rhp_count
+
+    assert rhp_count(_phase_shift_oscillator(29.0 * margin)) == expected
+
+
+def test_rhp_count_of_a_negative_conductance_tank():
+    """C in parallel with a negative conductance −g (fed from the source through
+    R): the single pole sits at s = (g − 1/R)/C, in the right half-plane when
+    g > 1/R (first-order nodal equation)."""
+    from chain.smallsignal.poles import rhp_count
+
+    def mna_for(g_neg):
+        stamps = [Stamp("R", "R", 0, 1, 1e-3), Stamp("C", "C", 0, -1, 1e-6),
+                  Stamp("N", "G", 0, -1, -g_neg, cp=0, cn=-1)]
+        src = Stamp("sig", "V", 1, -1, 1.0, branch=2)
+        stamps.append(src)
+        g, c = _matrices(3, stamps)
+        return Mna(("a", "src"), {"a": 0, "src": 1, GROUND: -1}, g, c, tuple(stamps), src)
+
+    for g_neg, expected in ((0.5e-3, 0), (2e-3, 1)):
+        mna = mna_for(g_neg)
+        (s,) = pencil_eigen(mna)
+        assert_allclose(s.real, (g_neg - 1e-3) / 1e-6, rtol=1e-9)
+        assert rhp_count(mna) == expected

@@ -189,3 +189,29 @@ def test_loop_plot_draws_the_loop_gain_and_marks_the_crossovers():
     assert np.allclose(ph.get_ydata(), lg.phase_deg)
     notes = [t.get_text() for t in plot.axes[0].texts]
     assert sum(n.startswith("phase margin") for n in notes) == 2
+
+
+def test_a_long_cascade_without_a_shared_impedance_is_stable():
+    """Sixteen common-cathode stages, each plate on its own decoupled rail from
+    an ideal supply: no impedance is shared, so no loop exists and the chain
+    is stable (common practice); the located poles of such a chain scatter
+    across the axis by rounding, and the argument-principle count must
+    overrule them (W802 when it does)."""
+    from chain.build import build
+    from chain.dc import solve
+    from chain.language import parse_text
+    from chain.smallsignal import linearize
+    from chain.smallsignal.stability import stability
+
+    n = 16
+    lines = ['title "cascade"', "supply HT 330V", "input into V1 resistance 10k"]
+    lines += [f"rail B{i} from HT drop 10k decouple 22u" for i in range(1, n + 1)]
+    for i in range(1, n + 1):
+        lines += [f"stage V{i} common-cathode 12AX7", f"  plate 100k from B{i}",
+                  "  cathode 1k5 bypass 22u" if i % 2 else "  cathode 2k7", "  grid leak 1M stopper 33k"]
+    lines += [f"couple V{i} -> V{i + 1} cap 22n" for i in range(1, n)]
+    lines += [f"couple V{n} -> output cap 22n", "output load 1M", ""]
+    circuit = build(parse_text("\n".join(lines), "cascade16.chain"))
+    result = stability(linearize(circuit, solve(circuit)))
+    assert result.stable
+    assert not any(d.code == "E801" for d in result.diagnostics)
