@@ -2,7 +2,8 @@
 and as text or Markdown.
 
 Numbers are SI (V, A, W, ohm, Hz; gains in dB); deviations are fractions
-(``-0.25`` is 25 % low).  Layout: ``docs/report-format.md`` (Spread).
+(``-0.25`` is 25 % low).  Layout: ``docs/report-format.md`` (Spread);
+formally ``chain/report/spread_schema.json`` (:func:`spread_schema`).
 """
 
 from __future__ import annotations
@@ -16,13 +17,21 @@ from chain.about import SAFETY
 import chain.report.fmt as fmt
 from chain.report.values import num
 
-__all__ = ["SPREAD_SCHEMA", "spread_data", "render_spread", "FIGURES"]
+__all__ = ["SPREAD_SCHEMA", "spread_data", "spread_schema", "render_spread", "FIGURES"]
 
 SPREAD_SCHEMA = "chain-spread/1"
 
 #: figure key → (label, unit) in report order
 FIGURES = {"vp_v": ("Vp", "V"), "vk_v": ("Vk", "V"), "vgk_v": ("Vgk (bias)", "V"), "ip_a": ("Ip", "A"),
            "pd_w": ("Pd", "W"), "gain_db": ("gain", "dB"), "zout_ohm": ("|Zout|", "ohm")}
+
+
+def spread_schema() -> dict[str, Any]:
+    """The JSON Schema (draft 2020-12) of the spread document, ``chain/report/spread_schema.json``."""
+    import json
+    from pathlib import Path
+
+    return json.loads(Path(__file__).with_name("spread_schema.json").read_text(encoding="utf-8"))
 
 
 def _p(p, unstable_corners: frozenset = frozenset(), key: str = "") -> dict[str, Any]:
