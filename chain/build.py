@@ -18,6 +18,7 @@ source parts ``input.*``, the load ``output.load``, strays ``stray.<node>``.
 from __future__ import annotations
 
 from dataclasses import fields, replace
+from typing import Any
 
 from chain.circuit import (
     GROUND,
@@ -93,13 +94,14 @@ def tube_model(design: Design, name: str) -> TriodeModel:
         base = tube_model(design, t.base) if t.base in defs and t.base != t.name else lookup(t.base)
     else:
         template = lookup("12AX7")
-        none_ratings = Ratings(**{f.name: (None if f.name != "source" else "netlist")
-                                  for f in fields(Ratings)})
+        # every rating unknown (None), the source named: keyword arguments of Ratings by field name
+        blank: dict[str, Any] = {f.name: (None if f.name != "source" else "netlist") for f in fields(Ratings)}
+        none_ratings = Ratings(**blank)
         base = replace(template, cgk_f=0.0, cgp_f=0.0, cpk_f=0.0, ratings=none_ratings, aliases=(), form="koren")
     form = t.form or base.form
     keys = _MODEL_KEYS[form]
     model_changes = {keys[k]: v for k, v in params.items() if k in keys}
-    rating_changes = {_RATING_KEYS[k]: v for k, v in params.items() if k in _RATING_KEYS}
+    rating_changes: dict[str, Any] = {_RATING_KEYS[k]: v for k, v in params.items() if k in _RATING_KEYS}
     ratings = replace(base.ratings, **rating_changes) if rating_changes else base.ratings
     given = " ".join(k for k in params) or "nothing"
     src = (f"defined in {design.path} line {t.span.line}, {form} form"
@@ -155,9 +157,9 @@ class _Expander:
         self.problems.append(error(code, message, self.span(span) if span else None, hint, subject))
 
     def add(self, part, span: Span):
-        bucket = {Resistor: self.res, Capacitor: self.caps, Inductor: self.inds,
-                  VoltageSource: self.srcs, Triode: self.tris}[type(part)]
-        bucket.append(part)
+        buckets: dict[type, list[Any]] = {Resistor: self.res, Capacitor: self.caps, Inductor: self.inds,
+                                          VoltageSource: self.srcs, Triode: self.tris}
+        buckets[type(part)].append(part)
         self.origins[part.name] = span
 
     # -- supplies ---------------------------------------------------------------
@@ -242,6 +244,7 @@ class _Expander:
         n, own = s.name, Owner("stage", s.name)
         cs = s.spans.get("cathode", s.span)
         k = s.cathode
+        assert k is not None  # validation gives a two-triode stage its cathode line
         if k.tail_ohm is None:
             self.add(Resistor(f"{n}.{'Rt' if alone == Role.TAIL_RESISTOR else 'Rk'}", cathode, GROUND, k.r_ohm,
                               own, alone), cs)
@@ -269,6 +272,7 @@ class _Expander:
         and ``cathode``, input ``in`` (top of the grid leak)."""
         n, sp, own = s.name, s.spans, Owner("stage", s.name)
         plate, cathode = f"{n}.plate", f"{n}.cathode"
+        assert s.plate_load_ohm is not None  # validation gives a cathodyne its plate load
         self.add(Resistor(f"{n}.RL", s.rail, plate, s.plate_load_ohm, own, Role.PLATE_LOAD), sp.get("plate", s.span))
         ret = self._tail(s, cathode, alone=Role.CATHODE_RESISTOR)
         inp, grid = self._grid(n, s.grid_leak_ohm, s.grid_stopper_ohm, ret, suffix="",
@@ -287,6 +291,8 @@ class _Expander:
         by a capacitor (``second grid … bypass C``)."""
         n, sp, own = s.name, s.spans, Owner("stage", s.name)
         sec = s.second
+        # validation gives a pair both plate loads and its second section
+        assert sec is not None and s.plate_load_ohm is not None and sec.plate_load_ohm is not None
         plate1, plate2, cathode = f"{n}.plate1", f"{n}.plate2", f"{n}.cathode"
         self.add(Resistor(f"{n}.RL", s.rail, plate1, s.plate_load_ohm, own, Role.PLATE_LOAD), sp.get("plate", s.span))
         self.add(Resistor(f"{n}.RL2", sec.rail, plate2, sec.plate_load_ohm, own, Role.PLATE_LOAD),
@@ -374,22 +380,24 @@ def build(design: Design) -> Circuit:
     couplings: dict[str, tuple[str, str]] = {}
     for c in design.couplings:
         source = stage_nodes[c.src_stage]
-        src = source.outputs[c.src_port] if c.src_port else source.output
+        near = source.outputs[c.src_port] if c.src_port else source.output
         if c.dst == "output":
             dst = "output"
         else:
             target = stage_nodes[c.dst_stage]
             dst = target.inputs[c.dst_port] if c.dst_port else target.input
         if c.kind == "cap":
+            assert c.cap_f is not None  # the parser gives every cap coupling its value
             name = f"couple.{c.src}-{c.dst}.C"
-            x.add(Capacitor(name, src, dst, c.cap_f, c.rated_v, Owner("coupling", c.label), Role.COUPLING), c.span)
-            couplings[c.label] = (src, dst)
+            x.add(Capacitor(name, near, dst, c.cap_f, c.rated_v, Owner("coupling", c.label), Role.COUPLING), c.span)
+            couplings[c.label] = (near, dst)
         elif c.kind == "direct":
-            x.nodes.join(src, dst)
-            dst = src
+            x.nodes.join(near, dst)
+            dst = near
         else:
-            x.network(nets[c.network], c.label, {nets[c.network].ports[0]: src, nets[c.network].ports[1]: dst})
-            couplings[c.label] = (src, dst)
+            assert c.network is not None  # the parser gives every network coupling its network
+            x.network(nets[c.network], c.label, {nets[c.network].ports[0]: near, nets[c.network].ports[1]: dst})
+            couplings[c.label] = (near, dst)
         if c.dst == "output":
             output_node = dst
     for net in design.networks:
@@ -397,6 +405,7 @@ def build(design: Design) -> Circuit:
             x.network(net, net.name, {})
 
     src = design.source
+    assert src is not None  # validation requires an input line
     first_in = stage_nodes[src.into].input
     own = Owner("input", "input")
     # the node the source network ends on: the stage input, or the near end of
@@ -424,10 +433,12 @@ def build(design: Design) -> Circuit:
                   src.span)
 
     out = design.output
+    assert out is not None  # validation requires an output line
     # the chain's output ports: (label, node, load); a stage named alone gives all its output ports
     ports: list[tuple[str, str, float, Span]] = []
     for o in (out, *out.more):
         if o.node is None:
+            assert output_node is not None  # validation: an output without a node is fed by a coupling
             ports.append(("output", output_node, o.load_ohm, o.span))
         elif o.node in stage_nodes:
             rec = stage_nodes[o.node]
@@ -466,7 +477,7 @@ def build(design: Design) -> Circuit:
 def _signal_order(design: Design, x: _Expander) -> list[str]:
     """Stages in signal order from the input along the couplings."""
     g = Digraph(s.name for s in design.stages)
-    spans = {}
+    spans: dict[tuple[str, str], Span] = {}
     for c in design.couplings:
         g.add_edge(c.src_stage, c.dst_stage)
         spans.setdefault((c.src_stage, c.dst_stage), c.span)
@@ -479,18 +490,19 @@ def _signal_order(design: Design, x: _Expander) -> list[str]:
         cycle = cycle[k:] + cycle[:k]
         x.err("E315", "loop of direct couplings: " + " -> ".join(cycle + [cycle[0]]), first.span,
               "a direct coupling passes DC; a loop of them has no defined operating point")
-    cycle = g.find_cycle()
-    if cycle and not x.problems:
-        first = min((spans[u, v] for u, v in cycle), key=lambda sp: sp.line)
-        x.err("E317", "the couplings form a loop: " + " -> ".join(e[0] for e in cycle) + f" -> {cycle[0][0]}",
-              first, "write feedback as a network naming stage terminals, not as a coupling")
+    loop = g.find_cycle()
+    if loop and not x.problems:
+        at = min((spans[u, v] for u, v in loop), key=lambda sp: sp.line)
+        x.err("E317", "the couplings form a loop: " + " -> ".join(e[0] for e in loop) + f" -> {loop[0][0]}",
+              at, "write feedback as a network naming stage terminals, not as a coupling")
+    assert design.source is not None  # validation requires an input line
     start = design.source.into
     reached = g.descendants(start) | {start} if start in g else set()
     for s in design.stages:
         if s.name not in reached:
             x.err("E316", f"stage '{s.name}' is not on the signal path from the input", s.span,
                   f"couple it: 'couple <stage> -> {s.name} cap 22n'", s.name)
-    if cycle:
+    if loop:
         return [s.name for s in design.stages]
     return [n for n in g.topological_order(reached) if n != "output"]
 
@@ -533,7 +545,8 @@ def check_topology(circuit: Circuit, design: Design) -> list[Diagnostic]:
 
     problems: list[Diagnostic] = []
     touches: dict[str, list[str]] = {}
-    dc_edges = [(part.a, part.b) for part in (*circuit.resistors, *circuit.inductors)]
+    dc_parts: tuple[Resistor | Inductor, ...] = (*circuit.resistors, *circuit.inductors)
+    dc_edges = [(part.a, part.b) for part in dc_parts]
     dc_nodes = [GROUND] + [n for e in dc_edges for n in e]  # in the order they are met
     for c in circuit.capacitors:
         dc_nodes += [c.a, c.b]
@@ -541,7 +554,8 @@ def check_topology(circuit: Circuit, design: Design) -> list[Diagnostic]:
     dc_nodes += [n for s in circuit.sources for n in (s.pos, s.neg)]
     for t in circuit.triodes:
         dc_nodes += [t.plate, t.grid, t.cathode]
-    for part in (*circuit.resistors, *circuit.inductors, *circuit.capacitors):
+    two_terminal: tuple[Resistor | Inductor | Capacitor, ...] = (*dc_parts, *circuit.capacitors)
+    for part in two_terminal:
         touches.setdefault(part.a, []).append(part.name)
         touches.setdefault(part.b, []).append(part.name)
     for s in circuit.sources:
@@ -664,7 +678,9 @@ def with_part(design: Design, part: str, value: float) -> Design:
     stage_names = {s.name for s in design.stages}
     if head in stage_names and _stage_part_value(design.stage(head), _stage_part(design.stage(head), tail)) is not None:
         stage = design.stage(head)
-        field, sub = _stage_part(stage, tail)
+        where = _stage_part(stage, tail)
+        assert where is not None  # its value was found just above
+        field, sub = where
         if sub is None:
             return design.with_stage(head, **{field: value})
         return design.with_stage(head, **{field: replace(getattr(stage, field), **{sub: value})})
@@ -672,8 +688,9 @@ def with_part(design: Design, part: str, value: float) -> Design:
         return _edited(design, supplies=tuple(replace(s, volts=value) if s.name == tail else s
                                               for s in design.supplies))
     elif head == "rail" and tail[-2:] in (".R", ".C") and any(r.name == tail[:-2] for r in design.rails):
-        key = "drop_ohm" if tail.endswith(".R") else "decouple_f"
-        return _edited(design, rails=tuple(replace(r, **{key: value}) if r.name == tail[:-2] else r
+        # the Rail field by name: a keyword argument of replace()
+        change: dict[str, Any] = {"drop_ohm" if tail.endswith(".R") else "decouple_f": value}
+        return _edited(design, rails=tuple(replace(r, **change) if r.name == tail[:-2] else r
                                            for r in design.rails))
     elif head == "couple":
         couplings = tuple(replace(c, cap_f=value) if c.kind == "cap" and f"{c.src}-{c.dst}.C" == tail else c

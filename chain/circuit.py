@@ -48,6 +48,7 @@ from types import MappingProxyType
 from typing import Literal, Mapping, Protocol, Union
 
 from chain.errors import Span
+from chain.language.design import StageKind
 from chain.tubes import TriodeModel
 
 GROUND = "gnd"
@@ -84,8 +85,6 @@ _KIND_WORDS = {
     "cathodyne": "cathodyne phase inverter",
     "long-tailed-pair": "long-tailed pair",
 }
-#: the stage configurations
-StageKind = Literal["common-cathode", "cathode-follower", "common-grid", "cathodyne", "long-tailed-pair"]
 
 
 @dataclass(frozen=True, slots=True)

@@ -10,10 +10,12 @@ that two netlists that differ only in layout and comments compare equal.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Literal, get_args
 
 from chain.errors import Span
 
 __all__ = [
+    "StageKind",
     "STAGE_KINDS",
     "ANALYSED_KINDS",
     "TERMINALS",
@@ -37,7 +39,8 @@ __all__ = [
 ]
 
 #: every stage configuration the grammar knows
-STAGE_KINDS = ("common-cathode", "cathode-follower", "common-grid", "cathodyne", "long-tailed-pair")
+StageKind = Literal["common-cathode", "cathode-follower", "common-grid", "cathodyne", "long-tailed-pair"]
+STAGE_KINDS: tuple[StageKind, ...] = get_args(StageKind)
 #: the configurations the analysis handles (all of them)
 ANALYSED_KINDS = STAGE_KINDS
 #: the configurations with two triodes
@@ -164,7 +167,7 @@ class Section:
 @dataclass(frozen=True, slots=True)
 class Stage:
     name: str
-    kind: str
+    kind: StageKind
     tube: str
     #: plate load resistor, ohm; None for a plate straight on its rail
     plate_load_ohm: float | None = None
