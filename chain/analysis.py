@@ -2,6 +2,7 @@
 
     netlist → Design → Circuit → DC solve (+ diagnostics) → linearise →
     response over the band → stage table and overall figures → noise → headroom
+    → every study of :mod:`chain.studies`
 
 Nothing here formats or prints; :meth:`Analysis.table` and
 :meth:`Analysis.plot` are thin delegates to the report and plot layers.
@@ -10,10 +11,10 @@ Nothing here formats or prints; :meth:`Analysis.table` and
 from __future__ import annotations
 
 import hashlib
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import MappingProxyType
-from typing import Mapping
+from typing import Any, Mapping
 
 import numpy as np
 
@@ -41,6 +42,8 @@ from chain.smallsignal.mna import check_size
 from chain.smallsignal.noise import NoiseResult
 from chain.smallsignal.noise import noise as run_noise
 from chain.smallsignal.table import no_signal_warnings
+from chain.studies import Context
+from chain.studies import studies as all_studies
 
 __all__ = ["Analysis", "analyze", "analyze_design", "sweep_frequencies", "ac_loads"]
 
@@ -76,6 +79,8 @@ class Analysis:
     sensitivity: tuple[Ranking, ...] = ()
     #: output noise (:class:`chain.smallsignal.noise.NoiseResult`), or None when skipped
     noise: NoiseResult | None = None
+    #: study key → its result (:mod:`chain.studies`; a study with nothing to say gives None)
+    studies: Mapping[str, Any] = field(default_factory=lambda: MappingProxyType({}))
 
     @property
     def unstable(self) -> bool:
@@ -162,12 +167,13 @@ def ac_loads(ss, f_hz: float) -> dict[str, complex]:
 
 def analyze_design(design: Design, circuit: Circuit, warnings: tuple[Diagnostic, ...] = (), *,
                    headroom: bool = True, options: SolveOptions = SolveOptions(),
-                   level_v: float | None = None, noise: bool = True) -> Analysis:
+                   level_v: float | None = None, noise: bool = True, studies: bool = True) -> Analysis:
     """Analyse an already built design (see :func:`analyze`)."""
     if level_v is not None:
         design = replace(design, settings=replace(design.settings, level_v=level_v))
     try:
-        return _analyze_steps(design, circuit, warnings, headroom=headroom, options=options, noise=noise)
+        return _analyze_steps(design, circuit, warnings, headroom=headroom, options=options, noise=noise,
+                              studies=studies)
     except ChainError as exc:
         # give every message about a stage or part the netlist line it came from
         exc.diagnostics = locate(exc.diagnostics, circuit, design)
@@ -193,7 +199,7 @@ def locate(diagnostics, circuit: Circuit, design: Design) -> tuple[Diagnostic, .
 
 
 def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool,
-                   options: SolveOptions, noise: bool = True) -> Analysis:
+                   options: SolveOptions, noise: bool = True, studies: bool = True) -> Analysis:
     check_size(circuit, len(sweep_frequencies(design)))
     dc = solve(circuit, options)
     ss = linearize(circuit, dc)
@@ -218,6 +224,7 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
         from chain.headroom import headroom as run_headroom
 
         large = run_headroom(circuit, dc, level_v=s.level_v)
+    found = run_studies(Context(design, circuit, dc, ss, freq, rows, total)) if studies else {}
     if design.lines:
         text = "\n".join(design.lines)
     else:  # made or changed in Python: hash its canonical text
@@ -235,12 +242,18 @@ def _analyze_steps(design: Design, circuit: Circuit, warnings, *, headroom: bool
         options=options,
         stability=dynamics, noise=hiss,
         sensitivity=ranks,
+        studies=MappingProxyType(found),
     )
+
+
+def run_studies(ctx: Context) -> dict[str, Any]:
+    """Every study of :mod:`chain.studies` on the core results, by key."""
+    return {study.key: study.run(ctx) for study in all_studies()}
 
 
 def analyze(source: str | Path | Design, *, headroom: bool = True,
             options: SolveOptions = SolveOptions(), level_v: float | None = None,
-            noise: bool = True) -> Analysis:
+            noise: bool = True, studies: bool = True) -> Analysis:
     """Analyse a netlist.
 
     Parameters
@@ -256,6 +269,8 @@ def analyze(source: str | Path | Design, *, headroom: bool = True,
     noise
         Also compute the output noise (one more frequency sweep; see
         :mod:`chain.smallsignal.noise`).
+    studies
+        Also run every study of :mod:`chain.studies` (supply ripple, …).
 
     Raises
     ------
@@ -273,4 +288,4 @@ def analyze(source: str | Path | Design, *, headroom: bool = True,
     else:
         design, circuit, warnings = load(source)
     return analyze_design(design, circuit, warnings, headroom=headroom, options=options, level_v=level_v,
-                          noise=noise)
+                          noise=noise, studies=studies)

@@ -19,7 +19,7 @@ RANKS = {
     "dc": 5,
     "smallsignal": 6,
     "formulas": 7, "headroom": 7,
-    "transient": 7.5,
+    "transient": 7.5, "studies": 7.6,
     "analysis": 8, "spread": 8,
     "report": 9, "plot": 9,
     "changes": 10, "page": 10, "watch": 10,

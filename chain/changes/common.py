@@ -19,7 +19,7 @@ COMPARE_SCHEMA = "chain-compare/1"
 APPEAR_SIZE = 10.0
 
 #: effect kinds, in the order used to break ties of size
-EFFECT_KINDS = ("overall", "corner", "response", "headroom", "noise", "gain", "coupling", "impedance",
+EFFECT_KINDS = ("overall", "corner", "response", "headroom", "noise", "study", "gain", "coupling", "impedance",
                 "operating point", "rail")
 
 

@@ -14,6 +14,7 @@ from chain.changes.common import (
     _stage_index,
     document,
 )
+from chain.changes.studies import study_figures
 from chain.report.headroom import first_clip
 from chain.report.values import num
 
@@ -109,6 +110,15 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
     by_name = [{c["name"]: c for c in d.get("couplings", ())} for d in docs]
     for name in coupling_names:
         add(name, "transfer", "dB", [ix[name]["loss_db"] if name in ix else None for ix in by_name])
+    figures = [study_figures(d) for d in docs]
+    keys: list[tuple[str, str]] = []
+    for fs in figures:
+        keys += [k for k in fs if k not in keys]
+    for key in keys:
+        unit = next(fs[key].unit for fs in figures if key in fs)
+        values = [fs[key].value if key in fs else None for fs in figures]
+        if unit != "text" and all(v is None or isinstance(v, float) for v in values):
+            add(key[0], key[1], unit, values)  # type: ignore[arg-type]
     return CompareResult(labels=names, sides=tuple(_side(d) for d in docs), rows=tuple(rows),
                          tol_db=float(tol_db), tol_pct=float(tol_pct))
 

@@ -9,6 +9,7 @@ from typing import Any, Mapping
 import numpy as np
 
 import chain.report.fmt as _f
+from chain.changes.studies import study_effects
 from chain.changes.common import (
     APPEAR_SIZE,
     EFFECT_KINDS,
@@ -382,6 +383,7 @@ def diff(a, b, *, tol_db: float = 0.05, tol_pct: float = 0.5) -> DiffResult:
     effects += _rail_effects(da, db, tol_pct)
     effects += _headroom_effects(da, db, mapping, tol_db)
     effects += _noise_effects(da, db, tol_db)
+    effects += study_effects(da, db, tol_db, tol_pct)
     resp = _response_effect(da, db, tol_db)
     if resp is not None:
         effects.append(resp)

@@ -267,5 +267,12 @@ def _grid_problems(data: dict[str, Any]) -> list[tuple[str, tuple, str]]:
 
 
 def schema() -> dict[str, Any]:
-    """The JSON Schema (draft 2020-12) of ``chain-report/1`` documents."""
-    return json.loads((Path(__file__).with_name("schema.json")).read_text(encoding="utf-8"))
+    """The JSON Schema (draft 2020-12) of ``chain-report/1`` documents: the
+    core layout of ``schema.json`` and each study's section
+    (:mod:`chain.report.sections`) as an optional key of its own."""
+    from chain.report.sections import sections
+
+    doc = json.loads((Path(__file__).with_name("schema.json")).read_text(encoding="utf-8"))
+    for sec in sections():
+        doc["properties"][sec.key] = {"anyOf": [{"type": "null"}, dict(sec.schema)]}
+    return doc

@@ -9,13 +9,14 @@ joins their output.  Renderers read the document only: no physics here.
 from __future__ import annotations
 
 import math
-from typing import Any, Sequence
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from chain.report.sections import Section, sections
 from chain.smallsignal.resample import on_log_grid
 
-__all__ = ["SECTIONS", "Renderer", "check_sections", "clipped_stages", "spot_frequencies", "spot_response",
+__all__ = ["SECTIONS", "Renderer", "check_sections", "report_order", "study_sections", "clipped_stages", "spot_frequencies", "spot_response",
            "pd_rating", "triode_tubes", "corner_reference", "past_clip", "shape_lines"]
 
 #: every section, in report order: what a technician reads first (the stage
@@ -25,22 +26,40 @@ SECTIONS = ("header", "safety", "stages", "overall", "response", "stability", "s
             "diagnostics", "stage_details", "rails", "capacitors", "settings", "parts")
 
 
+def study_sections() -> dict[str, Section]:
+    """Key → report section of every study (:mod:`chain.report.sections`)."""
+    return {s.key: s for s in sections()}
+
+
+def report_order() -> tuple[str, ...]:
+    """Every section name in report order: :data:`SECTIONS` with each study's
+    section placed after the built-in section it names (``Section.after``)."""
+    extra = study_sections()
+    out: list[str] = []
+    for name in SECTIONS:
+        out.append(name)
+        out += [k for k, s in extra.items() if s.after == name]
+    out += [k for k, s in extra.items() if s.after not in SECTIONS]
+    return tuple(out)
+
+
 def check_sections(sections: Sequence[str] | None) -> tuple[str, ...]:
-    """The sections to render, in report order; ``None`` means all.
+    """The sections to render, in report order (:func:`report_order`); ``None`` means all.
 
     Raises
     ------
     ValueError
         an unknown section name (the message lists the known ones).
     """
+    order = report_order()
     if sections is None:
-        return SECTIONS
+        return order
     if isinstance(sections, str):
         raise TypeError("sections must be a sequence of names, e.g. ('stages',), not a string")
-    unknown = [s for s in sections if s not in SECTIONS]
+    unknown = [s for s in sections if s not in order]
     if unknown:
-        raise ValueError(f"unknown report section(s) {unknown}; known: {', '.join(SECTIONS)}")
-    return tuple(s for s in SECTIONS if s in sections)
+        raise ValueError(f"unknown report section(s) {unknown}; known: {', '.join(order)}")
+    return tuple(s for s in order if s in sections)
 
 
 class Renderer:
@@ -57,11 +76,21 @@ class Renderer:
     def render(self, data: dict[str, Any], sections: Sequence[str] | None = None) -> str:
         """The chosen ``sections`` of the report document ``data``, ending in a newline."""
         blocks = []
+        extra = study_sections()
         for name in check_sections(sections):
-            lines = getattr(self, name)(data)
+            if name in extra:
+                part = data.get(name)
+                lines = [] if part is None else self.study(extra[name], part)
+            else:
+                lines = getattr(self, name)(data)
             if lines:
                 blocks.append("\n".join(lines))
         return self.separator.join(blocks) + "\n"
+
+    def study(self, section: Section, part: Mapping[str, Any]) -> list[str]:
+        """A study's section (:mod:`chain.report.sections`): its title, facts
+        and tables in this renderer's style."""
+        raise NotImplementedError
 
     # the section methods, overridden by each renderer
     def header(self, data: dict[str, Any]) -> list[str]:

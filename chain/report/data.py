@@ -274,13 +274,15 @@ def report_data(analysis) -> dict[str, Any]:
         Keys, in order: ``schema``, ``tool``, ``netlist``, ``settings``,
         ``solve_options``, ``dc_solve``, ``safety``, ``parts``,
         ``operating_points``, ``rails``, ``capacitors``, ``stages``,
-        ``couplings``, ``overall``, ``response``, ``headroom``, ``noise``, ``diagnostics``, ``stability``; see
+        ``couplings``, ``overall``, ``response``, ``headroom``, ``noise``, ``diagnostics``, ``stability``,
+        ``sensitivity``, then one key per study (:mod:`chain.report.sections`); see
         ``docs/report-format.md``.  Only plain ``dict``, ``list``, ``str``,
         ``int``, ``float``, ``bool`` and ``None`` values.
     """
     from chain.report.dynamics import sensitivity_data, stability_data
     from chain.report.headroom import headroom_data
     from chain.report.noise import noise_data
+    from chain.report.sections import sections
 
     design = analysis.design
     f, mag_db, phase = _response_arrays(analysis)
@@ -305,4 +307,5 @@ def report_data(analysis) -> dict[str, Any]:
         "diagnostics": _diagnostics(analysis.diagnostics),
         "stability": stability_data(analysis.stability),
         "sensitivity": sensitivity_data(analysis.sensitivity),
+        **{sec.key: sec.data(analysis.studies.get(sec.key)) for sec in sections()},
     }

@@ -11,7 +11,7 @@ from __future__ import annotations
 import json
 from typing import Any, Sequence
 
-from chain.report.base import check_sections
+from chain.report.base import check_sections, study_sections
 
 __all__ = ["JsonRenderer", "SECTION_KEYS", "dumps"]
 
@@ -52,8 +52,9 @@ class JsonRenderer:
         ``schema`` and the keys of those sections only (not a valid full report)."""
         chosen = check_sections(sections)
         parts: dict[str, Any] = {"schema": data["schema"]}
+        extra = study_sections()
         for name in chosen:
-            parts.update(getattr(self, name)(data))
+            parts.update({name: data.get(name)} if name in extra else getattr(self, name)(data))
         order = list(data)
         return dumps({k: parts[k] for k in order if k in parts})
 

@@ -7,12 +7,13 @@ Markdown reports is as clean as one of text reports.
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Mapping
 
 import chain.report.fmt as fmt
 from chain.report.fmt import markdown_escape as _esc
 from chain.report.fmt import markdown_table as _table
 from chain.report.dynamics import unstable_banner
+from chain.report.sections import Section
 from chain.report.base import (Renderer, corner_reference, past_clip, pd_rating, port_past_clip, shape_lines,
                                spot_response)
 
@@ -206,6 +207,12 @@ class MarkdownRenderer(Renderer):
         if data.get("noise") is None:
             return []
         return ["## Noise at the output", ""] + markdown_lines(data["noise"])
+
+    def study(self, section: Section, part: Mapping[str, Any]) -> list[str]:
+        lines = [f"## {section.title}", ""] + [f"- {label}: {value}" for label, value in section.facts(part)]
+        for t in section.tables(part):
+            lines += [""] + _table(list(t.head), [list(r) for r in t.rows], set(t.right))
+        return lines
 
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         if not data["diagnostics"]:

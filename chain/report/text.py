@@ -15,10 +15,11 @@ Layout rules (so that ``git diff`` of two reports shows only what changed):
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Mapping
 
 import chain.report.fmt as fmt
 from chain.report.dynamics import unstable_banner
+from chain.report.sections import Section
 from chain.report.base import (Renderer, corner_reference, past_clip, pd_rating, port_past_clip, shape_lines,
                                spot_response)
 
@@ -324,6 +325,14 @@ class TextRenderer(Renderer):
         if n is None:
             return []
         return _title("Noise at the output") + text_lines(n, _kv)
+
+    def study(self, section: Section, part: Mapping[str, Any]) -> list[str]:
+        lines = _title(section.title) + [_kv(label, value) for label, value in section.facts(part)]
+        for t in section.tables(part):
+            widths = [max(len(c) for c in col) for col in zip(t.head, *t.rows)]
+            lines += ["", _row(list(t.head), widths, set(t.right))]
+            lines += [_row(list(r), widths, set(t.right)) for r in t.rows]
+        return lines
 
     def diagnostics(self, data: dict[str, Any]) -> list[str]:
         lines = _title("Diagnostics")

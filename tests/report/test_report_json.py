@@ -18,7 +18,7 @@ DEMOS = tuple(sorted(p.stem for p in (ROOT / "netlists").glob("*.chain")))
 #: the documented top-level keys, in order (docs/report-format.md)
 TOP_KEYS = ["schema", "tool", "netlist", "settings", "solve_options", "dc_solve", "safety", "parts",
             "operating_points", "rails", "capacitors", "stages", "couplings", "overall", "response", "headroom", "noise",
-            "diagnostics", "stability", "sensitivity"]
+            "diagnostics", "stability", "sensitivity", "ripple"]
 
 #: relative agreement of a number after the 12-significant-digit rounding of the document
 RTOL = 1e-11
