@@ -343,47 +343,61 @@ def _qz_eigen(gs: np.ndarray, cs: np.ndarray, *, vectors: bool):
     return lam, wl[:, keep], vr[:, keep]
 
 
-def _stamp_pair(st: Stamp, w: np.ndarray, v: np.ndarray, s: complex) -> tuple[complex, complex]:
-    """``(wᴴ·dY·v, wᴴ·C_st·v)`` for the element's stamp ``dY = G_st + s·C_st``."""
-
-    def val(vec, i):
-        return vec[i] if i >= 0 else 0.0
-
-    wa, wb = np.conj(val(w, st.a)), np.conj(val(w, st.b))
-    va, vb = val(v, st.a), val(v, st.b)
-    if st.kind == "R":
-        return st.value * (wa - wb) * (va - vb), 0.0
-    if st.kind == "C":
-        q = st.value * (wa - wb) * (va - vb)
-        return s * q, q
-    if st.kind == "L":
-        q = -st.value * np.conj(w[st.branch]) * v[st.branch]
-        return s * q, q
-    if st.kind == "G":
-        return st.value * (wa - wb) * (val(v, st.cp) - val(v, st.cn)), 0.0
-    return 0.0, 0.0
-
-
 #: d ln(stamped value) / d ln(part value): resistors are stamped as conductances
 _LOG_SIGN = {"R": -1.0, "C": 1.0, "L": 1.0, "G": 1.0}
 
 
-def part_sensitivities(mna: Mna, s: complex, w: np.ndarray, v: np.ndarray) -> dict[str, complex]:
-    """Normalised sensitivity ``(dp/dx)·(x/p)`` of the pole ``s`` to every part.
+def sensitivity_matrix(mna: Mna, s: np.ndarray, w: np.ndarray, v: np.ndarray) -> tuple[tuple[str, ...], np.ndarray]:
+    """Normalised sensitivities ``(dp/dx)·(x/p)`` of the poles ``s`` (rad/s,
+    eigenvector columns ``w``, ``v``) to every part: ``(names, S)`` with
+    ``S[i, k]`` for part ``names[i]`` and pole ``k``, all stamps at once.
 
-    Parts stamped in several pieces (none today) would add up under their name.
+    Parts stamped in several pieces (none today) add up under their name; a
+    pole at ``s = 0`` or with ``wᴴ·C·v = 0`` gets a column of NaN.
     """
-    denom = np.conj(w) @ (mna.c @ v)
-    out: dict[str, complex] = {}
-    if denom == 0.0 or s == 0.0:
-        return out
-    for st in mna.stamps:
-        if st.kind == "V":
+    n_pole = s.size
+    pad = np.zeros((1, n_pole), dtype=complex)
+    wc = np.vstack([np.conj(w), pad])  # index -1 reads the zero row
+    vp = np.vstack([v, pad])
+    denom = np.sum(wc[:-1] * (mna.c @ v), axis=0)
+    stamps = [st for st in mna.stamps if st.kind != "V"]
+    names = tuple(dict.fromkeys(st.name for st in stamps))
+    row = {name: i for i, name in enumerate(names)}
+    out = np.zeros((len(names), n_pole), dtype=complex)
+    for kind in ("R", "C", "L", "G"):
+        group = [st for st in stamps if st.kind == kind]
+        if not group:
             continue
-        dy, _ = _stamp_pair(st, w, v, s)
-        sens = -_LOG_SIGN[st.kind] * dy / denom / s
-        out[st.name] = out.get(st.name, 0.0) + complex(sens)
-    return out
+        val = np.array([st.value for st in group])[:, None]
+        if kind == "L":
+            br = np.array([st.branch for st in group])
+            dy = -val * wc[br] * vp[br] * s[None, :]
+        else:
+            a = np.array([st.a for st in group])
+            b = np.array([st.b for st in group])
+            dw = wc[a] - wc[b]
+            if kind == "G":
+                dv = vp[np.array([st.cp for st in group])] - vp[np.array([st.cn for st in group])]
+            else:
+                dv = vp[a] - vp[b]
+            dy = val * dw * dv
+            if kind == "C":
+                dy = dy * s[None, :]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sens = -_LOG_SIGN[kind] * dy / denom[None, :] / s[None, :]
+        np.add.at(out, np.array([row[st.name] for st in group]), sens)
+    bad = (denom == 0.0) | (s == 0.0)
+    out[:, bad] = np.nan
+    return names, out
+
+
+def part_sensitivities(mna: Mna, s: complex, w: np.ndarray, v: np.ndarray) -> dict[str, complex]:
+    """Normalised sensitivity ``(dp/dx)·(x/p)`` of the pole ``s`` to every part
+    (empty when the pole is at ``s = 0`` or ``wᴴ·C·v = 0``)."""
+    names, sens = sensitivity_matrix(mna, np.array([s], dtype=complex), w[:, None], v[:, None])
+    if np.any(np.isnan(sens)):
+        return {}
+    return {name: complex(x) for name, x in zip(names, sens[:, 0])}
 
 
 def poles(ss: SmallSignalCircuit, *, mna: Mna | None = None, parts: int = 3) -> tuple[Pole, ...]:
@@ -395,10 +409,14 @@ def poles(ss: SmallSignalCircuit, *, mna: Mna | None = None, parts: int = 3) -> 
     """
     mna = assemble(ss) if mna is None else mna
     s, w, v = pencil_eigen(mna, vectors=True)
+    names, sens = sensitivity_matrix(mna, s, w, v) if parts else ((), np.zeros((0, s.size)))
     out = []
     for k, sk in enumerate(s):
-        sens = part_sensitivities(mna, complex(sk), w[:, k], v[:, k])
-        top = sorted(sens.items(), key=lambda kv: -abs(kv[1]))[:parts] if parts else []
+        top: list[tuple[str, complex]] = []
+        if parts and not np.any(np.isnan(sens[:, k])):
+            # largest first, ties in stamp order (a stable sort)
+            order = np.argsort(-np.abs(sens[:, k]), kind="stable")[:parts]
+            top = [(names[i], complex(sens[i, k])) for i in order]
         out.append(Pole(complex(sk) / (2.0 * math.pi), tuple(top)))
     return tuple(out)
 
