@@ -102,7 +102,8 @@ class ClipBatch:
         (S,) bool: the sweep could not be solved at some point (the onsets
         after it are missing).
     refined : int
-        Onsets refined by Newton (the rest by interpolation between sweep points).
+        Onsets found between two sweep points and refined (by Newton, or by
+        regula falsi where Newton failed or left the bracket).
     points : int
         Sweep points per polarity.
     """
@@ -433,7 +434,7 @@ def clip_batch(batch: BatchCircuit, circuit: Circuit, factors: np.ndarray, dc: D
             values = vgk - onset_v if mech == 0 else threshold[None] - ip  # (P, S, T): active when >= 0
             lv, case = _onsets(values, valid, v_grid)
             level[:, side, mech, :] = lv
-            refined += _refine(red, us, values, valid, v_grid, case, mech, onset_v, threshold,
+            refined += _refine(red, us, values, v_grid, case, mech, onset_v, threshold,
                                level[:, side, mech, :])
     return _summarise(stages, tri_index, level, failed, refined, mags.size)
 
@@ -448,7 +449,8 @@ def _onsets(values: np.ndarray, valid: np.ndarray, v_grid: np.ndarray) -> tuple[
     level = np.full((s_count, t_count), np.inf)
     bracket = np.zeros((s_count, t_count), dtype=int)
     idx = np.arange(p_count)[:, None, None]
-    rising = (p_count < 2) | ~ok[1] | (values[1] >= values[0]) if p_count >= 2 else np.ones((s_count, t_count), bool)
+    # past the limit at rest and driven further in on this side (or no second point): the onset is at rest
+    rising = ~ok[1] | (values[1] >= values[0]) if p_count >= 2 else np.ones((s_count, t_count), dtype=bool)
     at_rest = active[0] & rising
     level[at_rest] = 0.0
     # where active at rest but driven out of it: look for a fresh onset once it has left
@@ -464,12 +466,11 @@ def _onsets(values: np.ndarray, valid: np.ndarray, v_grid: np.ndarray) -> tuple[
     return level, bracket
 
 
-def _refine(red: _Reduced, us: np.ndarray, values: np.ndarray, valid: np.ndarray, v_grid: np.ndarray,
+def _refine(red: _Reduced, us: np.ndarray, values: np.ndarray, v_grid: np.ndarray,
             bracket: np.ndarray, mech: int, onset_v: np.ndarray, threshold: np.ndarray,
             out: np.ndarray) -> int:
     """Refine the bracketed onsets in place (``out``: (S, T) levels); returns
-    how many were refined (the others keep the interpolation between the two
-    sweep points).
+    how many there were.
 
     The onset condition is ``Vgk − onset = 0`` for grid conduction and
     ``ln(Ip) − ln(threshold) = 0`` for cutoff (the logarithm makes the plate
