@@ -171,7 +171,7 @@ def spot_response(data: dict[str, Any]) -> list[tuple[float, float | None, float
     unwrapped = np.degrees(np.unwrap(np.radians(p[ok])))
     mags = on_log_grid(f[ok], m[ok], spots)
     phases = on_log_grid(f[ok], unwrapped, spots)
-    out = []
+    out: list[tuple[float, float | None, float | None]] = []
     for fs, mdb, ph in zip(spots, mags, phases):
         mdb, ph = float(mdb), float(ph)
         ph = (ph + 180.0) % 360.0 - 180.0
@@ -245,7 +245,7 @@ def past_clip(data: dict[str, Any]) -> dict[str, tuple[float | None, float | Non
         if clip is not None and level > clip:
             swings = [abs(v) for v in (row.get("swing_pos_v"), row.get("swing_neg_v")) if v is not None]
             prev = (max(swings), r["stage"]) if swings else None
-        elif x_in is not None:
+        elif x_in is not None and prev is not None:
             prev = (x_in * math.hypot(r["gain"]["re"], r["gain"]["im"]), prev[1])
         else:
             prev = None
@@ -295,7 +295,7 @@ def port_past_clip(data: dict[str, Any], r: dict[str, Any], port: dict[str, Any]
         return None
     x_in = past[0]
     h = data.get("headroom") or {}
-    row = next((x for x in h.get("stages", ()) if x["stage"] == r["stage"]), {})
+    row: dict[str, Any] = next((x for x in h.get("stages", ()) if x["stage"] == r["stage"]), {})
     clip = row.get("clip_input_v")
     if clip is not None and h["level_v"] > clip:
         ports = {o["port"]: o for o in row.get("outputs", ())}

@@ -10,6 +10,7 @@ or ``None``; ``None`` is written :data:`NONE`.
 from __future__ import annotations
 
 import math
+from collections.abc import Set as AbstractSet
 
 from chain.units import format_si
 
@@ -100,7 +101,7 @@ def mag(z: dict | None) -> float | None:
 def angle(z: dict | None) -> float | None:
     """Angle of a ``{"re", "im"}`` complex value in degrees, (−180, 180]."""
     m = mag(z)
-    if m is None or m == 0.0:
+    if m is None or m == 0.0 or z is None:
         return None
     return math.degrees(math.atan2(z["im"], z["re"]))
 
@@ -137,7 +138,7 @@ def markdown_escape(text: str) -> str:
     return str(text).replace("\\", "\\\\").replace("|", "\\|")
 
 
-def markdown_table(head: list[str], rows: list[list[str]], right: set[int] = frozenset()) -> list[str]:
+def markdown_table(head: list[str], rows: list[list[str]], right: AbstractSet[int] = frozenset()) -> list[str]:
     """A GitHub-flavoured Markdown pipe table; columns in ``right`` are right-aligned."""
     align = ["---:" if i in right else "---" for i in range(len(head))]
     out = ["| " + " | ".join(markdown_escape(h) for h in head) + " |", "| " + " | ".join(align) + " |"]

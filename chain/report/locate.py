@@ -23,7 +23,7 @@ def _descend(text: str, i: int, part) -> int:
     index = 0
     while i < len(text) and text[i] not in "]}":
         if opening == "{":
-            key, i = json.decoder.scanstring(text, i + 1)
+            key, i = json.decoder.scanstring(text, i + 1)  # type: ignore[attr-defined]  # there at run time; typeshed omits it
             i = _skip(text, i)
             i = _skip(text, i + 1)  # the colon
             if key == part:
