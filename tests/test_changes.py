@@ -398,3 +398,90 @@ def test_a_larger_grid_stopper_shows_as_more_output_noise():
     # the same change read from the JSON reports
     again = diff(json.loads(render(quiet, fmt="json")), json.loads(render(noisy, fmt="json")))
     assert by(again, "noise") == by(result, "noise")
+
+
+# --------------------------------------------------------------------------- two outputs (a phase inverter at the end)
+
+
+def _demo(name: str) -> str:
+    with open(f"netlists/{name}.chain", encoding="utf-8") as fh:
+        return fh.read()
+
+
+def _par(a: float, b: float) -> float:
+    return a * b / (a + b)
+
+
+@pytest.mark.parametrize("old, new, sign", [("plate 47k from B1", "plate 56k from B1", -1.0),
+                                             ("cathode 47k", "cathode 56k", +1.0)],
+                         ids=["plate-load", "cathode-load"])
+def test_cathodyne_load_change_moves_the_balance_of_the_stage_and_of_the_chain(old, new, sign):
+    """The cathodyne's balance ``A_k/A_p = −R_K'/R_L'`` (from memory of M.
+    Jones, "Valve Amplifiers", the cathodyne section; each load in parallel
+    with what it drives, here the 220k grid circuits behind 100 nF — taken as
+    220k, hence the 0.05 dB tolerance): a larger plate load lowers the
+    balance in dB, a larger cathode load raises it, by ``20·log10`` of the
+    loaded ratio.  The mu, rp and operating point drop out of the ratio.
+    The chain's two outputs follow (same stage, same grid circuits)."""
+    text = _demo("splitter_cathodyne")
+    assert old in text
+    a, b = analyse(text), analyse(text.replace(old, new))
+    r = diff(a, b)
+    stage = [c for c in r.effects if (c.kind, c.subject, c.quantity) == ("gain", "PI", "balance")]
+    chain = [c for c in r.effects if (c.kind, c.quantity) == ("overall", "balance")]
+    assert len(stage) == 1 and len(chain) == 1
+    expected = sign * 20 * math.log10(_par(56e3, 220e3) / _par(47e3, 220e3))
+    assert stage[0].delta == pytest.approx(expected, abs=0.05)
+    assert chain[0].delta == pytest.approx(stage[0].delta, abs=0.05)
+    assert stage[0].unit == "dB" and stage[0].old == pytest.approx(0.0, abs=0.01)
+    # the chain's two outputs: the changed half's gain moves the same way as the balance says
+    moved = {c.quantity: c.delta for c in r.effects if c.kind == "overall" and "gain" in c.quantity}
+    if sign < 0:  # bigger plate load: the plate output (the main one, drive.grid_a) grows
+        assert moved["gain"] > 0.5
+    else:  # bigger cathode load: the cathode output (drive.grid_b) grows relative to the plate's
+        assert moved.get("gain to output drive.grid_b", 0.0) - moved.get("gain", 0.0) > 0.5
+    # compare shows both outputs and the balance, and marks the balance as differing
+    rows = {(row.subject, row.quantity): row for row in compare([a, b]).rows}
+    for key in (("overall", "gain to output drive.grid_b"), ("overall", "balance"), ("overall", "balance phase"),
+                ("PI", "gain to cathode"), ("PI", "balance"), ("PI", "balance phase")):
+        assert key in rows
+    assert rows["overall", "balance"].differs and rows["PI", "balance"].differs
+
+
+def test_long_tailed_pair_second_grid_capacitor_moves_the_balance_phase():
+    """A small second-grid capacitor leaves grid 2 following the tap at low
+    frequencies instead of at AC ground (common practice; see
+    tests/smallsignal/test_pairs.py): with 1 nF against the 1M leak the
+    corner is 160 Hz, and at the 1 kHz reference the balance has moved off
+    antiphase and the second plate's gain has fallen.  The phase change is
+    reported in degrees, wrapped across ±180°."""
+    text = _demo("splitter_long_tail")
+    a, b = analyse(text), analyse(text.replace("bypass 100n rated", "bypass 1n rated"))
+    r = diff(a, b)
+    phase = [c for c in r.effects if c.quantity == "balance phase"]
+    assert {c.kind for c in phase} == {"gain", "overall"}
+    for c in phase:
+        assert c.unit == "deg"
+        off_old, off_new = 180.0 - abs(c.old), 180.0 - abs(c.new)
+        assert off_new > off_old
+        # the step across ±180°, as the angle of e^{j(new − old)}
+        assert c.delta == pytest.approx(math.degrees(cmath.phase(cmath.exp(1j * math.radians(c.new - c.old)))),
+                                        abs=1e-6)
+        assert abs(c.delta) < 5.0
+        assert c.size == pytest.approx(math.radians(abs(c.delta)) * 20 / math.log(10), rel=1e-9)
+    second = [c for c in r.effects if (c.subject, c.quantity) == ("PI", "gain to plate2")]
+    assert len(second) == 1 and second[0].delta < 0
+    assert "balance phase" in render_diff(r) and "°" in render_diff(r)
+    rows = {(row.subject, row.quantity): row for row in compare([a, b]).rows}
+    assert rows["PI", "balance phase"].differs and rows["PI", "balance phase"].unit == "deg"
+
+
+def test_phase_tolerance_matches_the_db_tolerance():
+    """A phase step of θ rad is as large as a level step of θ nepers
+    (ln r = ln|r| + j·arg r): 0.05 dB ↔ 0.33°."""
+    from chain.changes.common import _deg_change, tol_deg
+
+    assert tol_deg(0.05) == pytest.approx(math.degrees(0.05 / 20 * math.log(10)), rel=1e-12)
+    assert _deg_change("gain", "PI", "balance phase", 179.9, -179.9, 0.05) is None  # 0.2° across ±180°
+    c = _deg_change("gain", "PI", "balance phase", 179.0, -179.0, 0.05)
+    assert c is not None and c.delta == pytest.approx(2.0)

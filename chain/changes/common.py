@@ -51,7 +51,8 @@ class Change:
         Which figure of the subject (``"gain"``, ``"Ip"``, ``"value"``, …).
     unit : str
         Unit of ``old``, ``new`` and ``delta``: SI symbol (``"V"``, ``"A"``,
-        ``"S"``, ``"ohm"``, ``"F"``, ``"H"``, ``"Hz"``), ``"dB"`` or ``""``.
+        ``"S"``, ``"ohm"``, ``"F"``, ``"H"``, ``"Hz"``), ``"dB"``, ``"deg"``
+        (a phase) or ``""``.
     old, new : float, str or None
         The values on each side (``None``: absent on that side).
     delta : float or None
@@ -189,6 +190,28 @@ def _db_change(kind, subject, quantity, old, new, tol_db) -> Change | None:
     if abs(d) <= tol_db:
         return None
     return Change(kind, subject, quantity, "dB", old, new, num(d), num(d), "dB", num(abs(d)))
+
+
+def tol_deg(tol_db: float) -> float:
+    """The phase tolerance that matches ``tol_db``: the log of a complex ratio
+    is ``ln|r| + j·arg r``, so a phase step of θ rad is as large as a level
+    step of θ nepers (``20/ln 10`` dB)."""
+    return math.degrees(tol_db * math.log(10.0) / 20.0)
+
+
+def _deg_change(kind, subject, quantity, old, new, tol_db) -> Change | None:
+    """A change of a phase in degrees (the step wrapped to (−180°, 180°]);
+    reported beyond :func:`tol_deg`, sized as the dB step of the same size."""
+    if old is None and new is None:
+        return None
+    if old is None or new is None:
+        return Change(kind, subject, quantity, "deg", old, new, size=APPEAR_SIZE,
+                      note="appeared" if old is None else "vanished")
+    d = -((old - new + 180.0) % 360.0 - 180.0)
+    if abs(d) <= tol_deg(tol_db):
+        return None
+    return Change(kind, subject, quantity, "deg", old, new, num(d), size=num(abs(math.radians(d)) * 20.0
+                                                                             / math.log(10.0)))
 
 
 def _corner_change(quantity, old, new, edge_old, edge_new, tol_pct) -> Change | None:

@@ -29,6 +29,8 @@ def _value(v, unit: str, absent: str = "none") -> str:
         return v
     if unit == "dB":
         return _f.db(v)
+    if unit == "deg":
+        return _f.deg(v)
     if unit == "":
         return _f.plain(v)
     if unit == "V":

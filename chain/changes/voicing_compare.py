@@ -13,6 +13,7 @@ from chain.changes.common import (
     _side,
     _stage_index,
     document,
+    tol_deg,
 )
 from chain.changes.studies import study_figures
 from chain.report.headroom import first_clip
@@ -29,6 +30,9 @@ def _spread_differs(values: Sequence[float | None], unit: str, tol_db: float, to
         return True
     if unit == "dB":
         return max(present) - min(present) > tol_db
+    if unit == "deg":  # phases: the steps from the first, wrapped to (−180°, 180°]
+        steps = [-((present[0] - v + 180.0) % 360.0 - 180.0) for v in present]
+        return max(steps) - min(steps) > tol_deg(tol_db)
     lo, hi = min(present), max(present)
     if lo == hi:
         return False
@@ -48,6 +52,17 @@ def _labels(docs, labels) -> tuple[str, ...]:
     return tuple(d["netlist"]["path"] for d in docs)
 
 
+def _ordered(items) -> list[str]:
+    return list(dict.fromkeys(items))
+
+
+def _balance_rows(add, subject: str, balances: list) -> None:
+    """Balance rows (dB and phase) when any voicing has a balance there."""
+    if any(b is not None for b in balances):
+        add(subject, "balance", "dB", [b and b["db"] for b in balances])
+        add(subject, "balance phase", "deg", [b and b["phase_deg"] for b in balances])
+
+
 def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: float = 0.05,
             tol_pct: float = 0.5) -> CompareResult:
     """Tabulate the key numbers of several voicings side by side.
@@ -56,9 +71,13 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
     impedance magnitude (ohm), the first-clip input level (V, when headroom
     was analysed), then per stage (matched by name, in order of first
     appearance) its loaded gain (dB) and plate current (A); per coupling its
-    transfer at the reference frequency (dB).  A row *differs*
-    when its spread exceeds ``tol_db`` (dB rows) or ``tol_pct`` percent
-    (the others), or a value is missing on some voicings only.
+    transfer at the reference frequency (dB).  A chain with two outputs
+    adds the gain to each further output (dB) and the balance between the
+    first two (dB and phase in degrees); so does a stage with two output
+    ports (a phase inverter).  A row *differs* when its spread exceeds
+    ``tol_db`` (dB rows), the phase of the same size (degree rows, see
+    :func:`chain.changes.common.tol_deg`) or ``tol_pct`` percent (the
+    others), or a value is missing on some voicings only.
 
     Parameters
     ----------
@@ -88,6 +107,10 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
         if any(mains):
             add("overall", f"{name} frequency", "Hz", [m and m["f_hz"] for m in mains])
             add("overall", f"{name} level", "dB", [m and m["gain_db"] for m in mains])
+    for label in _ordered(x["label"] for o in ov for x in (o.get("outputs") or [])[1:]):
+        gains = [{x["label"]: x["gain_db"] for x in (o.get("outputs") or [])[1:]}.get(label) for o in ov]
+        add("overall", f"gain to output {label}", "dB", gains)
+    _balance_rows(add, "overall", [o.get("balance") for o in ov])
     add("overall", "Zin", "ohm", [num(_f.mag(o["zin_ohm"])) for o in ov])
     add("overall", "Zout", "ohm", [num(_f.mag(o["zout_ohm"])) for o in ov])
     clips = [first_clip(d.get("headroom")) for d in docs]
@@ -101,6 +124,12 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
     index = [_stage_index(d) for d in docs]
     for s in stage_names:
         add(s, "gain", "dB", [ix[s]["gain_db"] if s in ix else None for ix in index])
+        rows_s = [ix.get(s) for ix in index]
+        for port in _ordered(p["port"] for r in rows_s if r for p in (r.get("outputs") or [])[1:]):
+            add(s, f"gain to {port}", "dB",
+                [{p["port"]: p["gain_db"] for p in (r.get("outputs") or [])}.get(port) if r else None
+                 for r in rows_s])
+        _balance_rows(add, s, [r.get("balance") if r else None for r in rows_s])
         add(s, "Ip", "A", [ix[s]["ip_a"] if s in ix else None for ix in index])
     coupling_names: list[str] = []
     for d in docs:

@@ -17,6 +17,7 @@ from chain.changes.common import (
     DiffResult,
     _corner_change,
     _db_change,
+    _deg_change,
     _main,
     _match_stages,
     _pct,
@@ -160,10 +161,42 @@ def _stage_effects(a: dict[str, Any], b: dict[str, Any], mapping: dict[str, str]
             c = Change("coupling", name, "coupling loss", "dB", a["coupling_db"], b["coupling_db"],
                        size=APPEAR_SIZE, note=note) if c is None else _with_note(c, note)
         out.append(c)
+    out += _port_effects(name, a, b, tol_db)
     out.append(_ratio_change("impedance", name, "Zin", "ohm", _f.mag(a["zin_ohm"]), _f.mag(b["zin_ohm"]), tol_pct))
     out.append(_ratio_change("impedance", name, "Zout", "ohm", _f.mag(a["zout_ohm"]), _f.mag(b["zout_ohm"]),
                              tol_pct))
     return [c for c in out if c is not None]
+
+
+def _balance_effects(kind: str, subject: str, ba, bb, tol_db) -> list[Change | None]:
+    """The balance between two outputs: its size (dB) and its phase (degrees)."""
+    return [_db_change(kind, subject, "balance", ba and ba["db"], bb and bb["db"], tol_db),
+            _deg_change(kind, subject, "balance phase", ba and ba["phase_deg"], bb and bb["phase_deg"], tol_db)]
+
+
+def _port_effects(name: str, a: dict[str, Any], b: dict[str, Any], tol_db) -> list[Change | None]:
+    """A stage's output ports beyond the main one (whose gain is the stage's
+    gain), matched by port name, and the balance between the first two."""
+    ports_a = {p["port"]: p for p in (a.get("outputs") or [])[1:]}
+    ports_b = {p["port"]: p for p in (b.get("outputs") or [])[1:]}
+    out: list[Change | None] = []
+    for port in [*ports_a, *(p for p in ports_b if p not in ports_a)]:
+        pa, pb = ports_a.get(port), ports_b.get(port)
+        out.append(_db_change("gain", name, f"gain to {port}", pa and pa["gain_db"], pb and pb["gain_db"], tol_db))
+    return out + _balance_effects("gain", name, a.get("balance"), b.get("balance"), tol_db)
+
+
+def _chain_output_effects(oa, ob, tol_db) -> list[Change | None]:
+    """The chain's outputs beyond the main one (whose gain is the overall
+    gain), matched by label, and the balance between the first two."""
+    outs_a = {x["label"]: x for x in (oa.get("outputs") or [])[1:]}
+    outs_b = {x["label"]: x for x in (ob.get("outputs") or [])[1:]}
+    out: list[Change | None] = []
+    for label in [*outs_a, *(x for x in outs_b if x not in outs_a)]:
+        xa, xb = outs_a.get(label), outs_b.get(label)
+        out.append(_db_change("overall", "overall", f"gain to output {label}", xa and xa["gain_db"],
+                              xb and xb["gain_db"], tol_db))
+    return out + _balance_effects("overall", "overall", oa.get("balance"), ob.get("balance"), tol_db)
 
 
 def _overall_effects(da, db, tol_db, tol_pct) -> list[Change]:
@@ -171,6 +204,7 @@ def _overall_effects(da, db, tol_db, tol_pct) -> list[Change]:
     sa, sb = da["settings"], db["settings"]
     out = [
         _db_change("overall", "overall", "gain", oa["gain_db"], ob["gain_db"], tol_db),
+        *_chain_output_effects(oa, ob, tol_db),
         _corner_change("low band edge", oa["f_low_hz"], ob["f_low_hz"], sa["band_low_hz"], sb["band_low_hz"],
                        tol_pct),
         _corner_change("high band edge", oa["f_high_hz"], ob["f_high_hz"], sa["band_high_hz"], sb["band_high_hz"],

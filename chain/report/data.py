@@ -212,6 +212,8 @@ def _overall(analysis) -> dict[str, Any]:
         "zin_ohm": cx(o.zin_ohm), "zout_ohm": cx(o.zout_ohm),
         "outputs": [{"label": x.label, "node": x.node, "gain": cx(x.gain), "gain_db": num(x.gain_db),
                      "phase_deg": _deg(x.gain), "zout_ohm": cx(x.zout_ohm)} for x in o.outputs],
+        "balance": None if o.balance is None else {
+            "ratio": cx(o.balance), "db": num(o.balance_db), "phase_deg": _deg(o.balance)},
     }
 
 

@@ -159,6 +159,11 @@ class MarkdownRenderer(Renderer):
         for x in (o.get("outputs") or [])[1:]:
             rows += [[f"gain to output `{x['label']}`", fmt.gain(x["gain"], x["gain_db"])],
                      [f"output impedance at `{x['label']}`", fmt.polar(x["zout_ohm"], "Ω")]]
+        b = o.get("balance")
+        if b is not None:
+            first, second = o["outputs"][0]["label"], o["outputs"][1]["label"]
+            rows.append([f"balance, `{second}` against `{first}`",
+                         f"{fmt.db(b['db'])}, phase {fmt.deg(b['phase_deg'])} (ideal 0 dB and 180°)"])
         return [f"## Overall: source EMF to the output (node `{o['output_node']}`)", ""] + _table(
             ["quantity", "value"], rows)
 

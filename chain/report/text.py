@@ -271,6 +271,11 @@ class TextRenderer(Renderer):
                 _kv(f"gain to output {x['label']}", fmt.gain(x["gain"], x["gain_db"])),
                 _kv(f"output impedance at {x['label']}", fmt.polar(x["zout_ohm"], "Ω")),
             ]
+        b = o.get("balance")
+        if b is not None:
+            first, second = o["outputs"][0]["label"], o["outputs"][1]["label"]
+            lines.append(_kv(f"balance, {second} against {first}",
+                             f"{fmt.db(b['db'])}, phase {fmt.deg(b['phase_deg'])} (ideal 0 dB and 180°)"))
         return lines
 
     def response(self, data: dict[str, Any]) -> list[str]:

@@ -141,10 +141,18 @@ class OverallResult:
     shape: ResponseShape | None = None
     #: every output of the chain, the main one (``gain``, ``zout_ohm``) first
     outputs: tuple[ChainOutput, ...] = ()
+    #: a chain with two or more outputs: the second output's gain over the first's
+    #: (for a phase inverter ideally −1: 0 dB and 180°), else None
+    balance: complex | None = None
 
     @property
     def phase_deg(self) -> float:
         return math.degrees(np.angle(self.gain))
+
+    @property
+    def balance_db(self) -> float | None:
+        """``|balance|`` in dB (0 dB: the outputs are equal in size)."""
+        return None if self.balance is None else db(self.balance)
 
 
 @dataclass(frozen=True, slots=True)
@@ -253,6 +261,8 @@ def overall(resp: Response, f_ref_hz: float, *, at: Response | None = None) -> O
     and a resonant peak (a pickup's) is inside the band, not its reference.
     ``None`` when outside the analysed band or when ``f_ref_hz`` is outside it.
     ``at`` is :func:`reference_response` when the caller has it already.
+    With two or more chain outputs, ``balance`` is the second one's gain over
+    the first's.
     """
     if at is None:
         at = reference_response(resp, f_ref_hz)
@@ -271,9 +281,13 @@ def overall(resp: Response, f_ref_hz: float, *, at: Response | None = None) -> O
     for label, node in resp.ss.circuit.outputs.items():
         g = complex(at.h[node][0])
         outputs.append(ChainOutput(label, node, g, db(g), complex(at.output_zout_ohm[label][0])))
+    balance = None
+    if len(outputs) >= 2:
+        balance = outputs[1].gain / outputs[0].gain if outputs[0].gain != 0 else complex("nan")
     return OverallResult(
         f_ref_hz=float(f_ref_hz), gain=gain, gain_db=db(gain), f_low_hz=low, f_high_hz=high,
         zin_ohm=complex(at.zin_ohm[0]), zout_ohm=complex(at.zout_ohm[0]), shape=shape, outputs=tuple(outputs),
+        balance=balance,
     )
 
 
