@@ -1,4 +1,5 @@
-"""Design → Circuit: the one place that knows how stages expand into parts.
+"""Design → Circuit: the one place that expands a design into parts (each
+stage by the module of its kind, :mod:`chain.kinds`).
 
 :func:`build` turns a validated :class:`~chain.language.design.Design` into a
 flat :class:`~chain.circuit.Circuit` and checks its topology (:mod:`chain.graph`)
@@ -34,6 +35,7 @@ from chain.circuit import (
 )
 from chain.errors import Diagnostic, LanguageError, Span, error
 from chain.graph import Digraph, components
+from chain.kinds import expander
 from chain.language.design import Design, Pot, Stage
 from chain.tubes import FORM_FIELDS, FORMS, Ratings, TriodeModel, lookup
 
@@ -182,138 +184,22 @@ class _Expander:
 
     # -- stages -----------------------------------------------------------------
     def stage(self, s: Stage) -> StageRecord:
-        if s.kind == "cathodyne":
-            return self.cathodyne(s)
-        if s.kind == "long-tailed-pair":
-            return self.long_tailed_pair(s)
-        n = s.name
-        sp = s.spans
-        own = Owner("stage", n)
-        plate = f"{n}.plate" if s.plate_load_ohm is not None else s.rail
-        if s.plate_load_ohm is not None:
-            self.add(Resistor(f"{n}.RL", s.rail, plate, s.plate_load_ohm, own, Role.PLATE_LOAD), sp.get("plate", s.span))
-        cathode = GROUND
-        if s.cathode is not None:
-            cathode = f"{n}.cathode"
-            cs = sp.get("cathode", s.span)
-            self.add(Resistor(f"{n}.Rk", cathode, GROUND, s.cathode.r_ohm, own, Role.CATHODE_RESISTOR), cs)
-            if s.cathode.bypass_f is not None:
-                top = cathode
-                if s.cathode.bypass_series_ohm is not None:
-                    top = f"{n}.kb"
-                    self.add(Resistor(f"{n}.Rkc", cathode, top, s.cathode.bypass_series_ohm, own,
-                                           Role.BYPASS_SERIES), cs)
-                self.add(Capacitor(f"{n}.Ck", top, GROUND, s.cathode.bypass_f, s.cathode.bypass_rated_v,
-                                         own, Role.BYPASS), cs)
-        if s.grid_ground:
-            grid = inp = GROUND
-        else:
-            inp = f"{n}.in"
-            grid = f"{n}.grid" if s.grid_stopper_ohm is not None else inp
-            if s.grid_stopper_ohm is not None:
-                self.add(Resistor(f"{n}.Rs", inp, grid, s.grid_stopper_ohm, own, Role.GRID_STOPPER), sp.get("grid_stopper", s.span))
-            if s.grid_leak_ohm is not None:
-                self.add(Resistor(f"{n}.Rg", inp, GROUND, s.grid_leak_ohm, own, Role.GRID_LEAK), sp.get("grid_leak", s.span))
-        heater = s.heater_v if s.heater_v is not None else self.d.settings.heater_v
-        try:
-            model = tube_model(self.d, s.tube)
-        except KeyError:
-            self.err("E206", f"unknown tube type '{s.tube}'", s.span)
-            model = lookup("12AX7")
-        self.add(Triode(n, plate, grid, cathode, model, heater, own), s.span)
-        self.terminals[n] = {"plate": plate, "grid": grid, "cathode": cathode, "in": inp}
-        signal_in = cathode if s.kind == "common-grid" else inp
-        signal_out = cathode if s.kind == "cathode-follower" else plate
-        return StageRecord(n, s.kind, model.name, (n,), {"in": signal_in}, {"out": signal_out}, s.rail)
+        """Expand stage ``s`` by the module of its kind (:mod:`chain.kinds`)."""
+        done = expander(s.kind)(self, s)
+        self.terminals[s.name] = dict(done.terminals)
+        return done.record
 
-    def _model(self, s: Stage) -> TriodeModel:
+    def model(self, s: Stage) -> TriodeModel:
+        """The triode model of stage ``s``; an unknown type is a located error (E206)."""
         try:
             return tube_model(self.d, s.tube)
         except KeyError:
             self.err("E206", f"unknown tube type '{s.tube}'", s.span)
             return lookup("12AX7")
 
-    def _tail(self, s: Stage, cathode: str, *, alone: Role) -> str:
-        """The cathode resistors of a two-triode stage; returns where the grid leaks return.
-
-        ``cathode R tail R2``: R from the cathode to the tap (``<stage>.tap``),
-        R2 from the tap to ground, the grid leaks to the tap (the bootstrapped
-        arrangement).  ``cathode R`` alone: R to ground with role ``alone``
-        and the grid leaks to ground.
-        """
-        n, own = s.name, Owner("stage", s.name)
-        cs = s.spans.get("cathode", s.span)
-        k = s.cathode
-        assert k is not None  # validation gives a two-triode stage its cathode line
-        if k.tail_ohm is None:
-            self.add(Resistor(f"{n}.{'Rt' if alone == Role.TAIL_RESISTOR else 'Rk'}", cathode, GROUND, k.r_ohm,
-                              own, alone), cs)
-            return GROUND
-        tap = f"{n}.tap"
-        self.add(Resistor(f"{n}.Rk", cathode, tap, k.r_ohm, own, Role.CATHODE_RESISTOR), cs)
-        self.add(Resistor(f"{n}.Rt", tap, GROUND, k.tail_ohm, own, Role.TAIL_RESISTOR), cs)
-        return tap
-
-    def _grid(self, n: str, leak: float | None, stopper: float | None, ret: str, *, suffix: str,
-              spans: tuple[Span, Span]) -> tuple[str, str]:
-        """A grid leak from the input port to ``ret`` and a stopper into the grid: (input, grid)."""
-        own = Owner("stage", n)
-        inp = f"{n}.in{suffix}"
-        grid = f"{n}.grid{suffix}" if stopper is not None else inp
-        if stopper is not None:
-            self.add(Resistor(f"{n}.Rs{suffix}", inp, grid, stopper, own, Role.GRID_STOPPER), spans[1])
-        if leak is not None:
-            self.add(Resistor(f"{n}.Rg{suffix}", inp, ret, leak, own, Role.GRID_LEAK), spans[0])
-        return inp, grid
-
-    def cathodyne(self, s: Stage) -> StageRecord:
-        """Split-load phase inverter: plate load from the rail, the cathode load
-        (``cathode R`` or ``cathode R tail R2``) to ground; outputs ``plate``
-        and ``cathode``, input ``in`` (top of the grid leak)."""
-        n, sp, own = s.name, s.spans, Owner("stage", s.name)
-        plate, cathode = f"{n}.plate", f"{n}.cathode"
-        assert s.plate_load_ohm is not None  # validation gives a cathodyne its plate load
-        self.add(Resistor(f"{n}.RL", s.rail, plate, s.plate_load_ohm, own, Role.PLATE_LOAD), sp.get("plate", s.span))
-        ret = self._tail(s, cathode, alone=Role.CATHODE_RESISTOR)
-        inp, grid = self._grid(n, s.grid_leak_ohm, s.grid_stopper_ohm, ret, suffix="",
-                               spans=(sp.get("grid_leak", s.span), sp.get("grid_stopper", s.span)))
-        model = self._model(s)
-        heater = s.heater_v if s.heater_v is not None else self.d.settings.heater_v
-        self.add(Triode(n, plate, grid, cathode, model, heater, own), s.span)
-        self.terminals[n] = {"plate": plate, "grid": grid, "cathode": cathode, "in": inp,
-                             "tap": ret if ret != GROUND else cathode}
-        return StageRecord(n, s.kind, model.name, (n,), {"in": inp}, {"plate": plate, "cathode": cathode}, s.rail)
-
-    def long_tailed_pair(self, s: Stage) -> StageRecord:
-        """Two triodes ``<stage>a`` and ``<stage>b`` with joined cathodes over a
-        shared tail; outputs ``plate1`` and ``plate2``, inputs ``in`` and
-        ``in2`` (tops of the grid leaks); the second grid may be AC-grounded
-        by a capacitor (``second grid … bypass C``)."""
-        n, sp, own = s.name, s.spans, Owner("stage", s.name)
-        sec = s.second
-        # validation gives a pair both plate loads and its second section
-        assert sec is not None and s.plate_load_ohm is not None and sec.plate_load_ohm is not None
-        plate1, plate2, cathode = f"{n}.plate1", f"{n}.plate2", f"{n}.cathode"
-        self.add(Resistor(f"{n}.RL", s.rail, plate1, s.plate_load_ohm, own, Role.PLATE_LOAD), sp.get("plate", s.span))
-        self.add(Resistor(f"{n}.RL2", sec.rail, plate2, sec.plate_load_ohm, own, Role.PLATE_LOAD),
-                 sp.get("second_plate", s.span))
-        ret = self._tail(s, cathode, alone=Role.TAIL_RESISTOR)
-        in1, grid1 = self._grid(n, s.grid_leak_ohm, s.grid_stopper_ohm, ret, suffix="",
-                                spans=(sp.get("grid_leak", s.span), sp.get("grid_stopper", s.span)))
-        in2, grid2 = self._grid(n, sec.grid_leak_ohm, sec.grid_stopper_ohm, ret, suffix="2",
-                                spans=(sp.get("second_grid_leak", s.span), sp.get("second_grid_stopper", s.span)))
-        if sec.grid_bypass_f is not None:
-            self.add(Capacitor(f"{n}.Cg2", in2, GROUND, sec.grid_bypass_f, sec.grid_bypass_rated_v, own,
-                               Role.GRID_BYPASS), sp.get("second_grid_bypass", s.span))
-        model = self._model(s)
-        heater = s.heater_v if s.heater_v is not None else self.d.settings.heater_v
-        a, b = f"{n}a", f"{n}b"
-        self.add(Triode(a, plate1, grid1, cathode, model, heater, own), s.span)
-        self.add(Triode(b, plate2, grid2, cathode, model, heater, own), s.span)
-        self.terminals[n] = {"plate1": plate1, "plate2": plate2, "grid1": grid1, "grid2": grid2,
-                             "cathode": cathode, "tap": ret if ret != GROUND else cathode, "in": in1, "in2": in2}
-        return StageRecord(n, s.kind, model.name, (a, b), {"in": in1, "in2": in2},
-                           {"plate1": plate1, "plate2": plate2}, s.rail)
+    def heater(self, s: Stage) -> float:
+        """Stage ``s``'s heater potential, V: its own, else the design's setting."""
+        return s.heater_v if s.heater_v is not None else self.d.settings.heater_v
 
     # -- networks ---------------------------------------------------------------
     def resolve(self, name: str, instance: str | None, ports: dict[str, str], span: Span) -> str:

@@ -173,3 +173,11 @@ output pad.out load 1M
 """
     c = load_text(text)[1]
     assert c.output_node == "V2.in"
+
+
+def test_every_stage_kind_of_the_language_has_one_expansion_module():
+    # chain.kinds finds a module per kind by looking in its package; the language's list is the contract
+    from chain.kinds import kinds
+    from chain.language.design import STAGE_KINDS
+
+    assert sorted(kinds()) == sorted(STAGE_KINDS)

@@ -14,7 +14,7 @@ RANKS = {
     "about": 0, "errors": 0, "units": 0, "fileio": 0, "decibels": 0, "graph": 0, "rootfind": 0,
     "tubes": 1,
     "language": 2,
-    "circuit": 3,
+    "circuit": 3, "kinds": 3.5,
     "build": 4,
     "dc": 5,
     "smallsignal": 6,
