@@ -6,8 +6,8 @@ Circuits: N common-cathode 12AX7 stages (bypassed and unbypassed cathodes
 alternating), each plate on its own decoupled rail from a stiff supply, a
 three-knob tone network before the output.  No impedance is shared between
 stages, so there is no feedback path: every cascade is stable, and the
-script checks it (every natural frequency of the linearised circuit in the
-left half-plane) and says so per row.
+script checks it (no natural frequency of the linearised circuit in the
+right half-plane, counted by the argument principle) and says so per row.
 
 Timed, best of REPEATS, on the same circuit objects (parsing and building
 excluded):

@@ -43,7 +43,7 @@ import numpy as np
 
 from chain.circuit import Circuit, StageRecord
 from chain.dc import DcSolution, SolveOptions
-from chain.errors import DcConvergenceError
+from chain.errors import DcConvergenceError, error
 from chain.headroom.curves import DEFAULT_CUTOFF_FRACTION, TransferCurves, build_network, sweep
 from chain.headroom.distortion import Distortion, distortion_in, level_for_thd, thd_versus_level
 from chain.headroom.network import MidBandNetwork
@@ -679,7 +679,21 @@ def headroom(circuit: Circuit, dc: DcSolution, *, level_v: float, f_ref_hz: floa
     if not (0.0 < cutoff_fraction < 1.0):
         raise ValueError(f"cutoff_fraction must lie in (0, 1), got {cutoff_fraction!r}")
     t0 = time.perf_counter()
-    net = build_network(circuit, dc, f_ref_hz=f_ref_hz, held_caps=held_caps, options=options)
+    try:
+        net = build_network(circuit, dc, f_ref_hz=f_ref_hz, held_caps=held_caps, options=options)
+    except DcConvergenceError as exc:
+        # the operating point itself was found; what failed is the same state in
+        # the held network, where the stages are DC-coupled through their
+        # coupling capacitors and the chain's whole gain multiplies rounding
+        raise DcConvergenceError(
+            (error("E404", "headroom: the quasi-static mid-band network (coupling capacitors held at their "
+                           "DC voltage, so the stages are DC-coupled) could not be solved at zero input, "
+                           "although the operating point was; a chain whose gain exceeds about 10^14 "
+                           "(some ten high-gain stages) multiplies rounding beyond what double precision "
+                           "resolves there",
+                   hint="analyse without headroom (--no-headroom), or the headroom of a shorter part "
+                        "of the chain"),) + exc.diagnostics,
+            exc.iterations, exc.residual_a, exc.last_guess) from None
     curves = sweep(net, points_per_decade=points_per_decade, max_input_v=max_input_v, overdrive=overdrive,
                    cutoff_fraction=cutoff_fraction)
     thd_levels = tuple(float(t) for t in thd_levels)

@@ -34,3 +34,19 @@ def test_eight_stage_headroom_solves_and_its_first_stage_clips_as_in_a_short_cha
     short = _first_stage_clip_v(2)
     long_ = _first_stage_clip_v(8)
     assert abs(long_ / short - 1.0) < 1e-3
+
+
+def test_a_chain_beyond_double_precision_says_so():
+    """Sixteen stages: the held mid-band network's gain is about 10²⁸, far past
+    the 2⁵³ that double precision resolves (IEEE 754), so its zero-input state
+    cannot be solved; the error must say that the headroom network failed,
+    not the operating point (which the same circuit's DC solve found)."""
+    import pytest
+
+    from chain.errors import DcConvergenceError
+
+    circuit = build(parse_text(_cascade(16), "cascade16.chain"))
+    dc = solve(circuit)
+    with pytest.raises(DcConvergenceError) as info:
+        headroom(circuit, dc, level_v=0.1)
+    assert info.value.diagnostics[0].code == "E404"
