@@ -80,6 +80,9 @@ def first_clip_section(r) -> dict[str, Any] | None:
                                                                for lab, d in devs]}
                   for i, first, devs in fc.draws],
         "influence": [{"group": g, "rho": num(rho)} for g, rho in fc.influence],
+        "what_if_first": (r.what_if_first or None) if r.what_if_clip is not None else None,
+        "what_if": None if r.what_if_clip is None else
+        [{"stage": k, "level_v": num(v), "mechanism": m} for k, (v, m) in r.what_if_clip.items()],
         "stages": [{"stage": c.stage, "nominal_v": num(c.nominal), "nominal_mechanism": c.nominal_mechanism,
                     "p5_v": num(c.p5), "median_v": num(c.median), "p95_v": num(c.p95),
                     "clips_fraction": num(c.clips), "mechanisms": {k: num(v) for k, v in c.mechanisms.items()},
@@ -146,6 +149,13 @@ def _lvl(v) -> str:
     if v is None or (isinstance(v, float) and not math.isfinite(v)):
         return "never"
     return f"{fmt.si(v, 'V')} ({20 * math.log10(v / math.sqrt(2)):.1f} dBV)" if v > 0 else "at rest"
+
+
+def _lvl_short(v, mechanism: str) -> str:
+    """A source peak and its mechanism in few characters: ``53.75 mV cutoff``."""
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return "never"
+    return f"{fmt.si(v, 'V')} {_short(mechanism)}".rstrip() if v > 0 else "at rest"
 
 
 def _short(mechanism: str) -> str:
@@ -231,10 +241,22 @@ def render_spread(data: dict[str, Any], *, fmt_name: str = "text") -> str:
                 elif a is not None and b is not None:
                     change = f"{b - a:+.2f} dB"
                 rows.append([stage, label, _val(a, unit), _val(b, unit), change])
+        fc0 = data.get("first_clip") or {}
+        nominal_clip = {c["stage"]: c for c in fc0.get("stages", [])}
+        for c in fc0.get("what_if") or []:
+            a0 = nominal_clip.get(c["stage"], {})
+            a, b = a0.get("nominal_v"), c["level_v"]
+            change = f"{20 * math.log10(b / a):+.2f} dB" if a and b else ""
+            rows.append([c["stage"], "first clip", _lvl_short(a, a0.get("nominal_mechanism", "")),
+                         _lvl_short(b, c["mechanism"]), change])
         g = data["what_if"]["overall"]["overall_gain_db"]
         g0 = data["nominal"]["overall"]["overall_gain_db"]
         rows.append(["overall", "gain", _val(g0, "dB"), _val(g, "dB"), f"{g - g0:+.2f} dB"])
-        table(["stage", "figure", "nominal", "what if", "change"], rows, [7, 11, 11, 11, 10])
+        table(["stage", "figure", "nominal", "what if", "change"], rows, [7, 11, 15, 15, 10])
+        if fc0.get("what_if"):
+            lines.append("(first clip: the input level, source peak, at the stage's first clipping onset; "
+                         f"first stage to clip: {fc0.get('nominal_first') or 'none'} nominal, "
+                         f"{fc0.get('what_if_first') or 'none'} in the what-if build)")
 
     title(f"Stage spread at {ref}: 5 %, median, 95 % of the builds; worst-case corners")
     rows = []

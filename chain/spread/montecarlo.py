@@ -209,6 +209,9 @@ class SpreadResult:
     #: first clip per stage (signal order) and which stage clips first; empty/None when not computed
     clips: tuple[ClipSpread, ...] = ()
     first_clip: FirstClip | None = None
+    #: the what-if build's first clip per stage: (source peak V, inf when none; mechanism), and its first stage
+    what_if_clip: Mapping[str, tuple[float, str]] | None = None
+    what_if_first: str = ""
 
 
 def draw(groups: tuple[Varied, ...], samples: int, seed: int,
@@ -483,9 +486,16 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
     rhp0 = complex(first["rhp_hz"][0])
     clips: tuple[ClipSpread, ...] = ()
     first_clip = None
+    what_if_clip: dict[str, tuple[float, str]] | None = None
+    what_if_first = ""
     if clip:
-        nominal_clip = model.run(np.zeros((1, n_groups)), sweep=False, clip=True)["_clip"]
+        nominal_clip = model.run(np.array(extra), sweep=False, clip=True)["_clip"]  # nominal (and what-if) build
         clips, first_clip = _clip_statistics(model, groups, dev, res["_clip"], nominal_clip, ok)
+        if fixed_idx:
+            what_if_clip = {name: (float(nominal_clip.level_v[1, j]), _mechanism(int(nominal_clip.mechanism[1, j])))
+                            for j, name in enumerate(nominal_clip.stages)}
+            f1 = int(nominal_clip.first[1])
+            what_if_first = nominal_clip.stages[f1] if f1 >= 0 else ""
 
     stages = tuple(StageSpread(st.name, {f: pct(f"{st.name}.{f}") for f in STAGE_FIGURES}) for st in model.stages)
 
@@ -512,8 +522,14 @@ def spread(circuit: Circuit, dc: DcSolution, *, f_hz: np.ndarray, reference_hz: 
         resolved=int(res["resolved"]), what_if=_by_stage(what_if, model.stages) if what_if else None,
         nominal=_by_stage(nominal, model.stages), reference_hz=float(reference_hz), instability=instability,
         nominal_rhp_hz=None if np.isnan(rhp0.real) else rhp0, counted=int(ok.sum()),
-        clips=clips, first_clip=first_clip,
+        clips=clips, first_clip=first_clip, what_if_clip=what_if_clip, what_if_first=what_if_first,
     )
+
+
+def _mechanism(index: int) -> str:
+    from chain.spread.clip import MECHANISMS
+
+    return MECHANISMS[index] if index >= 0 else "none"
 
 
 def _clip_statistics(model: _Model, groups, dev: np.ndarray, batch, nominal, ok: np.ndarray):

@@ -96,3 +96,19 @@ def test_first_clip_statistics_in_the_spread():
         assert cs.nominal_mechanism == st.mechanism
         assert cs.p5 <= cs.median <= cs.p95
         assert sum(cs.mechanisms.values()) == pytest.approx(1.0)
+
+
+def test_what_if_first_clip_matches_headroom_of_that_build():
+    # the README's service-tech question: V2's tube 25 % weak, every other part nominal
+    design, circuit, _ = load("netlists/lead_four_stage.chain")
+    dc = solve(circuit)
+    r = spread(circuit, dc, f_hz=sweep_frequencies(design)[::50], reference_hz=1000.0, samples=20, seed=1,
+               corners=False, fixed={"V2": -0.25})
+    v2 = next(t.name for t in circuit.triodes if t.owner.name == "V2")
+    weak = _modified(circuit, {v2: 0.75})
+    ref = headroom(weak, solve(weak), level_v=design.settings.level_v, spectrum=False)
+    assert r.what_if_clip is not None and r.what_if_first == ref.first.stage
+    for st in ref.stages:
+        level, mechanism = r.what_if_clip[st.stage]
+        assert level == pytest.approx(st.clip_input_v, rel=1e-6)
+        assert mechanism == st.mechanism
