@@ -6,10 +6,13 @@ Reads :mod:`chain.transient.measure` results; computes nothing new.
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from typing import TYPE_CHECKING, Sequence
 
 from chain.units import format_si
 from chain.decibels import db
+
+if TYPE_CHECKING:  # pragma: no cover - typing only
+    from chain.transient.measure import ClipPoint
 
 __all__ = ["distortion_text", "clip_text", "burst_text", "sag_text", "render_text"]
 
@@ -33,7 +36,7 @@ def distortion_text(points) -> str:
     return "\n".join(out).rstrip() + "\n"
 
 
-def clip_text(rows: Sequence[tuple], quasi_static: tuple | None) -> str:
+def clip_text(rows: Sequence[ClipPoint], quasi_static: tuple | None) -> str:
     """First clip per frequency from the time domain, beside the quasi-static (mid-band) one."""
     out = ["First clip (lowest source level at which a stage conducts grid current or cuts off)", "-" * 76]
     if quasi_static is not None:
