@@ -93,7 +93,7 @@ class Analysis:
 
     def unstable_note(self) -> str:
         """One plain sentence for a plot of an unstable circuit ("" when stable)."""
-        if not self.unstable:
+        if not self.unstable or self.stability is None:
             return ""
         from chain.units import format_si
 

@@ -232,7 +232,7 @@ def _schema_message(err) -> str:
     if len(shown) > 40:
         shown = shown[:37] + "..."
     if err.validator == "type":
-        wanted = err.validator_value if isinstance(err.validator_value, list) else [err.validator_value]
+        wanted: list[str] = err.validator_value if isinstance(err.validator_value, list) else [err.validator_value]
         words = {"number": "a number", "integer": "a whole number", "string": "a text", "null": "null",
                  "object": "an object", "array": "an array", "boolean": "true or false"}
         return f"{shown} where {' or '.join(words.get(w, w) for w in wanted)} is expected"
@@ -249,7 +249,7 @@ def _grid_problems(data: dict[str, Any]) -> list[tuple[str, tuple, str]]:
     """E612: response arrays of another length than ``f_hz``; frequencies not increasing."""
     resp = data["response"]
     f = resp["f_hz"]
-    out = []
+    out: list[tuple[str, tuple, str]] = []
     if any(not b > a for a, b in zip(f, f[1:])) or (f and not f[0] > 0):
         out.append(("E612", ("response", "f_hz"), "the frequencies must be positive and increasing"))
     for key in ("magnitude_db", "phase_deg", "zin_ohm_mag", "zout_ohm_mag"):

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from chain.circuit import Circuit
+from chain.circuit import Circuit, Resistor
 from chain.language.design import Design
 from chain.report import fmt
 from chain.units import format_si
@@ -23,10 +23,12 @@ def check_summary(design: Design, circuit: Circuit) -> str:
         dec = f", decoupled by {format_si(r.decouple_f, 'F')}" if r.decouple_f else ""
         lines.append(f"  rail:     {r.name} from {r.feed} through {format_si(r.drop_ohm, 'Ω')}{dec}")
     src = design.source
+    assert src is not None  # a built design has an input line (validation requires it)
     kind = {"ideal": "ideal source", "resistance": f"source of {format_si(src.r_ohm, 'Ω')}",
             "pickup": "pickup"}[src.kind]
     lines.append(f"  input:    {kind} into {src.into}")
-    loads = {p.a: p.ohms for p in circuit.parts(kind="output")}
+    loads = {p.a: p.ohms for p in circuit.parts(kind="output") if isinstance(p, Resistor)}
+    assert design.output is not None  # a built design has an output line (validation requires it)
     for label, node in circuit.outputs.items():
         load = loads.get(node, design.output.load_ohm)
         lines.append(f"  output:   node {node}, load {format_si(load, 'Ω')}")

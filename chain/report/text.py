@@ -15,7 +15,7 @@ Layout rules (so that ``git diff`` of two reports shows only what changed):
 
 from __future__ import annotations
 
-from typing import Any, Mapping
+from typing import AbstractSet, Any, Mapping
 
 import chain.report.fmt as fmt
 from chain.report.dynamics import unstable_banner
@@ -37,7 +37,7 @@ def _title(text: str) -> list[str]:
     return [text, "-" * len(text)]
 
 
-def _row(cells: list[str], widths: list[int], right: set[int] = frozenset()) -> str:
+def _row(cells: list[str], widths: list[int], right: AbstractSet[int] = frozenset()) -> str:
     out = []
     for i, (c, w) in enumerate(zip(cells, widths)):
         out.append(f"{c:>{w}}" if i in right else f"{c:<{w}}")

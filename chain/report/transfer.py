@@ -10,7 +10,7 @@ from chain.report import fmt
 __all__ = ["transfer_document", "transfer_text"]
 
 
-def _root(z: complex) -> dict[str, float]:
+def _root(z: complex) -> dict[str, float | None]:
     from chain.report.data import num
 
     return {"re_hz": num(z.real), "im_hz": num(z.imag)}
