@@ -137,8 +137,13 @@ def test_held_out_handbook_points_current_15_and_gm_20_percent(name, index):
     print(f"{name} {p.vpk_v:g} V/{p.vgk_v:g} V: Ip {ip / p.ip_a - 1:+.1%}, gm {gm / p.gm_s - 1:+.1%} ({p.source})")
     assert abs(ip / p.ip_a - 1.0) <= 0.15
     if name == "12AU7" and p.vpk_v == 250.0:
-        pytest.xfail("the two RC-30 12AU7 points (mu 17 at 250 V/-8.5 V, 19.5 at 100 V/0 V) cannot both be met "
-                     "by a form of Vpk/mu + Vgk; the fit meets the 100 V point and misses this gm by +23 %")
+        # No form in which Ip = f(Vgk + Vct + Vpk/mu) with f increasing can meet both remembered
+        # RC-30 points: gm/Ip = f'/f falls as the effective voltage rises for any power-law-like f,
+        # so the point with the smaller gm/Ip (250 V: 0.210/V against 0.263/V at 100 V) must carry
+        # the larger current, but it carries less (10.5 mA against 11.8 mA).  Either the recalled
+        # data are off or the tube departs from the form; a checked copy of the data would settle it.
+        pytest.xfail("the remembered 12AU7 typical points are inconsistent with any Ip = f(Vgk + Vpk/mu); "
+                     "the fit meets the 100 V point and misses this gm by +23 %")
     assert abs(gm / p.gm_s - 1.0) <= 0.20
 
 
