@@ -46,6 +46,7 @@ from typing import Mapping
 
 import numpy as np
 
+from chain.circuit import Capacitor, Inductor, Resistor
 from chain.smallsignal.mna import DirectSolver, Mna, Stamp, assemble
 from chain.smallsignal.model import SmallSignalCircuit
 from chain.decibels import db
@@ -196,7 +197,8 @@ def rankings(ss: SmallSignalCircuit, dc, *, ref_hz: float, f_low_hz: float | Non
     small-signal elements are not parts)."""
     mna = assemble(ss) if mna is None else mna
     circuit = ss.circuit
-    parts = {p.name for p in (*circuit.resistors, *circuit.capacitors, *circuit.inductors)}
+    passive: tuple[Resistor | Capacitor | Inductor, ...] = (*circuit.resistors, *circuit.capacitors, *circuit.inductors)
+    parts = {p.name for p in passive}
     k = mna.index.get(ss.node_of.get(ss.output_node, ss.output_node), -1)
     out: list[Ranking] = []
     if k >= 0:
