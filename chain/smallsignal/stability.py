@@ -53,10 +53,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Literal
 
 import numpy as np
 
-from chain.circuit import Circuit, Role
+from chain.circuit import Capacitor, Circuit, Inductor, Resistor, Role
 from chain.errors import Diagnostic, error, warning
 from chain.smallsignal.mna import DirectSolver, Mna, assemble
 from chain.smallsignal.model import SmallSignalCircuit
@@ -91,7 +92,7 @@ class FeedbackPath:
     (for a rail: the stages whose plates hang from it or from a rail fed by it).
     """
 
-    kind: str
+    kind: Literal["network", "rail"]
     name: str
     parts: tuple[str, ...]
     stages: tuple[str, ...]
@@ -164,7 +165,8 @@ def _stage_of_node(circuit: Circuit, node: str) -> str:
 def feedback_networks(circuit: Circuit) -> tuple[FeedbackPath, ...]:
     """Networks placed by naming stage terminals (not attached by a coupling), in netlist order."""
     nets: dict[str, list] = {}
-    for part in (*circuit.resistors, *circuit.capacitors, *circuit.inductors):
+    passive: tuple[Resistor | Capacitor | Inductor, ...] = (*circuit.resistors, *circuit.capacitors, *circuit.inductors)
+    for part in passive:
         if part.owner.kind != "network" or part.owner.name in circuit.couplings:
             continue
         nets.setdefault(part.owner.name, []).append(part)
@@ -194,7 +196,8 @@ def _rails(circuit: Circuit) -> tuple[FeedbackPath, ...]:
             reach.add(x)
             todo.extend(feeds.get(x, ()))
         stages = tuple(s.name for s in circuit.stages if s.rail in reach)
-        parts = tuple(p.name for p in (*circuit.resistors, *circuit.capacitors)
+        rc: tuple[Resistor | Capacitor, ...] = (*circuit.resistors, *circuit.capacitors)
+        parts = tuple(p.name for p in rc
                       if p.owner.kind in ("rail", "supply") and p.owner.name == rail)
         out.append(FeedbackPath("rail", rail, parts, stages))
     if len(out) > 1:  # loops through several rails at once
@@ -256,8 +259,7 @@ def describe_paths(paths: tuple[FeedbackPath, ...]) -> str:
     nets = [p.describe() for p in paths if p.kind == "network"]
     rails = [p for p in paths if p.kind == "rail"]
     if len(rails) == 1 and ", " in rails[0].name:
-        fed = ", ".join(rails[0].stages)
-        nets.append(f"the shared supply rails {rails[0].name} together (feeding {fed})")
+        nets.append(f"the shared supply rails {rails[0].name} together (feeding {', '.join(rails[0].stages)})")
         rails = []
     if rails:
         fed = tuple(dict.fromkeys(s for p in rails for s in p.stages))
@@ -283,7 +285,8 @@ def loop_gain(ss: SmallSignalCircuit, path: FeedbackPath, f_hz: np.ndarray, *,
         return None
     last = path.stages[0]
     names = set(path.parts)
-    ends = {n for p in (*circuit.resistors, *circuit.capacitors, *circuit.inductors) if p.name in names
+    passive: tuple[Resistor | Capacitor | Inductor, ...] = (*circuit.resistors, *circuit.capacitors, *circuit.inductors)
+    ends = {n for p in passive if p.name in names
             for n in (p.a, p.b)}
     exits = [n for n in sorted(ends) if _stage_of_node(circuit, n) == last]
     if len(exits) != 1:
