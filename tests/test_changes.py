@@ -230,6 +230,18 @@ def test_a_renamed_stage_is_reported_as_renamed_and_its_parts_follow(base):
     assert r.effects == ()
 
 
+def test_a_stage_fed_through_another_coupling_says_so_and_a_rename_does_not(base):
+    # the same 100 nF between V1 and V2, once as a capacitor coupling, once as a network:
+    # the couplings' recorded ends (from_stage, to_stage) tell them apart, not their names
+    via = netlist().replace("couple V1 -> V2 cap 100n rated 400V", "couple V1 -> V2 via link") + (
+        "network link: a -> b\n  capacitor c a -- b 100n rated 400V\n")
+    (c,) = by(diff(base, analyse(via)), "coupling", "V2", "coupling loss")
+    assert c.note == "fed through V1->V2 → link"
+    renamed = via.replace("stage V2", "stage V9").replace("V1 -> V2", "V1 -> V9").replace("V2 -> output",
+                                                                                         "V9 -> output")
+    assert not by(diff(analyse(via), analyse(renamed)), "coupling")
+
+
 def test_a_part_moved_to_another_node_is_reported_as_moved_and_only_it():
     """Parts are matched by name, nodes through the parts on both sides: a
     capacitor moved from V1's plate to V2's plate shows its nodes changed,

@@ -139,16 +139,31 @@ def _with_note(c: Change, note: str) -> Change:
     return replace(c, note=f"{c.note}; {note}" if c.note else note)
 
 
-def _coupling_label(label: str | None, mapping: dict[str, str]) -> str | None:
-    """A coupling label of A in B's stage names (``V1->V2`` → ``V1->V9`` for a renamed V2)."""
-    if label is None or "->" not in label:
-        return label
-    src, dst = label.split("->", 1)
-    return f"{mapping.get(src, src)}->{mapping.get(dst, dst)}"
+def _feeds(doc: dict[str, Any]) -> dict[str, tuple[str | None, str | None, bool]]:
+    """Coupling name → (stage at its near end, stage at its far end, whether it
+    is a network), from the report's couplings and parts (ends None in a
+    report written before they were recorded)."""
+    networks = {p["owner"]["name"] for p in doc["parts"] if p["owner"]["kind"] == "network"}
+    return {c["name"]: (c.get("from_stage"), c.get("to_stage"), c["name"] in networks)
+            for c in doc.get("couplings", ())}
 
 
-def _stage_effects(a: dict[str, Any], b: dict[str, Any], mapping: dict[str, str], tol_db,
-                   tol_pct) -> list[Change]:
+def _same_feed(la: str | None, lb: str | None, da: dict[str, Any], db: dict[str, Any],
+               mapping: Mapping[str, str]) -> bool:
+    """Whether a stage fed through coupling ``la`` in A is fed through the same
+    coupling, ``lb``, in B: the same network instance, or a capacitor or
+    direct link between the same stages (A's stage names mapped to B's)."""
+    if la is None or lb is None:
+        return la == lb
+    ea, eb = _feeds(da).get(la), _feeds(db).get(lb)
+    if ea is None or eb is None or ea[0] is None or eb[0] is None:
+        return la == lb  # an older report: by name alone
+    if ea[2] or eb[2]:
+        return la == lb and ea[2] == eb[2]
+    return (mapping.get(ea[0] or "", ea[0]), mapping.get(ea[1] or "", ea[1])) == (eb[0], eb[1])
+
+
+def _stage_effects(a: dict[str, Any], b: dict[str, Any], same_feed, tol_db, tol_pct) -> list[Change]:
     name = b["stage"]
     out = []
     for key, label, unit in _OP_FIELDS:
@@ -156,7 +171,7 @@ def _stage_effects(a: dict[str, Any], b: dict[str, Any], mapping: dict[str, str]
     out.append(_db_change("gain", name, "gain", a["gain_db"], b["gain_db"], tol_db))
     if a["coupling"] is not None or b["coupling"] is not None:
         c = _db_change("coupling", name, "coupling loss", a["coupling_db"], b["coupling_db"], tol_db)
-        if _coupling_label(a["coupling"], mapping) != b["coupling"]:
+        if not same_feed(a["coupling"], b["coupling"]):
             note = f"fed through {a['coupling'] or 'nothing'} → {b['coupling'] or 'nothing'}"
             c = Change("coupling", name, "coupling loss", "dB", a["coupling_db"], b["coupling_db"],
                        size=APPEAR_SIZE, note=note) if c is None else _with_note(c, note)
@@ -411,7 +426,8 @@ def diff(a, b, *, tol_db: float = 0.05, tol_pct: float = 0.5) -> DiffResult:
     rows_b = _stage_index(db)
     for r in da["stages"]:
         if r["stage"] in mapping:
-            effects += _stage_effects(r, rows_b[mapping[r["stage"]]], mapping, tol_db, tol_pct)
+            effects += _stage_effects(r, rows_b[mapping[r["stage"]]],
+                                      lambda la, lb: _same_feed(la, lb, da, db, mapping), tol_db, tol_pct)
     effects += _overall_effects(da, db, tol_db, tol_pct)
     effects += _output_coupling_effects(da, db, tol_db)
     effects += _rail_effects(da, db, tol_pct)

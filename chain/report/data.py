@@ -190,8 +190,11 @@ def _stages(analysis) -> list[dict[str, Any]]:
 
 
 def _couplings(analysis) -> list[dict[str, Any]]:
-    return [{"name": c.name, "from_node": c.from_node, "to_node": c.to_node, "ratio": cx(c.ratio),
-             "loss_db": num(c.loss_db), "phase_deg": _deg(c.ratio)} for c in analysis.couplings]
+    stage_of = analysis.circuit.stage_of_node
+    return [{"name": c.name, "from_node": c.from_node, "to_node": c.to_node,
+             "from_stage": stage_of(c.from_node) or None, "to_stage": stage_of(c.to_node) or None,
+             "ratio": cx(c.ratio), "loss_db": num(c.loss_db), "phase_deg": _deg(c.ratio)}
+            for c in analysis.couplings]
 
 
 def _response_arrays(analysis) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
