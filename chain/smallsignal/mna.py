@@ -12,7 +12,7 @@ branch row (branch equation ``v_a − v_b − s·L·i = 0``); the source row rea
 A. E. Ruehli, P. A. Brennan, "The modified nodal approach to network
 analysis", IEEE Trans. Circuits Syst. 22, 1975).
 
-Two interchangeable ways to solve it:
+Interchangeable ways to solve it:
 
 * :class:`ModalSolver` (default for many frequencies).  After row/column
   equilibration, with a real shift ``s0`` inside the band,
@@ -26,19 +26,28 @@ Two interchangeable ways to solve it:
   way) until its componentwise backward error is at rounding level; if it
   does not get there, the direct solve is used instead.
 * :class:`DirectSolver`: ``numpy.linalg.solve`` on the stack of ``Y(s)``.
+* :class:`BandSolver`: the unknowns put in reverse Cuthill–McKee order, then
+  Gaussian elimination with partial pivoting in band form, every frequency
+  at once, the factors kept.  A chain of stages reorders to a band a few
+  unknowns wide whatever its length, so the work per frequency grows
+  linearly with the stages, and a refinement step costs two band
+  triangular solves instead of a new factorisation.
 * :class:`SparseSolver`: a sparse LU factorisation of each ``Y(s)``
   (SuperLU with a fill-reducing column order, through scipy), used in place
-  of the dense stack from :data:`SPARSE_FROM` unknowns on.  A chain of
-  stages gives a nearly banded ``Y``: its factors, and so time and memory,
-  grow linearly with the number of stages, where the dense stack grows as
-  the square (memory) and the cube (time) of it.
+  of the dense stack from :data:`SPARSE_FROM` unknowns on when the band is
+  wide.
 
 Which one runs under ``method="auto"``: the dense solve for at most
 :data:`DIRECT_BELOW` frequencies; else the modal solve up to
-:data:`MODAL_UP_TO` unknowns (past some 16 stages it fails its accuracy
-check and its eigen-decomposition alone costs more than a sparse sweep);
-a fallback, and every larger circuit, uses the direct solve — dense below
-:data:`SPARSE_FROM` unknowns, sparse from there on.
+:data:`MODAL_UP_TO` unknowns (on long chains of equal stages it fails its
+accuracy check: their clustered poles have nearly dependent eigenvectors);
+a fallback, and every larger circuit, uses the direct solve — banded when
+the reordered band is narrow (:func:`direct_solver`), else dense below
+:data:`SPARSE_FROM` unknowns and sparse from there on.
+
+Refinement treats each frequency on its own: only the frequencies whose
+componentwise backward error is still above :data:`REFINE_TOL` are solved
+again, each while its error improves.
 """
 
 from __future__ import annotations
@@ -59,6 +68,7 @@ __all__ = [
     "ModalSolver",
     "DirectSolver",
     "SparseSolver",
+    "BandSolver",
     "direct_solver",
     "memory_estimate",
     "check_size",
@@ -347,10 +357,12 @@ class ModalSolver:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             self._d = 1.0 / (1.0 + (s - s0)[:, None] * lam[None, :])  # (nf, N)
 
-    def coords(self, b: np.ndarray) -> np.ndarray:
-        """Modal coordinates ``z`` (nf, N) of the solution: ``x = (V·z)·col_scale``."""
+    def coords(self, b: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+        """Modal coordinates ``z`` (nf, N) of the solution: ``x = (V·z)·col_scale``
+        (with ``rows``: at those frequencies only, as in :meth:`DirectSolver.solve`)."""
+        d = self._d if rows is None else self._d[rows]
         with np.errstate(invalid="ignore", over="ignore"):
-            return self._d * ((b * self._r) @ self._wt)
+            return d * ((b * self._r) @ self._wt)
 
     def full(self, z: np.ndarray) -> np.ndarray:
         """Every unknown (nf, N) from modal coordinates."""
@@ -361,9 +373,10 @@ class ModalSolver:
         """Vector ``v`` with ``x[:, i] = z @ v``."""
         return self._vt[:, i] * self._c[i]
 
-    def solve(self, b: np.ndarray) -> np.ndarray:
-        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS."""
-        return self.full(self.coords(b))
+    def solve(self, b: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS
+        (with ``rows``: at those frequencies only, as in :meth:`DirectSolver.solve`)."""
+        return self.full(self.coords(b, rows))
 
 
 #: the batched dense solve stacks at most this many bytes of matrices at a time
@@ -374,9 +387,13 @@ class DirectSolver:
     """``numpy.linalg.solve`` on each equilibrated ``Y(s)`` (batched LAPACK calls).
 
     Rows and columns are scaled by powers of two computed from
-    ``|G| + |s_mid|·|C|`` (``s_mid`` the geometric mean of the band).  The
-    stack of ``Y(s)`` is formed in blocks of frequencies of at most
-    :data:`STACK_BYTES`, so memory does not grow with the number of points.
+    ``|G| + |s_mid|·|C|`` (``s_mid`` the geometric mean of the band); each
+    frequency's rows are then scaled again by powers of two near
+    ``1 / (max|G_i·| + |s|·max|C_i·|)``, so that partial pivoting sees rows
+    of like size at that frequency (fewer frequencies then need a
+    refinement step).  The stack of ``Y(s)`` is formed in blocks of
+    frequencies of at most :data:`STACK_BYTES`, so memory does not grow
+    with the number of points.
     """
 
     name = "direct"
@@ -387,24 +404,46 @@ class DirectSolver:
         self._r, self._c = _equilibrate(np.abs(g) + s_mid * np.abs(c))
         self._gs = self._r[:, None] * g * self._c[None, :]
         self._cs = self._r[:, None] * c * self._c[None, :]
+        self._gmax = np.abs(self._gs).max(axis=1, initial=0.0)
+        self._cmax = np.abs(self._cs).max(axis=1, initial=0.0)
         self._s = s
         n = g.shape[0]
         self._block = max(1, STACK_BYTES // (16 * n * n)) if n else max(1, s.size)
 
-    def solve(self, b: np.ndarray) -> np.ndarray:
-        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS."""
-        nf, n = self._s.size, self._gs.shape[0]
+    def _stack(self, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(row scale (k, N), row-scaled Y(s) (k, N, N))`` for the frequencies ``s``."""
+        rs = self._gmax[None, :] + np.abs(s)[:, None] * self._cmax[None, :]
+        with np.errstate(divide="ignore"):
+            rs = np.exp2(-np.round(np.log2(np.where(rs > 0.0, rs, 1.0))))
+        n = self._gs.shape[0]
+        y = np.empty((s.size, n, n), dtype=complex)
+        # real and imaginary parts written in place: no complex temporaries
+        if np.any(s.real != 0.0):
+            np.multiply(rs[:, :, None], self._gs[None, :, :] + s.real[:, None, None] * self._cs[None, :, :],
+                        out=y.real)
+        else:
+            np.multiply(rs[:, :, None], self._gs[None, :, :], out=y.real)
+        np.multiply((rs * s.imag[:, None])[:, :, None], self._cs[None, :, :], out=y.imag)
+        return rs, y
+
+    def solve(self, b: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS;
+        with ``rows`` (indices into the frequencies) only at those: the RHS is
+        then (N,) or (len(rows), N), the result (len(rows), N)."""
+        s = self._s if rows is None else self._s[rows]
+        nf, n = s.size, self._gs.shape[0]
         rhs = np.broadcast_to(b * self._r, (nf, n))
         xs = np.full((nf, n), np.nan + 0j)
         for lo in range(0, nf, self._block):
             hi = min(nf, lo + self._block)
-            y = self._gs[None, :, :] + self._s[lo:hi, None, None] * self._cs[None, :, :]
+            rs, y = self._stack(s[lo:hi])
+            part = rhs[lo:hi] * rs
             try:
-                xs[lo:hi] = np.linalg.solve(y, rhs[lo:hi, :, None])[:, :, 0]
+                xs[lo:hi] = np.linalg.solve(y, part[:, :, None])[:, :, 0]
             except np.linalg.LinAlgError:
                 for k in range(hi - lo):
                     try:
-                        xs[lo + k] = np.linalg.solve(y[k], rhs[lo + k])
+                        xs[lo + k] = np.linalg.solve(y[k], part[k])
                     except np.linalg.LinAlgError:
                         pass
         with np.errstate(over="ignore", invalid="ignore"):
@@ -448,17 +487,183 @@ class SparseSolver:
         self._factor = factor
         self._lus = [factor(sk) for sk in s] if s.size * n <= KEEP_FACTORS else None
 
-    def solve(self, b: np.ndarray) -> np.ndarray:
-        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS."""
-        nf = self._s.size
+    def solve(self, b: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS
+        (with ``rows``: at those frequencies only, as in :meth:`DirectSolver.solve`)."""
+        which = np.arange(self._s.size) if rows is None else rows
+        nf = which.size
         rhs = np.broadcast_to(b * self._r, (nf, self._n))
         xs = np.full((nf, self._n), np.nan + 0j)
-        for k in range(nf):
+        for i, k in enumerate(which):
             lu = self._lus[k] if self._lus is not None else self._factor(self._s[k])
             if lu is not None:
-                xs[k] = lu.solve(rhs[k].astype(complex))
+                xs[i] = lu.solve(rhs[i].astype(complex))
         with np.errstate(over="ignore", invalid="ignore"):
             return xs * self._c
+
+
+def _band_order(pattern: np.ndarray) -> np.ndarray:
+    """A reverse Cuthill–McKee order of the unknowns for the non-zero
+    ``pattern`` (N, N) (from memory of E. Cuthill, J. McKee, "Reducing the
+    bandwidth of sparse symmetric matrices", 1969, reversed as A. George
+    proposed): breadth-first from a least-connected unknown, neighbours in
+    order of increasing degree, each connected part in turn, then reversed."""
+    n = pattern.shape[0]
+    sym = pattern | pattern.T
+    np.fill_diagonal(sym, False)
+    degree = sym.sum(axis=1)
+    neighbours = [np.flatnonzero(row) for row in sym]
+    seen = np.zeros(n, dtype=bool)
+    order: list[int] = []
+    for start in np.argsort(degree, kind="stable"):
+        if seen[start]:
+            continue
+        seen[start] = True
+        queue = [int(start)]
+        head = 0
+        while head < len(queue):
+            node = queue[head]
+            head += 1
+            nxt = [int(j) for j in neighbours[node] if not seen[j]]
+            nxt.sort(key=lambda j: (degree[j], j))
+            for j in nxt:
+                seen[j] = True
+            queue.extend(nxt)
+        order.extend(queue)
+    return np.array(order[::-1], dtype=int)
+
+
+def _bandwidths(pattern: np.ndarray) -> tuple[int, int]:
+    """``(lower, upper)`` bandwidth of the non-zero ``pattern``."""
+    i, j = np.nonzero(pattern)
+    if i.size == 0:
+        return 0, 0
+    return int(max(0, (i - j).max())), int(max(0, (j - i).max()))
+
+
+#: the banded solve is used when its reordered ``Y`` has (lower + 1)·(lower +
+#: upper + 1) at most this fraction of N² (see :func:`direct_solver`)
+BAND_FRACTION = 0.25
+#: the banded solve keeps its factors for at most this many bytes
+BAND_BYTES = 256 * 2**20
+
+
+class BandSolver:
+    """Gaussian elimination with partial pivoting of each equilibrated ``Y(s)``
+    in band form, vectorised over the frequencies; the factors are kept.
+
+    The unknowns are put in reverse Cuthill–McKee order (:func:`_band_order`):
+    a chain of stages then has a narrow band (lower and upper bandwidth ``p``
+    and ``q`` of a few unknowns whatever the number of stages).  Elimination
+    runs over a window of ``p + 1`` rows and ``p + q + 1`` columns that
+    slides down the diagonal, every frequency at once, as LAPACK's band
+    factorisation does (from memory of E. Anderson et al., "LAPACK Users'
+    Guide", xGBTRF: row interchanges within the band let ``U`` grow to
+    ``p + q`` upper diagonals).  The pivots are the same as those of the
+    dense partial-pivoting solve of the same matrix: it is that algorithm,
+    skipping entries known to be zero.  Scaling is that of
+    :class:`DirectSolver` (per-frequency row scale included).  Solves
+    (the first and each refinement step) then cost ``O(N·(p + q))`` per
+    frequency.  A frequency at which ``Y(s)`` is singular gives NaN.
+    """
+
+    name = "banded"
+
+    def __init__(self, g: np.ndarray, c: np.ndarray, s: np.ndarray,
+                 order: np.ndarray | None = None):
+        if order is None:
+            order = _band_order((g != 0.0) | (c != 0.0))
+        w = np.abs(s)
+        s_mid = float(np.sqrt(w.min() * w.max())) if w.size else 1.0
+        self._r, self._c = _equilibrate(np.abs(g) + s_mid * np.abs(c))
+        self._order = order
+        gs = (self._r[:, None] * g * self._c[None, :])[np.ix_(order, order)]
+        cs = (self._r[:, None] * c * self._c[None, :])[np.ix_(order, order)]
+        n = g.shape[0]
+        lo, up = _bandwidths((gs != 0.0) | (cs != 0.0))
+        self._n, self._lo, self._up = n, lo, up
+        self._s = s
+        # original band, row i: columns i - lo … i + up (zero outside the matrix)
+        width = lo + up + 1
+        cols = np.arange(n)[:, None] - lo + np.arange(width)[None, :]
+        inside = (cols >= 0) & (cols < n)
+        safe = np.where(inside, cols, 0)
+        gb = np.where(inside, np.take_along_axis(gs, safe, axis=1), 0.0)
+        cb = np.where(inside, np.take_along_axis(cs, safe, axis=1), 0.0)
+        rs = np.abs(gs).max(axis=1, initial=0.0)[:, None] + np.abs(cs).max(axis=1, initial=0.0)[:, None] * w[None, :]
+        with np.errstate(divide="ignore"):
+            self._rs = np.exp2(-np.round(np.log2(np.where(rs > 0.0, rs, 1.0))))  # (N, nf)
+        # frequencies last throughout: every slice below is a contiguous run
+        self._piv, self._l, self._u = self._factor(gb, cb)
+
+    def _factor(self, gb: np.ndarray, cb: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        n, lo, up, s = self._n, self._lo, self._up, self._s
+        nf = s.size
+        wide = lo + up + 1
+        # every scaled band row, then lo + 1 rows of zeros past the matrix (N + lo + 1, wide, nf)
+        rows = np.zeros((n + lo + 1, wide, nf), dtype=complex)
+        np.multiply(self._rs[:, None, :], gb[:, :, None], out=rows.real[:n])
+        if np.any(s.real != 0.0):
+            rows.real[:n] += self._rs[:, None, :] * cb[:, :, None] * s.real[None, None, :]
+        np.multiply(self._rs[:, None, :] * s.imag[None, None, :], cb[:, :, None], out=rows.imag[:n])
+        piv = np.zeros((n, nf), dtype=np.intp)
+        low = np.zeros((n, lo, nf), dtype=complex)
+        upp = np.zeros((n, wide, nf), dtype=complex)
+        # window row r, column t: Y[k + r, k + t] at step k
+        win = np.zeros((lo + 1, wide, nf), dtype=complex)
+        for r in range(lo + 1):
+            win[r, :up + 1 + r] = rows[r, lo - r:]
+        spare = np.zeros_like(win)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            for k in range(n):
+                if lo:
+                    p = np.argmax(np.abs(win[:, 0]), axis=0)
+                    swap = np.flatnonzero(p)
+                    if swap.size:
+                        piv[k, swap] = p[swap]
+                        top = win[p[swap], :, swap]  # (len(swap), wide)
+                        win[p[swap], :, swap] = win[0, :, swap]
+                        win[0, :, swap] = top
+                    mult = win[1:, 0] / win[0, 0]
+                    win[1:, 1:] -= mult[:, None, :] * win[0, None, 1:]
+                    low[k] = mult
+                upp[k] = win[0]
+                # slide: rows 1 … lo move up and left, the next band row enters at the bottom
+                spare[:lo, :wide - 1] = win[1:, 1:]
+                spare[:lo, wide - 1] = 0.0
+                spare[lo] = rows[k + 1 + lo]
+                win, spare = spare, win
+        return piv, low, upp
+
+    def solve(self, b: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+        """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS
+        (with ``rows``: at those frequencies only, as in :meth:`DirectSolver.solve`)."""
+        n, lo, up = self._n, self._lo, self._up
+        if rows is None:
+            rs, piv, low, upp = self._rs, self._piv, self._l, self._u
+        else:
+            rs, piv, low, upp = self._rs[:, rows], self._piv[:, rows], self._l[:, :, rows], self._u[:, :, rows]
+        nf = rs.shape[1]
+        y = np.zeros((n + lo + up + 1, nf), dtype=complex)
+        y[:n] = np.broadcast_to((b * self._r)[..., self._order], (nf, n)).T * rs
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            for k in range(n):
+                if lo:
+                    swap = np.flatnonzero(piv[k])
+                    if swap.size:
+                        p = k + piv[k, swap]
+                        top = y[p, swap]
+                        y[p, swap] = y[k, swap]
+                        y[k, swap] = top
+                    y[k + 1:k + 1 + lo] -= low[k] * y[k]
+            y[n:] = 0.0  # back substitution in place; entries past N stay zero
+            for k in range(n - 1, -1, -1):
+                acc = (upp[k, 1:] * y[k + 1:k + 1 + lo + up]).sum(axis=0)
+                y[k] = (y[k] - acc) / upp[k, 0]
+        out = np.empty((nf, n), dtype=complex)
+        out[:, self._order] = y[:n].T
+        with np.errstate(over="ignore", invalid="ignore"):
+            return out * self._c
 
 
 def _equilibrate_entries(rows: np.ndarray, cols: np.ndarray, values: np.ndarray, n: int,
@@ -482,8 +687,20 @@ def _equilibrate_entries(rows: np.ndarray, cols: np.ndarray, values: np.ndarray,
 
 
 def direct_solver(g: np.ndarray, c: np.ndarray, s: np.ndarray):
-    """The direct solver for this size: dense below :data:`SPARSE_FROM` unknowns, else sparse."""
-    return SparseSolver(g, c, s) if g.shape[0] >= SPARSE_FROM else DirectSolver(g, c, s)
+    """The direct solver for this matrix: :class:`BandSolver` when the
+    reordered band is narrow — (lower + 1)·(lower + upper + 1) at most
+    :data:`BAND_FRACTION` of N², so that its work per frequency is a small
+    part of the dense elimination's — and its factors fit in
+    :data:`BAND_BYTES`; else dense below :data:`SPARSE_FROM` unknowns,
+    sparse from there on."""
+    n = g.shape[0]
+    if n and s.size > DIRECT_BELOW:
+        order = _band_order((g != 0.0) | (c != 0.0))
+        lo, up = _bandwidths(((g != 0.0) | (c != 0.0))[np.ix_(order, order)])
+        narrow = (lo + 1) * (lo + up + 1) <= BAND_FRACTION * n * n
+        if narrow and s.size * n * (2 * lo + up + 2) * 16 <= BAND_BYTES:
+            return BandSolver(g, c, s, order)
+    return SparseSolver(g, c, s) if n >= SPARSE_FROM else DirectSolver(g, c, s)
 
 
 def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple[np.ndarray, str]:
@@ -521,7 +738,9 @@ def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple
 
 def _name(solver) -> str:
     """The method's name as :class:`Response` records it ("direct" or "direct (sparse)")."""
-    return "direct (sparse)" if isinstance(solver, SparseSolver) else "direct"
+    if isinstance(solver, SparseSolver):
+        return "direct (sparse)"
+    return "direct (banded)" if isinstance(solver, BandSolver) else "direct"
 
 
 def solve_entry(mna: Mna, s: np.ndarray, b: np.ndarray, index: int,
@@ -582,24 +801,29 @@ def _refine_all(solver, check: "_Checker", b: np.ndarray, *, accept: float = ...
 def _refine_all(solver, check: "_Checker", b: np.ndarray, *,
                 accept: float | None = BACKWARD_TOL) -> np.ndarray | None:
     """Iterative refinement (from memory of Higham, "Accuracy and Stability of
-    Numerical Algorithms", ch. 12): ``x ← x + solve(b − Y·x)`` while the
-    componentwise backward error improves; None unless it ends ≤ ``accept``
+    Numerical Algorithms", ch. 12): ``x ← x + solve(b − Y·x)`` at each frequency
+    while its componentwise backward error is above :data:`REFINE_TOL` and
+    improves (frequencies are independent systems: one already at rounding
+    level is not solved again); None unless the largest ends ≤ ``accept``
     (``accept=None``: the result is kept whatever its backward error)."""
     x = solver.solve(b)
     if isinstance(solver, ModalSolver):
         # the modal solve is never at rounding level by itself: one correction
         # step always pays, so skip measuring the first backward error
         x = x + solver.solve(check.residual(x))
-    r, berr = check(x)
+    r, berr = check.each(x)
+    todo = np.flatnonzero(berr > REFINE_TOL)
     for _ in range(MAX_REFINE):
-        if berr <= REFINE_TOL:
+        if todo.size == 0:
             break
-        x_new = x + solver.solve(r)
-        r_new, berr_new = check(x_new)
-        if not berr_new < berr:
-            break
-        x, r, berr = x_new, r_new, berr_new
-    return x if accept is None or berr <= accept else None
+        x_new = x[todo] + solver.solve(r[todo], todo)
+        r_new, berr_new = check.each(x_new, todo)
+        better = berr_new < berr[todo]
+        keep = todo[better]
+        x[keep], r[keep], berr[keep] = x_new[better], r_new[better], berr_new[better]
+        todo = keep[berr[keep] > REFINE_TOL]
+    worst = float(berr.max()) if berr.size else 0.0
+    return x if accept is None or worst <= accept else None
 
 
 class _Checker:
@@ -629,23 +853,38 @@ class _Checker:
             return x @ m
         return (m @ x.T).T
 
-    def residual(self, x: np.ndarray) -> np.ndarray:
-        """``b − G·x − s·C·x`` for every frequency (nf, N)."""
+    def residual(self, x: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+        """``b − G·x − s·C·x`` for every frequency (nf, N), or for ``x`` at the
+        frequencies ``rows`` only."""
         n = self._n
+        s = self._s if rows is None else self._s[rows]
+        b = self._b if rows is None or self._b.ndim == 1 else self._b[rows]
         both = self._product(self._gc, x)
-        return self._b - both[:, :n] - both[:, n:] * self._s[:, None]
+        return b - both[:, :n] - both[:, n:] * s[:, None]
+
+    def each(self, x: np.ndarray, rows: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """``(residual, componentwise backward error per frequency)`` (inf where
+        ``x`` is not finite); with ``rows``, ``x`` is at those frequencies only."""
+        n = self._n
+        abs_s = self._abs_s if rows is None else self._abs_s[rows]
+        abs_b = self._abs_b if rows is None or self._abs_b.ndim == 1 else self._abs_b[rows]
+        finite = np.all(np.isfinite(x), axis=1)
+        xf = np.where(finite[:, None], x, 0.0)
+        r = self.residual(xf, rows)
+        mags = self._product(self._abs_gc, np.abs(xf))
+        scale = mags[:, :n] + mags[:, n:] * abs_s + abs_b
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(scale > 0.0, np.abs(r) / scale, 0.0)
+        berr = ratio.max(axis=1, initial=0.0)
+        berr[~finite] = np.inf
+        return r, berr
 
     def __call__(self, x: np.ndarray) -> tuple[np.ndarray, float]:
         """``(residual, largest componentwise backward error)``; inf if ``x`` is not finite."""
         if not np.all(np.isfinite(x)):
             return np.zeros_like(x), np.inf
-        n = self._n
-        r = self.residual(x)
-        mags = self._product(self._abs_gc, np.abs(x))
-        scale = mags[:, :n] + mags[:, n:] * self._abs_s + self._abs_b
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(scale > 0.0, np.abs(r) / scale, 0.0)
-        return r, float(ratio.max()) if ratio.size else 0.0
+        r, berr = self.each(x)
+        return r, float(berr.max()) if berr.size else 0.0
 
 
 def backward_error(mna: Mna, s: np.ndarray, x: np.ndarray, b: np.ndarray) -> float:

@@ -87,7 +87,7 @@ class Response:
     stage_zout_ohm: Mapping[str, np.ndarray]
     #: the network the response belongs to (for exact re-evaluation)
     ss: SmallSignalCircuit
-    #: "modal" or "direct": how the node transfers were solved
+    #: "modal", "direct", "direct (banded)" or "direct (sparse)": how the node transfers were solved
     method: str = "modal"
     #: stage name → output port → that port's output impedance, ohm; empty when not computed
     port_zout_ohm: Mapping[str, Mapping[str, np.ndarray]] = field(default_factory=dict)

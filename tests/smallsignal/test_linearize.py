@@ -130,7 +130,7 @@ def test_modal_and_direct_solves_agree_on_a_six_stage_chain():
     f = np.geomspace(20.0, 20e3, 200)
     fast = response(ss, f, method="modal")
     slow = response(ss, f, method="direct")
-    assert fast.method == "modal" and slow.method == "direct"
+    assert fast.method == "modal" and slow.method.startswith("direct")
     for node in circuit.nodes():
         scale = np.abs(slow.h[node]).max()
         assert_allclose(fast.h[node], slow.h[node], rtol=0, atol=1e-11 * scale, err_msg=node)
