@@ -61,8 +61,9 @@ class Change:
         The change in ``relative_unit``: ``"%"`` (``100·(new/old − 1)``),
         ``"oct"`` (``log2(new/old)``) or ``"dB"``.
     relative_unit : str
-    size : float
-        Comparable size used for sorting (module docstring).
+    size : float or None
+        Comparable size used for sorting (module docstring); None only when
+        it is not finite (sorted as 0).
     owner : str
         For parts: what the part belongs to (``"stage V2"``,
         ``"network volume"``); else ``""``.
@@ -81,7 +82,7 @@ class Change:
     delta: float | None = None
     relative: float | None = None
     relative_unit: str = ""
-    size: float = 0.0
+    size: float | None = 0.0
     owner: str = ""
     note: str = ""
     at_hz: float | None = None

@@ -105,8 +105,8 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
     for key, name in (("peaks", "main peak"), ("dips", "main dip")):
         mains = [_main(o, key) for o in ov]
         if any(mains):
-            add("overall", f"{name} frequency", "Hz", [m and m["f_hz"] for m in mains])
-            add("overall", f"{name} level", "dB", [m and m["gain_db"] for m in mains])
+            add("overall", f"{name} frequency", "Hz", [None if m is None else m["f_hz"] for m in mains])
+            add("overall", f"{name} level", "dB", [None if m is None else m["gain_db"] for m in mains])
     for label in _ordered(x["label"] for o in ov for x in (o.get("outputs") or [])[1:]):
         gains = [{x["label"]: x["gain_db"] for x in (o.get("outputs") or [])[1:]}.get(label) for o in ov]
         add("overall", f"gain to output {label}", "dB", gains)
@@ -143,11 +143,11 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
     keys: list[tuple[str, str]] = []
     for fs in figures:
         keys += [k for k in fs if k not in keys]
-    for key in keys:
-        unit = next(fs[key].unit for fs in figures if key in fs)
-        values = [fs[key].value if key in fs else None for fs in figures]
+    for fkey in keys:
+        unit = next(fs[fkey].unit for fs in figures if fkey in fs)
+        values = [fs[fkey].value if fkey in fs else None for fs in figures]
         if unit != "text" and all(v is None or isinstance(v, float) for v in values):
-            add(key[0], key[1], unit, values)  # type: ignore[arg-type]
+            add(fkey[0], fkey[1], unit, values)  # type: ignore[arg-type]
     return CompareResult(labels=names, sides=tuple(_side(d) for d in docs), rows=tuple(rows),
                          tol_db=float(tol_db), tol_pct=float(tol_pct))
 

@@ -49,7 +49,7 @@ def _owner_text(owner: Mapping[str, str]) -> str:
 def _value_change(name, owner, quantity, unit, old, new) -> Change:
     delta = rel = None
     rel_unit = ""
-    size = APPEAR_SIZE
+    size: float | None = APPEAR_SIZE
     if isinstance(old, (int, float)) and isinstance(new, (int, float)):
         delta = num(new - old)
         r = _pct(old, new)
@@ -245,7 +245,9 @@ def _shape_effects(oa, ob, tol_db, tol_pct) -> list[Change | None]:
             continue
         if a is None or b is None:
             there = a or b
-            out.append(Change("overall", "overall", f"{name} level", "dB", a and a["gain_db"], b and b["gain_db"],
+            assert there is not None  # one side has it: both absent was skipped above
+            out.append(Change("overall", "overall", f"{name} level", "dB", None if a is None else a["gain_db"],
+                              None if b is None else b["gain_db"],
                               size=APPEAR_SIZE, note=f"{'appeared' if a is None else 'vanished'} at "
                                                      f"{_f.si(there['f_hz'], 'Hz')}"))
             continue
