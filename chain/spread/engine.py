@@ -300,8 +300,8 @@ class BatchCircuit:
         mna = self._mna
         size = mna.size
         owner_of = {}
-        for t_index, tri in enumerate(self.triodes):
-            for el in tri.small_signal_elements(gm_s=1.0, rp_ohm=1.0):
+        for t_index, triode in enumerate(self.triodes):
+            for el in triode.small_signal_elements(gm_s=1.0, rp_ohm=1.0):
                 owner_of[el.name] = t_index
         kinds, cols, tri, v0 = [], [], [], []
         pg1, pc1 = [], []

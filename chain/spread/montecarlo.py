@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Mapping
+from typing import Any, Mapping
 
 import numpy as np
 
@@ -253,7 +253,7 @@ class _Model:
     def factors(self, deviations: np.ndarray) -> np.ndarray:
         return 1.0 + deviations[:, self.group_of_col]
 
-    def run(self, deviations: np.ndarray, *, sweep: bool, clip: bool = False) -> dict[str, np.ndarray]:
+    def run(self, deviations: np.ndarray, *, sweep: bool, clip: bool = False) -> dict[str, Any]:
         b = self.batch
         fac = self.factors(deviations)
         dc = b.dc(fac)
@@ -261,7 +261,8 @@ class _Model:
         g, c = b.matrices(vals)
         rhs = b.source_rhs
         x_ref = b.solve_at(g, c, self.reference_hz, rhs)
-        out: dict[str, np.ndarray] = {"converged": dc.converged}
+        # figure name -> (S,) array; also "_dc" -> DcBatch and "_clip" -> the clip batch
+        out: dict[str, Any] = {"converged": dc.converged}
         h_out = x_ref[:, self.out] if self.out >= 0 else np.zeros(x_ref.shape[0])
         with np.errstate(divide="ignore"):
             out["overall_gain_db"] = 20 * np.log10(np.abs(h_out))
@@ -292,7 +293,7 @@ class _Model:
         if clip:
             from chain.spread.clip import clip_batch
 
-            out["_clip"] = clip_batch(b, self.circuit, fac, dc)  # type: ignore[assignment]
+            out["_clip"] = clip_batch(b, self.circuit, fac, dc)
         return out
 
 

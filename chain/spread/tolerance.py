@@ -185,8 +185,8 @@ def from_design(design, circuit: Circuit) -> tuple[dict[str, Tolerance], dict[st
         elif t.target in DEFAULTS:
             by_kind[t.target] = tol
         elif t.target in stages:
-            for tri in stages[t.target].triodes:
-                by_part[tri] = tol
+            for tri_name in stages[t.target].triodes:
+                by_part[tri_name] = tol
         elif t.target in names:
             by_part[t.target] = tol
         else:
