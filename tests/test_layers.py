@@ -11,7 +11,7 @@ PACKAGE = Path(__file__).parents[1] / "chain"
 #: room → rank; a module may import at module level only rooms of lower rank
 #: (or its own room)
 RANKS = {
-    "about": 0, "errors": 0, "units": 0, "fileio": 0, "decibels": 0, "graph": 0, "rootfind": 0,
+    "about": 0, "errors": 0, "units": 0, "fileio": 0, "decibels": 0, "graph": 0, "rootfind": 0, "discover": 0,
     "tubes": 1,
     "language": 2,
     "circuit": 3, "kinds": 3.5,

@@ -17,12 +17,11 @@ need no per-kind code.
 
 from __future__ import annotations
 
-import importlib
-import pkgutil
 from dataclasses import dataclass
 from typing import Callable, Mapping, Protocol
 
 from chain.circuit import Element, StageRecord
+from chain.discover import modules_defining
 from chain.errors import Span
 from chain.language.design import Stage
 from chain.tubes import TriodeModel
@@ -53,9 +52,8 @@ class Expansion:
 
 def _modules() -> dict[str, Callable[[Expander, Stage], Expansion]]:
     found: dict[str, Callable[[Expander, Stage], Expansion]] = {}
-    for info in pkgutil.iter_modules(__path__):
-        module = importlib.import_module(f"{__name__}.{info.name}")
-        for kind in getattr(module, "KINDS", ()):
+    for module in modules_defining(__name__, __path__, "KINDS", "expand"):
+        for kind in module.KINDS:
             found[kind] = module.expand
     return found
 

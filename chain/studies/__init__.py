@@ -16,12 +16,11 @@ changes.
 
 from __future__ import annotations
 
-import importlib
-import pkgutil
 from dataclasses import dataclass
 from typing import Any, Callable
 
 from chain.circuit import Circuit
+from chain.discover import modules_defining
 from chain.dc import DcSolution
 from chain.language.design import Design
 from chain.smallsignal import OverallResult, Response, SmallSignalCircuit, StageRow
@@ -58,10 +57,5 @@ class Study:
 
 def studies() -> tuple[Study, ...]:
     """Every study of this package, in the order of their keys."""
-    found = []
-    for info in pkgutil.iter_modules(__path__):
-        module = importlib.import_module(f"{__name__}.{info.name}")
-        step = getattr(module, "STEP", None)
-        if isinstance(step, Study):
-            found.append(step)
+    found = [m.STEP for m in modules_defining(__name__, __path__, "STEP") if isinstance(m.STEP, Study)]
     return tuple(sorted(found, key=lambda s: s.key))

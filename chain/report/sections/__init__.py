@@ -14,10 +14,10 @@ Sections read the document only; they compute no new physics.
 
 from __future__ import annotations
 
-import importlib
-import pkgutil
 from dataclasses import dataclass, field
 from typing import Any, Callable, Mapping
+
+from chain.discover import modules_defining
 
 __all__ = ["Figure", "Table", "Section", "sections", "FIGURE_UNITS"]
 
@@ -79,10 +79,5 @@ class Section:
 
 def sections() -> tuple[Section, ...]:
     """Every section of this package, in the order of their keys."""
-    found = []
-    for info in pkgutil.iter_modules(__path__):
-        module = importlib.import_module(f"{__name__}.{info.name}")
-        sec = getattr(module, "SECTION", None)
-        if isinstance(sec, Section):
-            found.append(sec)
+    found = [m.SECTION for m in modules_defining(__name__, __path__, "SECTION") if isinstance(m.SECTION, Section)]
     return tuple(sorted(found, key=lambda s: s.key))
