@@ -145,9 +145,10 @@ def compare(voicings: Sequence, *, labels: Sequence[str] | None = None, tol_db: 
         keys += [k for k in fs if k not in keys]
     for fkey in keys:
         unit = next(fs[fkey].unit for fs in figures if fkey in fs)
-        values = [fs[fkey].value if fkey in fs else None for fs in figures]
-        if unit != "text" and all(v is None or isinstance(v, float) for v in values):
-            add(fkey[0], fkey[1], unit, values)  # type: ignore[arg-type]
+        raw = [fs[fkey].value if fkey in fs else None for fs in figures]
+        numbers = [v for v in raw if not isinstance(v, str)]
+        if unit != "text" and len(numbers) == len(raw):  # words are for diff, not for a column of numbers
+            add(fkey[0], fkey[1], unit, numbers)
     return CompareResult(labels=names, sides=tuple(_side(d) for d in docs), rows=tuple(rows),
                          tol_db=float(tol_db), tol_pct=float(tol_pct))
 
