@@ -42,6 +42,7 @@ __all__ = [
     "num",
     "cx",
     "part_owner",
+    "diagnostics_data",
 ]
 
 #: identifier and version of the document layout; bumped on any incompatible change
@@ -255,7 +256,8 @@ def _response(analysis, f, mag_db, phase) -> dict[str, Any]:
     }
 
 
-def _diagnostics(diagnostics) -> list[dict[str, Any]]:
+def diagnostics_data(diagnostics) -> list[dict[str, Any]]:
+    """Diagnostics as report-document entries (code, severity, subject, message, hint, location)."""
     out = []
     for d in diagnostics:
         loc = None
@@ -309,7 +311,7 @@ def report_data(analysis) -> dict[str, Any]:
         "response": _response(analysis, f, mag_db, phase),
         "headroom": headroom_data(analysis.headroom),
         "noise": noise_data(getattr(analysis, "noise", None)),
-        "diagnostics": _diagnostics(analysis.diagnostics),
+        "diagnostics": diagnostics_data(analysis.diagnostics),
         "stability": stability_data(analysis.stability),
         "sensitivity": sensitivity_data(analysis.sensitivity),
         **{sec.key: sec.data(analysis.studies.get(sec.key)) for sec in sections()},

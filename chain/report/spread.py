@@ -15,6 +15,7 @@ import numpy as np
 
 from chain.about import SAFETY
 import chain.report.fmt as fmt
+from chain.report.data import diagnostics_data
 from chain.report.values import num
 
 __all__ = ["SPREAD_SCHEMA", "spread_data", "spread_schema", "render_spread", "FIGURES"]
@@ -91,17 +92,6 @@ def first_clip_section(r) -> dict[str, Any] | None:
     }
 
 
-def _diagnostics(diagnostics) -> list[dict[str, Any]]:
-    out = []
-    for d in diagnostics:
-        loc = None
-        if d.span is not None and d.span.line > 0:
-            loc = {"path": d.span.path, "line": int(d.span.line), "column": int(d.span.column)}
-        out.append({"code": d.code, "severity": d.severity, "subject": d.subject, "message": d.message,
-                    "hint": d.hint, "location": loc})
-    return out
-
-
 def spread_data(result, *, path: str = "", title: str = "", diagnostics=()) -> dict[str, Any]:
     """The JSON-ready document of a spread analysis (``diagnostics``: located
     problems of the nominal circuit, e.g. E801 when it is unstable)."""
@@ -132,7 +122,7 @@ def spread_data(result, *, path: str = "", title: str = "", diagnostics=()) -> d
         "stability": stability_section(r),
         "first_clip": first_clip_section(r),
         "unconverged": int(r.unconverged), "resolved": int(r.resolved),
-        "diagnostics": _diagnostics(diagnostics),
+        "diagnostics": diagnostics_data(diagnostics),
     }
 
 
