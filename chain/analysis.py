@@ -130,38 +130,50 @@ def ac_loads(ss, f_hz: float) -> dict[str, complex]:
     point has the slope ``−1/Re(Z_ac)`` in the (Vpk, Ip) plane (load-line
     construction: e.g. Langford-Smith, *Radiotron Designer's Handbook*,
     4th ed., ch. 12 — from memory of that source).
+
+    The systems of all stages differ from the whole circuit's only in the
+    removed elements, so they are solved together
+    (:func:`chain.smallsignal.mna.solve_each_without`: one banded
+    factorisation for all of them when the circuit reorders to a narrow band).
     """
     import numpy as np
 
     from chain.circuit import GROUND, TRIODE_ELEMENT_ROLES
-    from chain.smallsignal.mna import assemble, solve
+    from chain.smallsignal.mna import assemble, solve_each_without
 
     circuit = ss.circuit
     mna = assemble(ss)
-    s = np.array([2j * np.pi * f_hz])
-    out = {}
+    out: dict[str, complex] = {}
+    removals, rhs, ends = [], [], []
+    by_owner: dict = {}
+    for e in mna.stamps:
+        if e.role in TRIODE_ELEMENT_ROLES:
+            by_owner.setdefault(e.owner, []).append(e)
     for st in circuit.stages:
         triode = circuit.triode(st.triode)
         # this triode's own small-signal elements: its stage's, touching only its pins
         pins = {mna.index.get(ss.node_of.get(n, GROUND), -1) for n in (triode.plate, triode.grid, triode.cathode)}
-        own = [e for e in mna.stamps
-               if e.role in TRIODE_ELEMENT_ROLES and e.owner == triode.owner
-               and {e.a, e.b} <= pins and (e.kind != "G" or {e.cp, e.cn} <= pins)]
-        reduced = mna.without(own)
+        own = [e for e in by_owner.get(triode.owner, ())
+               if {e.a, e.b} <= pins and (e.kind != "G" or {e.cp, e.cn} <= pins)]
         p = mna.index.get(ss.node_of.get(triode.plate, GROUND), -1)
         k = mna.index.get(ss.node_of.get(triode.cathode, GROUND), -1)
+        out[st.name] = 0j
         if p == k:
-            out[st.name] = 0j
             continue
         b = np.zeros(mna.size)
         if p >= 0:
             b[p] = -1.0
         if k >= 0:
             b[k] = 1.0
-        x, _ = solve(reduced, s, b, "direct")
-        vp = x[0, p] if p >= 0 else 0.0
-        vk = x[0, k] if k >= 0 else 0.0
-        out[st.name] = complex(vk - vp)
+        removals.append(own)
+        rhs.append(b)
+        ends.append((st.name, p, k))
+    if removals:
+        x = solve_each_without(mna, 2j * np.pi * f_hz, removals, np.array(rhs))
+        for row, (name, p, k) in zip(x, ends):
+            vp = row[p] if p >= 0 else 0.0
+            vk = row[k] if k >= 0 else 0.0
+            out[name] = complex(vk - vp)
     return out
 
 

@@ -53,7 +53,7 @@ again, each while its error improves.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Iterable, overload
+from typing import Iterable, Sequence, overload
 
 import numpy as np
 
@@ -70,6 +70,9 @@ __all__ = [
     "SparseSolver",
     "BandSolver",
     "direct_solver",
+    "Changes",
+    "removal_changes",
+    "solve_each_without",
     "memory_estimate",
     "check_size",
     "solve",
@@ -271,38 +274,100 @@ def assemble(ss: SmallSignalCircuit) -> Mna:
     return Mna(nodes, index, g, c, tuple(stamps), src)
 
 
-def _matrices(size: int, stamps: Iterable[Stamp]) -> tuple[np.ndarray, np.ndarray]:
-    g = np.zeros((size, size))
-    c = np.zeros((size, size))
+def _entries(stamps: Iterable[Stamp]) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The stamps' matrix entries in stamping order: ``(row, column, G value,
+    C value)`` arrays, one entry per term (ground rows and columns left out)."""
+    rows: list[int] = []
+    cols: list[int] = []
+    gv: list[float] = []
+    cv: list[float] = []
 
-    def add(mat, i, j, v):
+    def add(i, j, g_val, c_val):
         if i >= 0 and j >= 0:
-            mat[i, j] += v
+            rows.append(i)
+            cols.append(j)
+            gv.append(g_val)
+            cv.append(c_val)
 
     for st in stamps:
         a, b = st.a, st.b
         if st.kind in ("R", "C"):
-            mat = g if st.kind == "R" else c
-            add(mat, a, a, st.value)
-            add(mat, b, b, st.value)
-            add(mat, a, b, -st.value)
-            add(mat, b, a, -st.value)
+            g_val, c_val = (st.value, 0.0) if st.kind == "R" else (0.0, st.value)
+            add(a, a, g_val, c_val)
+            add(b, b, g_val, c_val)
+            add(a, b, -g_val, -c_val)
+            add(b, a, -g_val, -c_val)
         elif st.kind in ("L", "V"):
             br = st.branch
-            add(g, a, br, 1.0)
-            add(g, b, br, -1.0)
-            add(g, br, a, 1.0)
-            add(g, br, b, -1.0)
+            add(a, br, 1.0, 0.0)
+            add(b, br, -1.0, 0.0)
+            add(br, a, 1.0, 0.0)
+            add(br, b, -1.0, 0.0)
             if st.kind == "L":
-                c[br, br] -= st.value
+                add(br, br, 0.0, -st.value)
         elif st.kind == "G":
-            add(g, a, st.cp, st.value)
-            add(g, a, st.cn, -st.value)
-            add(g, b, st.cp, -st.value)
-            add(g, b, st.cn, st.value)
+            add(a, st.cp, st.value, 0.0)
+            add(a, st.cn, -st.value, 0.0)
+            add(b, st.cp, -st.value, 0.0)
+            add(b, st.cn, st.value, 0.0)
         else:
             raise ValueError(f"unknown element kind {st.kind!r}")
+    return (np.array(rows, dtype=np.intp), np.array(cols, dtype=np.intp),
+            np.array(gv, dtype=float), np.array(cv, dtype=float))
+
+
+def _matrices(size: int, stamps: Iterable[Stamp]) -> tuple[np.ndarray, np.ndarray]:
+    g = np.zeros((size, size))
+    c = np.zeros((size, size))
+    rows, cols, gv, cv = _entries(stamps)
+    # np.add.at adds unbuffered, in order: the same sums as stamping one by one
+    g_term, c_term = gv != 0.0, cv != 0.0
+    np.add.at(g, (rows[g_term], cols[g_term]), gv[g_term])
+    np.add.at(c, (rows[c_term], cols[c_term]), cv[c_term])
     return g, c
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Changes:
+    """Entries added to ``G`` and ``C`` of one system of a stack each: system
+    ``k`` is ``(G + ΔG_k) + s_k·(C + ΔC_k)``; at most one entry per system,
+    row and column."""
+
+    system: np.ndarray
+    rows: np.ndarray
+    cols: np.ndarray
+    dg: np.ndarray
+    dc: np.ndarray
+
+
+def removal_changes(mna: Mna, removals: Sequence[Iterable[Stamp]]) -> Changes:
+    """:class:`Changes` making system ``k`` the matrix of ``mna.without(removals[k])``
+    (each removed element's entries subtracted; a removed inductor's branch
+    current pinned to zero)."""
+    parts = []
+    for k, removed in enumerate(removals):
+        removed = tuple(removed)
+        if any(st.kind == "V" for st in removed):
+            raise ValueError("the signal source cannot be removed")
+        rows, cols, gv, cv = _entries(removed)
+        pins = [st.branch for st in removed if st.kind == "L"]
+        rows = np.r_[rows, pins].astype(np.intp)
+        cols = np.r_[cols, pins].astype(np.intp)
+        parts.append((np.full(rows.size, k, dtype=np.intp), rows, cols,
+                      np.r_[-gv, np.ones(len(pins))], np.r_[-cv, np.zeros(len(pins))]))
+    if not parts:
+        empty = np.zeros(0, dtype=np.intp)
+        return Changes(empty, empty, empty, np.zeros(0), np.zeros(0))
+    system, rows, cols, dg, dc = (np.concatenate(a) for a in zip(*parts))
+    # one entry per (system, row, column), summed in order
+    n = mna.size
+    key = (system * n + rows) * n + cols
+    uniq, where = np.unique(key, return_inverse=True)
+    sum_g = np.zeros(uniq.size)
+    sum_c = np.zeros(uniq.size)
+    np.add.at(sum_g, where, dg)
+    np.add.at(sum_c, where, dc)
+    return Changes(uniq // (n * n), (uniq // n) % n, uniq % n, sum_g, sum_c)
 
 
 # -- solvers -----------------------------------------------------------------
@@ -570,9 +635,12 @@ class BandSolver:
     name = "banded"
 
     def __init__(self, g: np.ndarray, c: np.ndarray, s: np.ndarray,
-                 order: np.ndarray | None = None):
+                 order: np.ndarray | None = None, changes: "Changes | None" = None):
+        pattern = (g != 0.0) | (c != 0.0)
+        if changes is not None:
+            pattern[changes.rows, changes.cols] = True
         if order is None:
-            order = _band_order((g != 0.0) | (c != 0.0))
+            order = _band_order(pattern)
         w = np.abs(s)
         s_mid = float(np.sqrt(w.min() * w.max())) if w.size else 1.0
         self._r, self._c = _equilibrate(np.abs(g) + s_mid * np.abs(c))
@@ -580,7 +648,7 @@ class BandSolver:
         gs = (self._r[:, None] * g * self._c[None, :])[np.ix_(order, order)]
         cs = (self._r[:, None] * c * self._c[None, :])[np.ix_(order, order)]
         n = g.shape[0]
-        lo, up = _bandwidths((gs != 0.0) | (cs != 0.0))
+        lo, up = _bandwidths(pattern[np.ix_(order, order)])
         self._n, self._lo, self._up = n, lo, up
         self._s = s
         # original band, row i: columns i - lo … i + up (zero outside the matrix)
@@ -594,18 +662,39 @@ class BandSolver:
         with np.errstate(divide="ignore"):
             self._rs = np.exp2(-np.round(np.log2(np.where(rs > 0.0, rs, 1.0))))  # (N, nf)
         # frequencies last throughout: every slice below is a contiguous run
-        self._piv, self._l, self._u = self._factor(gb, cb)
+        rows = self._band_rows(gb, cb)
+        if changes is not None:
+            self._apply(rows, changes)
+        self._piv, self._l, self._u = self._eliminate(rows)
 
-    def _factor(self, gb: np.ndarray, cb: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    def _band_rows(self, gb: np.ndarray, cb: np.ndarray) -> np.ndarray:
+        """Every scaled band row ``rs·(G + s·C)``, then ``lo + 1`` rows of zeros
+        past the matrix: (N + lo + 1, lo + up + 1, nf)."""
         n, lo, up, s = self._n, self._lo, self._up, self._s
-        nf = s.size
-        wide = lo + up + 1
-        # every scaled band row, then lo + 1 rows of zeros past the matrix (N + lo + 1, wide, nf)
-        rows = np.zeros((n + lo + 1, wide, nf), dtype=complex)
+        rows = np.zeros((n + lo + 1, lo + up + 1, s.size), dtype=complex)
         np.multiply(self._rs[:, None, :], gb[:, :, None], out=rows.real[:n])
         if np.any(s.real != 0.0):
             rows.real[:n] += self._rs[:, None, :] * cb[:, :, None] * s.real[None, None, :]
         np.multiply(self._rs[:, None, :] * s.imag[None, None, :], cb[:, :, None], out=rows.imag[:n])
+        return rows
+
+    def _apply(self, rows: np.ndarray, changes: "Changes") -> None:
+        """Add each system's own entries (``changes``, in the original unknowns'
+        numbering) to its band, scaled as the rest."""
+        where = np.empty(self._n, dtype=np.intp)
+        where[self._order] = np.arange(self._n)
+        i, j = where[changes.rows], where[changes.cols]
+        band = j - i + self._lo
+        k = changes.system
+        scale = self._rs[i, k] * self._r[changes.rows] * self._c[changes.cols]
+        np.add.at(rows, (i, band, k), scale * (changes.dg + self._s[k] * changes.dc))
+
+    def _eliminate(self, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The factors of the band ``rows`` (see :meth:`_band_rows`): ``(row
+        interchange per step (N, nf), multipliers (N, lo, nf), rows of U (N, wide, nf))``."""
+        n, lo, up = self._n, self._lo, self._up
+        nf = rows.shape[2]
+        wide = lo + up + 1
         piv = np.zeros((n, nf), dtype=np.intp)
         low = np.zeros((n, lo, nf), dtype=complex)
         upp = np.zeros((n, wide, nf), dtype=complex)
@@ -686,21 +775,73 @@ def _equilibrate_entries(rows: np.ndarray, cols: np.ndarray, values: np.ndarray,
     return np.exp2(np.round(np.log2(r))), np.exp2(np.round(np.log2(c)))
 
 
-def direct_solver(g: np.ndarray, c: np.ndarray, s: np.ndarray):
-    """The direct solver for this matrix: :class:`BandSolver` when the
-    reordered band is narrow — (lower + 1)·(lower + upper + 1) at most
+def _band_plan(pattern: np.ndarray, n_freq: int) -> tuple[np.ndarray, int, int] | None:
+    """``(reverse Cuthill–McKee order, lower, upper bandwidth)`` of the non-zero
+    ``pattern`` when the banded solve suits it at ``n_freq`` frequencies — the
+    reordered band narrow, (lower + 1)·(lower + upper + 1) at most
     :data:`BAND_FRACTION` of N², so that its work per frequency is a small
-    part of the dense elimination's — and its factors fit in
-    :data:`BAND_BYTES`; else dense below :data:`SPARSE_FROM` unknowns,
-    sparse from there on."""
+    part of the dense elimination's, and its factors within
+    :data:`BAND_BYTES` — else None."""
+    n = pattern.shape[0]
+    if n == 0:
+        return None
+    order = _band_order(pattern)
+    lo, up = _bandwidths(pattern[np.ix_(order, order)])
+    narrow = (lo + 1) * (lo + up + 1) <= BAND_FRACTION * n * n
+    if narrow and band_factor_bytes(n, n_freq, lo, up) <= BAND_BYTES:
+        return order, lo, up
+    return None
+
+
+def band_factor_bytes(n_unknowns: int, n_freq: int, lower: int, upper: int) -> int:
+    """Bytes :class:`BandSolver` keeps for its factors: per frequency and
+    unknown, ``lower`` multipliers and ``lower + upper + 1`` entries of ``U``
+    (complex), a pivot index and a row scale (8 bytes each)."""
+    return n_freq * n_unknowns * ((2 * lower + upper + 1) * 16 + 16)
+
+
+def direct_solver(g: np.ndarray, c: np.ndarray, s: np.ndarray):
+    """The direct solver for this matrix: :class:`BandSolver` when
+    :func:`_band_plan` accepts its pattern at more than :data:`DIRECT_BELOW`
+    frequencies; else dense below :data:`SPARSE_FROM` unknowns, sparse from
+    there on."""
     n = g.shape[0]
     if n and s.size > DIRECT_BELOW:
-        order = _band_order((g != 0.0) | (c != 0.0))
-        lo, up = _bandwidths(((g != 0.0) | (c != 0.0))[np.ix_(order, order)])
-        narrow = (lo + 1) * (lo + up + 1) <= BAND_FRACTION * n * n
-        if narrow and s.size * n * (2 * lo + up + 2) * 16 <= BAND_BYTES:
-            return BandSolver(g, c, s, order)
+        plan = _band_plan((g != 0.0) | (c != 0.0), s.size)
+        if plan is not None:
+            return BandSolver(g, c, s, plan[0])
     return SparseSolver(g, c, s) if n >= SPARSE_FROM else DirectSolver(g, c, s)
+
+
+def solve_each_without(mna: Mna, s: complex, removals: Sequence[Iterable[Stamp]],
+                       b: np.ndarray) -> np.ndarray:
+    """``x[k]`` (K, N) solving ``Y_k(s)·x[k] = b[k]``, ``Y_k`` the matrix of
+    ``mna.without(removals[k])``, refined as :func:`solve` refines a direct solve.
+
+    When the band of ``G`` and ``C`` is narrow all ``K`` systems are one
+    :class:`BandSolver` (the removals are :func:`removal_changes` to the
+    base band: no matrix is stamped again, and the work is linear in ``K·N``);
+    otherwise each is stamped and solved on its own.
+    """
+    removals = [tuple(r) for r in removals]
+    b = np.asarray(b, dtype=float)
+    k = len(removals)
+    if k == 0:
+        return np.zeros((0, mna.size), dtype=complex)
+    changes = removal_changes(mna, removals)
+    pattern = (mna.g != 0.0) | (mna.c != 0.0)
+    pattern[changes.rows, changes.cols] = True
+    plan = _band_plan(pattern, k)
+    if plan is None:
+        one = np.array([s], dtype=complex)
+        out = np.empty((k, mna.size), dtype=complex)
+        for i, removed in enumerate(removals):
+            m = mna.without(removed)
+            out[i] = _refine_all(direct_solver(m.g, m.c, one), _Checker(m, one, b[i]), b[i], accept=None)[0]
+        return out
+    sv = np.full(k, s, dtype=complex)
+    solver = BandSolver(mna.g, mna.c, sv, plan[0], changes)
+    return _refine_all(solver, _Checker(mna, sv, b, changes), b, accept=None)
 
 
 def solve(mna: Mna, s: np.ndarray, b: np.ndarray, method: str = "auto") -> tuple[np.ndarray, str]:
@@ -829,9 +970,11 @@ def _refine_all(solver, check: "_Checker", b: np.ndarray, *,
 class _Checker:
     """Residual ``b − Y(s)·x`` and componentwise backward error of ``x`` (nf, N)."""
 
-    def __init__(self, mna: Mna, s: np.ndarray, b: np.ndarray):
+    def __init__(self, mna: Mna, s: np.ndarray, b: np.ndarray, changes: Changes | None = None):
         n = mna.size
         self._n = n
+        #: with ``changes``, "frequency" k is system k of the stack (see :class:`Changes`)
+        self._patch = None if changes is None else _RowPatch(mna, changes)
         self._s = s
         self._abs_s = np.abs(s)[:, None]
         self._b = b
@@ -860,7 +1003,12 @@ class _Checker:
         s = self._s if rows is None else self._s[rows]
         b = self._b if rows is None or self._b.ndim == 1 else self._b[rows]
         both = self._product(self._gc, x)
-        return b - both[:, :n] - both[:, n:] * s[:, None]
+        r = b - both[:, :n] - both[:, n:] * s[:, None]
+        if self._patch is not None:
+            at, i, product, _ = self._patch.rows_times(x, self._s, rows)
+            r[at, i] = (self._b[..., i] if self._b.ndim == 1 else self._b[self._patch.system_of(rows, at), i]) \
+                - product
+        return r
 
     def each(self, x: np.ndarray, rows: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
         """``(residual, componentwise backward error per frequency)`` (inf where
@@ -873,6 +1021,9 @@ class _Checker:
         r = self.residual(xf, rows)
         mags = self._product(self._abs_gc, np.abs(xf))
         scale = mags[:, :n] + mags[:, n:] * abs_s + abs_b
+        if self._patch is not None:
+            at, i, _, mag = self._patch.rows_times(xf, self._s, rows)
+            scale[at, i] = mag + abs_b[..., i] if abs_b.ndim == 1 else mag + abs_b[at, i]
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.where(scale > 0.0, np.abs(r) / scale, 0.0)
         berr = ratio.max(axis=1, initial=0.0)
@@ -885,6 +1036,60 @@ class _Checker:
             return np.zeros_like(x), np.inf
         r, berr = self.each(x)
         return r, float(berr.max()) if berr.size else 0.0
+
+
+class _RowPatch:
+    """The rows of a stack of systems (:class:`Changes`) that differ from
+    ``G + s·C``, each with its own entries: their products with ``x`` are formed
+    from the system's own matrix, so that the residual and its scale carry no
+    rounding from terms of removed elements (a removed transconductance times
+    a large voltage would otherwise swamp the residual of the row)."""
+
+    def __init__(self, mna: Mna, changes: Changes):
+        n = mna.size
+        pair_key, pair_of = np.unique(changes.system * n + changes.rows, return_inverse=True)
+        #: (system, row) of every changed row
+        self.system, self.row = pair_key // n, pair_key % n
+        pattern = (mna.g != 0.0) | (mna.c != 0.0)
+        rows_at, cols = np.nonzero(pattern[self.row])  # the base entries of each changed row
+        pair = np.r_[rows_at, pair_of]
+        col = np.r_[cols, changes.cols]
+        gv = np.r_[mna.g[self.row[rows_at], cols], changes.dg]
+        cv = np.r_[mna.c[self.row[rows_at], cols], changes.dc]
+        # one entry per (changed row, column): the base entry plus its change
+        key, where = np.unique(pair * n + col, return_inverse=True)
+        self.pair, self.col = key // n, key % n
+        self.g = np.zeros(key.size)
+        self.c = np.zeros(key.size)
+        np.add.at(self.g, where, gv)
+        np.add.at(self.c, where, cv)
+
+    def system_of(self, rows: np.ndarray | None, at: np.ndarray) -> np.ndarray:
+        """The system number of each position ``at`` of an ``x`` at the systems ``rows``."""
+        return at if rows is None else rows[at]
+
+    def rows_times(self, x: np.ndarray, s: np.ndarray, rows: np.ndarray | None
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``(position in x, row, (Y_k·x)[row], (|G_k| + |s|·|C_k|)·|x| [row])`` of every
+        changed row whose system is in ``rows`` (all when None)."""
+        if rows is None:
+            pos = self.system
+        else:
+            where = np.full(s.size, -1, dtype=np.intp)
+            where[rows] = np.arange(rows.size)
+            pos = where[self.system]
+        keep = pos >= 0
+        e = keep[self.pair]
+        pair = self.pair[e]
+        sys_e = self.system[pair]
+        xe = x[pos[pair], self.col[e]]
+        value = (self.g[e] + s[sys_e] * self.c[e]) * xe
+        mag = (np.abs(self.g[e]) + np.abs(s[sys_e]) * np.abs(self.c[e])) * np.abs(xe)
+        total = np.zeros(self.system.size, dtype=complex)
+        size = np.zeros(self.system.size)
+        np.add.at(total, pair, value)
+        np.add.at(size, pair, mag)
+        return pos[keep], self.row[keep], total[keep], size[keep]
 
 
 def backward_error(mna: Mna, s: np.ndarray, x: np.ndarray, b: np.ndarray) -> float:
