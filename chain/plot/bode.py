@@ -151,12 +151,13 @@ def bode(response, *, nodes: Sequence[str] | None = None,
             mag_db = db_array(h)
         phase = phase_deg(h, f, f_ref_hz)
         if node == circuit.output_node:
-            # the chain's output: first colour, solid, heavier
-            style = dict(color=PALETTE[0], linestyle=DASHES[0], linewidth=2.2, zorder=3)
+            # the chain's output: first colour, solid, heavier, underneath, so
+            # that a further trace with nearly the same response shows on it
+            style = dict(color=PALETTE[0], linestyle=DASHES[0], linewidth=2.2, zorder=2)
         else:
             others += 1
             style = dict(color=PALETTE[others % len(PALETTE)],
-                         linestyle=DASHES[others % len(DASHES)], linewidth=1.4)
+                         linestyle=DASHES[others % len(DASHES)], linewidth=1.4, zorder=3)
         (m_line,) = mag_ax.semilogx(f, mag_db, label=labels[k], **style)
         (p_line,) = ph_ax.semilogx(f, phase, label=labels[k], **style)
         mag_lines.append(m_line)

@@ -12,7 +12,9 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from chain.plot.bode import DASHES
 from chain.plot.headroom import COLOURS
+from chain.units import format_si
 
 __all__ = ["WaveformPlot", "plot_periods", "plot_burst"]
 
@@ -52,9 +54,9 @@ def plot_periods(points, *, title: str | None = None) -> WaveformPlot:
         for i, (label, h) in enumerate(p.nodes.items()):
             sig = pr.v[h.node] - pr.dc_v[h.node]
             ln, = ax.plot(t_ms, np.concatenate((sig, sig)), color=COLOURS[i % len(COLOURS)], linewidth=1.4,
-                          label=f"{label}  THD {100 * h.thd:.2g} %")
+                          linestyle=DASHES[i % len(DASHES)], label=f"{label}  THD {100 * h.thd:.2g} %")
             lines[f"{p.f_hz:g} Hz {p.level_v:g} V {label}"] = ln
-        ax.set_title(f"{p.f_hz:g} Hz, source {p.level_v * 1e3:.4g} mV peak (settled)", fontsize=10, loc="left")
+        ax.set_title(f"{p.f_hz:g} Hz, source {format_si(p.level_v, 'V', 4)} peak (settled)", fontsize=10, loc="left")
         ax.set_xlabel("time (ms)")
         ax.set_ylabel("signal (V)")
         ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.0, 1.0), frameon=False)
@@ -74,14 +76,15 @@ def plot_burst(result, *, title: str | None = None) -> WaveformPlot:
     top, bottom = fig.subplots(2, 1, sharex=True)
     lines = {}
     for i, node in enumerate(result.outputs):
-        ln, = top.plot(t_ms, w.signal(node), color=COLOURS[i % len(COLOURS)], linewidth=0.8, label=node)
+        ln, = top.plot(t_ms, w.signal(node), color=COLOURS[i % len(COLOURS)], linewidth=0.8,
+                       linestyle=DASHES[i % len(DASHES)], label=node)
         lines[node] = ln
     top.set_ylabel("signal (V)")
     top.legend(fontsize=8, loc="upper right", frameon=False)
     for i, g in enumerate(result.grids):
         avg = result.averages[g.node] - g.before_v
         ln, = bottom.plot(t_ms, avg, color=COLOURS[i % len(COLOURS)], linewidth=1.4,
-                          label=f"{g.stage} grid ({g.coupling})")
+                          linestyle=DASHES[i % len(DASHES)], label=f"{g.stage} grid ({g.coupling})")
         lines[f"{g.stage} grid average"] = ln
     for ax in (top, bottom):
         ax.axvspan(result.start_s * 1e3, result.end_s * 1e3, color="#f2e6d0", zorder=0)
@@ -89,7 +92,7 @@ def plot_burst(result, *, title: str | None = None) -> WaveformPlot:
     bottom.set_ylabel("grid average shift (V)")
     bottom.set_xlabel("time (ms)")
     bottom.legend(fontsize=8, loc="lower right", frameon=False)
-    top.set_title(f"burst {result.loud_v * 1e3:.4g} mV then {result.quiet_v * 1e3:.4g} mV at {result.f_hz:g} Hz "
+    top.set_title(f"burst {format_si(result.loud_v, 'V', 4)} then {format_si(result.quiet_v, 'V', 4)} at {result.f_hz:g} Hz "
                   "(shaded: the burst)", fontsize=10, loc="left")
     if title:
         fig.suptitle(title)

@@ -146,3 +146,14 @@ def test_peaks_and_dips_of_the_analysis_are_marked_at_their_place():
     (mark,) = plot.extremum_marks
     assert_allclose(mark.get_xdata(), [shape.peaks[0].f_hz])
     assert_allclose(mark.get_ydata(), [shape.peaks[0].gain_db])
+
+
+def test_a_further_trace_is_drawn_over_the_chain_output(resp):
+    """A stage output whose response nearly equals the chain output's (behind a
+    coupling capacitor, as here above the low corner) must stay visible: the
+    heavier solid output trace lies underneath, the dashed one on top."""
+    plot = bode(resp, nodes=["output", "V1.plate"])
+    out_line, stage_line = plot.lines
+    assert out_line.get_linestyle() == "-" and stage_line.get_linestyle() != "-"
+    assert stage_line.get_zorder() > out_line.get_zorder()
+    assert stage_line.get_linewidth() < out_line.get_linewidth()
