@@ -69,6 +69,7 @@ __all__ = [
     "DirectSolver",
     "SparseSolver",
     "BandSolver",
+    "det_phases",
     "direct_solver",
     "Changes",
     "removal_changes",
@@ -724,6 +725,14 @@ class BandSolver:
                 win, spare = spare, win
         return piv, low, upp
 
+    def det_phase(self) -> np.ndarray:
+        """``arg det Y(s)`` (rad, not wrapped) at every frequency: the sum of
+        the arguments of ``U``'s diagonal plus ``π`` per row interchange
+        (``det = ±Π u_kk``; the reordering is symmetric and the scale
+        factors positive, so neither changes the argument).  0 where ``Y(s)``
+        is singular."""
+        return np.angle(self._u[:, 0]).sum(axis=0) + np.pi * np.count_nonzero(self._piv, axis=0)
+
     def solve(self, b: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
         """Solutions (nf, N) for a constant (N,) or per-frequency (nf, N) RHS
         (with ``rows``: at those frequencies only, as in :meth:`DirectSolver.solve`)."""
@@ -798,6 +807,29 @@ def band_factor_bytes(n_unknowns: int, n_freq: int, lower: int, upper: int) -> i
     unknown, ``lower`` multipliers and ``lower + upper + 1`` entries of ``U``
     (complex), a pivot index and a row scale (8 bytes each)."""
     return n_freq * n_unknowns * ((2 * lower + upper + 1) * 16 + 16)
+
+
+#: the determinants of :func:`det_phases` are formed in blocks of frequencies
+#: whose band factors take at most this many bytes
+DET_BLOCK_BYTES = 32 * 2**20
+
+
+def det_phases(g: np.ndarray, c: np.ndarray, s: np.ndarray) -> np.ndarray | None:
+    """``arg det (G + s·C)`` (rad, not wrapped) at every ``s`` by banded LU
+    factorisations (:meth:`BandSolver.det_phase`), in blocks of at most
+    :data:`DET_BLOCK_BYTES` of factors; None when the reordered band is not
+    narrow (then a dense or sparse LU per frequency is the better way)."""
+    n = g.shape[0]
+    plan = _band_plan((g != 0.0) | (c != 0.0), 1)
+    if plan is None:
+        return None
+    order, lo, up = plan
+    block = max(1, DET_BLOCK_BYTES // band_factor_bytes(n, 1, lo, up))
+    out = np.empty(s.size)
+    for start in range(0, s.size, block):
+        part = s[start:start + block]
+        out[start:start + part.size] = BandSolver(g, c, part, order).det_phase()
+    return out
 
 
 def direct_solver(g: np.ndarray, c: np.ndarray, s: np.ndarray):

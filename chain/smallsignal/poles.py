@@ -581,8 +581,10 @@ WINDING_MAX_DEPTH = 30
 
 
 class _Determinant:
-    """``(log|det Y(s)|, arg det Y(s))`` of ``Y(s) = G + s·C`` by LU factorisations
-    (sparse past :data:`chain.smallsignal.mna.SPARSE_FROM` unknowns)."""
+    """``arg det Y(s)`` of ``Y(s) = G + s·C`` by LU factorisations: banded and
+    batched over the points when the reordered band is narrow
+    (:func:`chain.smallsignal.mna.det_phases`), else one dense (or, past
+    :data:`chain.smallsignal.mna.SPARSE_FROM` unknowns, sparse) LU per point."""
 
     def __init__(self, mna: Mna):
         from chain.smallsignal.mna import SPARSE_FROM
@@ -593,6 +595,15 @@ class _Determinant:
             cols, rows = np.nonzero((mna.g != 0.0).T | (mna.c != 0.0).T)  # column-major: CSC order
             self.rows, self.indptr, self.n = rows, np.searchsorted(cols, np.arange(mna.size + 1)), mna.size
             self.gd, self.cd = mna.g[rows, cols], mna.c[rows, cols]
+
+    def phases(self, s: np.ndarray) -> np.ndarray:
+        """``arg det Y(s)`` (rad, up to whole turns) at every point of ``s``."""
+        from chain.smallsignal.mna import det_phases
+
+        banded = det_phases(self.g, self.c, s) if s.size > 1 else None
+        if banded is not None:
+            return banded
+        return np.array([self.phase(sk) for sk in s])
 
     def phase(self, s: complex) -> float:
         if not self.sparse:
@@ -668,13 +679,7 @@ def rhp_count(mna: Mna, estimates: np.ndarray | None = None) -> int | None:
     take[::max(1, 200 // WINDING_PER_DECADE)] = True
     take[-1] = True
     w = fine[take]
-    det = _Determinant(mna)
-    total = 0.0
-    prev_w, prev_ph = 0.0, det.phase(0j)
-    for wk in w:
-        ph = det.phase(1j * wk)
-        total += _walk(det, prev_w, prev_ph, float(wk), ph, 0)
-        prev_w, prev_ph = float(wk), ph
+    total = _winding(_Determinant(mna), w)
     count = (d - 2.0 * total / math.pi) / 2.0
     nearest = round(count)
     if abs(count - nearest) > 0.1 or nearest < 0:
@@ -682,16 +687,32 @@ def rhp_count(mna: Mna, estimates: np.ndarray | None = None) -> int | None:
     return int(nearest)
 
 
-def _wrapped(a: float) -> float:
+def _wrapped(a):
+    """``a`` (rad, scalar or array) wrapped into [−π, π)."""
     return (a + math.pi) % (2.0 * math.pi) - math.pi
 
 
-def _walk(det: _Determinant, w0: float, ph0: float, w1: float, ph1: float, depth: int) -> float:
-    """Phase change of det Y(jω) from ``w0`` to ``w1``, halving the interval
-    (geometrically) while a step exceeds :data:`WINDING_MAX_STEP`."""
-    step = _wrapped(ph1 - ph0)
-    if abs(step) <= WINDING_MAX_STEP or depth >= WINDING_MAX_DEPTH:
-        return step
-    wm = math.sqrt(w0 * w1) if w0 > 0.0 else w1 / 2.0
-    phm = det.phase(1j * wm)
-    return _walk(det, w0, ph0, wm, phm, depth + 1) + _walk(det, wm, phm, w1, ph1, depth + 1)
+def _winding(det: _Determinant, w: np.ndarray) -> float:
+    """Phase change (rad) of det Y(jω) from ω = 0 along the samples ``w``
+    (rad/s, increasing): each interval whose wrapped step exceeds
+    :data:`WINDING_MAX_STEP` is halved (geometrically), at most
+    :data:`WINDING_MAX_DEPTH` times; the new midpoints of every interval are
+    evaluated together, one batch per halving."""
+    points = np.r_[0.0, w]
+    ph = det.phases(1j * points)
+    w0, w1, ph0, ph1 = points[:-1], points[1:], ph[:-1], ph[1:]
+    total = 0.0
+    for depth in range(WINDING_MAX_DEPTH + 1):
+        step = _wrapped(ph1 - ph0)
+        done = np.abs(step) <= WINDING_MAX_STEP
+        if depth == WINDING_MAX_DEPTH:
+            done[:] = True
+        total += float(step[done].sum())
+        w0, w1, ph0, ph1 = w0[~done], w1[~done], ph0[~done], ph1[~done]
+        if w0.size == 0:
+            break
+        wm = np.where(w0 > 0.0, np.sqrt(w0 * w1), w1 / 2.0)
+        phm = det.phases(1j * wm)
+        w0, w1 = np.r_[w0, wm], np.r_[wm, w1]
+        ph0, ph1 = np.r_[ph0, phm], np.r_[phm, ph1]
+    return total

@@ -88,3 +88,24 @@ def test_a_wide_band_keeps_the_dense_or_sparse_solve():
     for n, kind in ((20, M.DirectSolver), (70, M.SparseSolver)):
         g = rng.normal(size=(n, n))
         assert isinstance(M.direct_solver(g, np.zeros((n, n)), s), kind)
+
+
+@pytest.mark.parametrize("n, lo, up", [(60, 3, 3), (41, 1, 2)])
+@pytest.mark.parametrize("block_bytes", [M.DET_BLOCK_BYTES, 1])
+def test_determinant_phase_agrees_with_numpy_slogdet(n, lo, up, block_bytes, monkeypatch):
+    """arg det Y(s) from the banded factors (chain.smallsignal.mna.det_phases)
+    against numpy.linalg.slogdet of the same matrices (the reference library),
+    all points in one block and one point per block."""
+    monkeypatch.setattr(M, "DET_BLOCK_BYTES", block_bytes)
+    g, c = banded(n, lo, up, seed=3 * n)
+    s = np.r_[0.0, 2j * np.pi * np.geomspace(1.0, 1e7, 41), -3e4 + 2e5j]
+    got = M.det_phases(g, c, s)
+    assert got is not None
+    ref = np.angle([np.linalg.slogdet(g + sk * c)[0] for sk in s])
+    assert np.allclose(np.angle(np.exp(1j * (got - ref))), 0.0, atol=1e-9)
+
+
+def test_a_wide_band_gives_no_banded_determinant():
+    rng = np.random.default_rng(0)
+    g = rng.normal(size=(12, 12))
+    assert M.det_phases(g, np.eye(12), np.array([1j, 2j])) is None

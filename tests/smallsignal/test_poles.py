@@ -267,3 +267,32 @@ def test_rhp_count_of_a_negative_conductance_tank():
         (s,) = pencil_eigen(mna)
         assert_allclose(s.real, (g_neg - 1e-3) / 1e-6, rtol=1e-9)
         assert rhp_count(mna) == expected
+
+
+@pytest.mark.parametrize("g_neg, expected", [(0.5e-3, 0), (2e-3, 1)])
+def test_rhp_count_with_banded_determinants(g_neg, expected):
+    """The negative-conductance tank above beside a separate 40-section RC
+    ladder (a connected part of its own, so det Y = det Y_ladder · det Y_tank):
+    the ladder's poles are negative real (passive RC network: e.g. Van
+    Valkenburg, "Introduction to Modern Network Synthesis", RC driving-point
+    functions), so the count is the tank's, now formed from banded
+    determinants batched over the points."""
+    from chain.smallsignal.mna import det_phases
+    from chain.smallsignal.poles import rhp_count
+
+    ladder = 40
+    stamps = [Stamp("R", "R", 0, 1, 1e-3), Stamp("C", "C", 0, -1, 1e-6),
+              Stamp("N", "G", 0, -1, -g_neg, cp=0, cn=-1), Stamp("Rg", "R", 2, -1, 1e-4)]
+    for i in range(ladder):
+        node = 2 + i
+        stamps.append(Stamp(f"C{i}", "C", node, -1, 1e-9 * (1 + i % 3)))
+        if i + 1 < ladder:
+            stamps.append(Stamp(f"R{i}", "R", node, node + 1, 1.0 / (1e3 * (1 + i % 5))))
+    size = 2 + ladder + 1
+    src = Stamp("sig", "V", 1, -1, 1.0, branch=size - 1)
+    stamps.append(src)
+    g, c = _matrices(size, stamps)
+    names = ("a", "src") + tuple(f"n{i}" for i in range(ladder))
+    mna = Mna(names, {**{k: i for i, k in enumerate(names)}, GROUND: -1}, g, c, tuple(stamps), src)
+    assert det_phases(g, c, np.array([1j, 2j])) is not None  # the banded path is taken
+    assert rhp_count(mna) == expected
