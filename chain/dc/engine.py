@@ -49,7 +49,7 @@ Solving
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Literal, Mapping, cast, overload
+from typing import Any, Literal, Mapping, cast, overload
 
 import logging
 import numpy as np
@@ -89,6 +89,13 @@ _GUESS_SWEEPS = 6
 PROGRESS = logging.getLogger("chain.progress")
 #: Newton iterations allowed from a caller's guess before the stage-by-stage guess takes over
 _GUESS_MAX_ITER = 40
+#: unknowns from which a system is solved by sparse LU instead of dense LU: one Newton
+#: step of a cascade's headroom network took about the same time both ways near 100
+#: unknowns (one BLAS thread), dense being faster below and sparse above
+SPARSE_MIN_SIZE = 120
+#: right-hand sides solved together by :meth:`NetworkSystem.solve_jacobian` in the sparse
+#: form, so that its work space stays linear in the size
+_SOLVE_BLOCK = 32
 
 
 @dataclass(frozen=True, slots=True)
@@ -202,9 +209,19 @@ class NetworkSystem:
     """A circuit compiled for repeated DC solves.
 
     Build it with :func:`compile_network`.  The linear part (resistors,
-    gmin, voltage-branch incidence) is stamped once into a dense matrix; the
+    gmin, voltage-branch incidence) is stamped once into a matrix; the
     triodes are evaluated vectorised (one call per distinct tube model) and
     scattered into residual and Jacobian through precomputed index arrays.
+
+    Small systems keep that matrix dense and solve each Newton step by dense
+    LU (LAPACK).  From :data:`SPARSE_MIN_SIZE` unknowns up (long chains) it is
+    kept in compressed-column form over the Jacobian's fixed pattern and each
+    step is solved by sparse LU (SuperLU, partial pivoting, column order by
+    approximate minimum degree: scipy.sparse.linalg.splu).  A chain's nodal
+    matrix has a few entries per unknown, so a Newton step then costs time
+    and memory linear in the size instead of the cube and square; the supply
+    node, shared by every stage's rail, gives no band ordering a narrow band,
+    which is why it is a general sparse LU and not a band solve.
 
     Attributes
     ----------
@@ -223,10 +240,12 @@ class NetworkSystem:
         Triodes in :attr:`Circuit.triodes` order.
     size : int
         Length of the unknown vector.
+    sparse : bool
+        True when the linear algebra is sparse (see above).
     """
 
     def __init__(self, circuit: Circuit, *, held_caps: Mapping[str, float] | None = None,
-                 gmin_s: float = 1e-12):
+                 gmin_s: float = 1e-12, sparse: bool | None = None):
         held = {name: float(v) for name, v in (held_caps or {}).items()}
         unknown = sorted(set(held) - {c.name for c in circuit.capacitors})
         if unknown:
@@ -241,10 +260,13 @@ class NetworkSystem:
         self._vindex[GROUND] = -1
         self._stamp(circuit, held)
         self.size = self._n + len(self.branches)
-        self._a = self._stamp_linear()
-        self._a_abs = np.abs(self._a)
+        self.sparse = self.size >= SPARSE_MIN_SIZE if sparse is None else bool(sparse)
         self._compile_triodes(circuit)
+        #: the linear matrix: a dense array, or a scipy CSC matrix over the Jacobian's pattern
+        self._a: Any = self._stamp_sparse() if self.sparse else self._stamp_linear()
+        self._a_abs: Any = abs(self._a)
         self._z: np.ndarray | None = None
+        self._lin_lu: Any = None
         self._d: np.ndarray | None = None
         self._dvpk: np.ndarray | None = None
         self._dvgk: np.ndarray | None = None
@@ -313,6 +335,77 @@ class NetworkSystem:
                     a[node, n + j] += sign
                     a[n + j, node] += sign
         return a
+
+    def _stamp_sparse(self) -> Any:
+        """The linear matrix in compressed-column form (scipy CSC) over the
+        Jacobian's whole pattern: the linear entries as :meth:`_stamp_linear`
+        sums them, every node's diagonal, and each triode entry as an explicit
+        zero.  Sets ``_j_slot`` (each triode entry's place in the data array)
+        and ``_diag_slot`` (each node diagonal's)."""
+        from scipy.sparse import csc_matrix
+
+        n, size = self._n, self.size
+        rows: list[int] = []
+        cols: list[int] = []
+        vals: list[float] = []
+        for i, j, g in self._conductances:
+            for r, c, v in ((i, i, g), (j, j, g), (i, j, -g), (j, i, -g)):
+                if r >= 0 and c >= 0:
+                    rows.append(r)
+                    cols.append(c)
+                    vals.append(v)
+        for j, (ipos, ineg) in enumerate(self._branch_ends):
+            for node, sign in ((ipos, 1.0), (ineg, -1.0)):
+                if node >= 0:
+                    rows += [node, n + j]
+                    cols += [n + j, node]
+                    vals += [sign, sign]
+        diag = np.arange(n, dtype=np.intp)
+        all_rows = np.concatenate([np.array(rows, dtype=np.intp), diag, self._j_pos // size])
+        all_cols = np.concatenate([np.array(cols, dtype=np.intp), diag, self._j_pos % size])
+        values = np.concatenate([np.array(vals, dtype=float), np.full(n, self.gmin_s), np.zeros(self._j_pos.size)])
+        key = all_cols.astype(np.int64) * size + all_rows
+        uniq, slot = np.unique(key, return_inverse=True)
+        slot = slot.reshape(-1)
+        data = np.bincount(slot, weights=values, minlength=uniq.size)
+        indptr = np.concatenate([[0], np.cumsum(np.bincount(uniq // size, minlength=size))])
+        first = len(rows)
+        self._diag_slot = slot[first:first + n]
+        self._j_slot = slot[first + n:]
+        return csc_matrix((data, (uniq % size).astype(np.int32), indptr.astype(np.int32)), shape=(size, size))
+
+    def _with_data(self, data: np.ndarray) -> Any:
+        """A CSC matrix of the system's pattern holding ``data``."""
+        from scipy.sparse import csc_matrix
+
+        return csc_matrix((data, self._a.indices, self._a.indptr), shape=self._a.shape)
+
+    def _dense(self, m: Any) -> np.ndarray:
+        """``m`` as a dense array."""
+        return m.toarray() if self.sparse else m
+
+    def _linear_solve(self, m: Any, rhs: np.ndarray) -> np.ndarray:
+        """``m⁻¹·rhs`` by LU (dense LAPACK or SuperLU, see the class docstring).
+
+        Raises
+        ------
+        numpy.linalg.LinAlgError
+            When ``m`` is singular.
+        """
+        if not self.sparse:
+            return np.linalg.solve(m, rhs)
+        return self._factor(m).solve(rhs)
+
+    def _factor(self, m: Any) -> Any:
+        """SuperLU factors of a sparse ``m`` (LinAlgError when singular or not finite)."""
+        from scipy.sparse.linalg import splu
+
+        if not np.all(np.isfinite(m.data)):
+            raise np.linalg.LinAlgError("matrix has entries that are not finite")
+        try:
+            return splu(m)
+        except RuntimeError as exc:  # SuperLU: "Factor is exactly singular"
+            raise np.linalg.LinAlgError(str(exc)) from None
 
     def _compile_triodes(self, circuit: Circuit) -> None:
         """Index arrays for the vectorised triode evaluation and scatter."""
@@ -416,21 +509,43 @@ class NetworkSystem:
         Independent of the right-hand side, so of the signal voltage.  Its
         solve with a unit current injected at a node gives the small-signal
         (DC-coupled, capacitors as in this system) response to that current.
+        A dense array (size²); :meth:`solve_jacobian` solves with it without
+        forming that in a sparse system.
         """
         jac = self._residual_jacobian(np.asarray(x, dtype=float), np.zeros(self.size), self._a)[1]
         assert jac is not None
-        return jac
+        return self._dense(jac)
+
+    def solve_jacobian(self, x: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+        """``J(x)⁻¹·rhs`` (``rhs`` of shape (size,) or (size, k)), J the :meth:`jacobian`.
+
+        Dense systems: one LAPACK solve of the dense Jacobian.  Sparse ones:
+        one sparse LU, the columns solved in blocks of ``_SOLVE_BLOCK``.
+        """
+        jac = self._residual_jacobian(np.asarray(x, dtype=float), np.zeros(self.size), self._a)[1]
+        if not self.sparse:
+            return np.linalg.solve(jac, rhs)
+        lu = self._factor(jac)
+        rhs = np.asarray(rhs, dtype=float)
+        if rhs.ndim == 1:
+            return lu.solve(rhs)
+        out = np.empty_like(rhs)
+        for lo in range(0, rhs.shape[1], _SOLVE_BLOCK):
+            out[:, lo:lo + _SOLVE_BLOCK] = lu.solve(np.ascontiguousarray(rhs[:, lo:lo + _SOLVE_BLOCK]))
+        return out
 
     @overload
-    def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: np.ndarray, *,
-                           jacobian: Literal[True] = ...) -> tuple[np.ndarray, np.ndarray, np.ndarray]: ...
+    def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: Any, *,
+                           jacobian: Literal[True] = ...) -> tuple[np.ndarray, Any, np.ndarray]: ...
 
     @overload
-    def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: np.ndarray, *,
+    def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: Any, *,
                            jacobian: Literal[False]) -> tuple[np.ndarray, None, np.ndarray]: ...
 
-    def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: np.ndarray, *,
-                           jacobian: bool = True) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
+    def _residual_jacobian(self, x: np.ndarray, b: np.ndarray, a: Any, *,
+                           jacobian: bool = True) -> tuple[np.ndarray, Any, np.ndarray]:
+        """Residual, Jacobian (the type of ``a``: dense array or CSC matrix, or None
+        when not asked for) and each triode's |Ip| + |Ig| (A) at ``x``."""
         f = a @ x - b
         if not self.triode_names:
             return f, (a if jacobian else None), np.zeros(0)
@@ -442,15 +557,18 @@ class NetworkSystem:
             if jacobian:
                 d = np.stack((gp, gm, gg), axis=1)
                 vals = np.einsum("ij,ij->i", self._j_c, d[self._j_tri])
-                jac = a + np.bincount(self._j_pos, weights=vals, minlength=self.size * self.size).reshape(
-                    self.size, self.size)
+                if self.sparse:
+                    jac = self._with_data(a.data + np.bincount(self._j_slot, weights=vals, minlength=a.data.size))
+                else:
+                    jac = a + np.bincount(self._j_pos, weights=vals, minlength=self.size * self.size).reshape(
+                        self.size, self.size)
         return f, jac, np.abs(ip) + np.abs(ig)
 
     def _merit(self, f: np.ndarray) -> float:
         n = self._n
         return float(f[:n] @ f[:n]) + _BRANCH_WEIGHT_S ** 2 * float(f[n:] @ f[n:])
 
-    def _residual_ok(self, x: np.ndarray, f: np.ndarray, a_abs: np.ndarray, tcur: np.ndarray,
+    def _residual_ok(self, x: np.ndarray, f: np.ndarray, a_abs: Any, tcur: np.ndarray,
                      options: SolveOptions, b: np.ndarray) -> bool:
         """Every node row within tol_a (plus rounding), every branch row within tol_v."""
         n = self._n
@@ -461,12 +579,12 @@ class NetworkSystem:
         branch_ok = fb.size == 0 or bool(np.all(fb <= options.tol_v + _ROUNDING_RTOL * np.abs(b[n:])))
         if fn.size == 0 or float(fn.max()) <= options.tol_a:
             return branch_ok
-        scale = a_abs[:n] @ np.abs(x)
+        scale = (a_abs @ np.abs(x))[:n] if self.sparse else a_abs[:n] @ np.abs(x)
         if tcur.size:
             scale += np.bincount(self._f_rows, weights=tcur[self._f_tri], minlength=self.size)[:n]
         return branch_ok and bool(np.all(fn <= options.tol_a + _ROUNDING_RTOL * scale))
 
-    def _at_rounding_floor(self, x: np.ndarray, f: np.ndarray, a_abs: np.ndarray, tcur: np.ndarray,
+    def _at_rounding_floor(self, x: np.ndarray, f: np.ndarray, a_abs: Any, tcur: np.ndarray,
                            b: np.ndarray) -> bool:
         """Every row's residual within the rounding of the terms that make it up
         (``_ROUNDING_RTOL`` times the sum of their magnitudes)."""
@@ -480,7 +598,7 @@ class NetworkSystem:
 
     # ---------------------------------------------------------------- Newton
     def _newton(self, x: np.ndarray, b: np.ndarray, options: SolveOptions, *, max_iter: int,
-                a: np.ndarray | None = None, line_search: bool = False
+                a: Any = None, line_search: bool = False
                 ) -> tuple[np.ndarray, int, bool, np.ndarray]:
         """Damped Newton from ``x``; returns (x, iterations, converged, residual).
 
@@ -492,7 +610,7 @@ class NetworkSystem:
         is within tolerance at the returned point.
         """
         a = self._a if a is None else a
-        a_abs = self._a_abs if a is self._a else np.abs(a)
+        a_abs = self._a_abs if a is self._a else abs(a)
         n = self._n
         x = np.array(x, dtype=float)
         f, jac, tcur = self._residual_jacobian(x, b, a)
@@ -501,7 +619,7 @@ class NetworkSystem:
         phi = self._merit(f)
         for it in range(1, max_iter + 1):
             try:
-                dx = np.linalg.solve(jac, -f)
+                dx = self._linear_solve(jac, -f)
             except np.linalg.LinAlgError:
                 return x, it, False, f
             if not np.all(np.isfinite(dx)):
@@ -540,17 +658,29 @@ class NetworkSystem:
         return x, max_iter, False, f
 
     # ---------------------------------------------------------- start guess
-    def _prepare_guess(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """Inverse of the linear matrix and each triode's load/bias slopes:
+    def _prepare_guess(self) -> tuple[np.ndarray | None, np.ndarray, np.ndarray, np.ndarray]:
+        """Inverse of the linear matrix (None in a sparse system, which keeps its
+        LU factors instead) and each triode's load/bias slopes:
         ``(z, d, dvpk, dvgk)``, computed once."""
-        if self._z is not None and self._d is not None and self._dvpk is not None and self._dvgk is not None:
+        if self._d is not None and self._dvpk is not None and self._dvgk is not None:
             return self._z, self._d, self._dvpk, self._dvgk
-        self._z = np.linalg.inv(self._a)
         n, t = self._n, len(self.triode_names)
-        zpad = np.zeros((self.size, n + 1))
-        zpad[:, :n] = self._z[:, :n]
-        # response of x to a unit plate current of triode t (leaves p, enters k)
-        self._d = zpad[:, self._k] - zpad[:, self._p] if t else np.zeros((self.size, 0))
+        if self.sparse:
+            self._lin_lu = self._factor(self._a)
+            # response of x to a unit plate current of triode t (leaves p, enters k)
+            unit = np.zeros((n + 1, t))
+            cols = np.arange(t)
+            np.add.at(unit, (self._k, cols), 1.0)
+            np.add.at(unit, (self._p, cols), -1.0)
+            rhs = np.zeros((self.size, t))
+            rhs[:n] = unit[:n]
+            self._d = self._lin_lu.solve(rhs) if t else np.zeros((self.size, 0))
+        else:
+            self._z = np.linalg.inv(self._a)
+            zpad = np.zeros((self.size, n + 1))
+            zpad[:, :n] = self._z[:, :n]
+            # response of x to a unit plate current of triode t (leaves p, enters k)
+            self._d = zpad[:, self._k] - zpad[:, self._p] if t else np.zeros((self.size, 0))
         dpad = np.zeros((n + 1, t))
         dpad[:n] = self._d[:n]
         cols = np.arange(t)
@@ -560,8 +690,12 @@ class NetworkSystem:
 
     def cold_solution(self, signal_v: float = 0.0) -> np.ndarray:
         """The unknown vector with every triode drawing no current (cold tubes), V/A."""
+        return self._linear_solution(self.rhs(signal_v))
+
+    def _linear_solution(self, b: np.ndarray) -> np.ndarray:
+        """Solution of the linear network alone (triodes drawing no current) for ``b``."""
         z, _, _, _ = self._prepare_guess()
-        return z @ self.rhs(signal_v)
+        return z @ b if z is not None else self._lin_lu.solve(b)
 
     def initial_guess(self, signal_v: float = 0.0) -> np.ndarray:
         """Stage-by-stage starting point for Newton.
@@ -570,8 +704,8 @@ class NetworkSystem:
         line given the present currents of all the others (grid current
         neglected), repeated for a few Gauss–Seidel sweeps.
         """
-        z, d, dvpk, dvgk = self._prepare_guess()
-        x_base = z @ self.rhs(signal_v)
+        _, d, dvpk, dvgk = self._prepare_guess()
+        x_base = self._linear_solution(self.rhs(signal_v))
         t = len(self.triode_names)
         if t == 0:
             return x_base
@@ -711,7 +845,10 @@ class NetworkSystem:
             if g <= self.gmin_s:
                 break
             a = self._a.copy()
-            a[np.arange(self._n), np.arange(self._n)] += g
+            if self.sparse:
+                a.data[self._diag_slot] += g
+            else:
+                a[np.arange(self._n), np.arange(self._n)] += g
             x_new, it, ok, _ = self._newton(x, b, options, max_iter=sub_iter, a=a)
             total += it
             if not ok:
@@ -731,7 +868,7 @@ class NetworkSystem:
             return self._residual_jacobian(x, b, self._a, jacobian=False)[0]
 
         def jac(x):
-            return self._residual_jacobian(x, b, self._a)[1]
+            return self._dense(self._residual_jacobian(x, b, self._a)[1])
 
         with np.errstate(over="ignore", invalid="ignore"):
             sol = root(fun, x0, jac=jac, method="hybr", options={"maxfev": max(options.max_iter, 1)})
@@ -964,7 +1101,7 @@ def _load_point(model: TriodeModel, vpk0: float, dvpk: float, vgk0: float, dvgk:
 
 
 def compile_network(circuit: Circuit, *, held_caps: Mapping[str, float] | None = None,
-                    gmin_s: float = 1e-12) -> NetworkSystem:
+                    gmin_s: float = 1e-12, sparse: bool | None = None) -> NetworkSystem:
     """Compile a circuit for repeated DC solves.
 
     Parameters
@@ -975,12 +1112,15 @@ def compile_network(circuit: Circuit, *, held_caps: Mapping[str, float] | None =
         Held capacitors become ideal sources; all others are open.
     gmin_s : float
         Conductance from every node to ground, S.
+    sparse : bool, optional
+        Force sparse (True) or dense (False) linear algebra; by default sparse
+        from :data:`SPARSE_MIN_SIZE` unknowns up (see :class:`NetworkSystem`).
 
     Returns
     -------
     NetworkSystem
     """
-    return NetworkSystem(circuit, held_caps=held_caps, gmin_s=gmin_s)
+    return NetworkSystem(circuit, held_caps=held_caps, gmin_s=gmin_s, sparse=sparse)
 
 
 def solve_network(circuit: Circuit, *, signal_v: float = 0.0, held_caps: Mapping[str, float] | None = None,

@@ -423,12 +423,12 @@ def _triode_onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecor
         values = curves.vgk_v[triode][idx] - model.grid_onset_v
 
         def quantity(x: np.ndarray) -> float:
-            return float(net.triodes(x[None, :])[0][0, t] - model.grid_onset_v)
+            return net.triode_state(x, t)[0] - model.grid_onset_v
     else:
         values = threshold - curves.ip_a[triode][idx]
 
         def quantity(x: np.ndarray) -> float:
-            return float(threshold - net.triodes(x[None, :])[1][0, t])
+            return threshold - net.triode_state(x, t)[1]
     active = values >= 0.0
     start = 0
     if active[0]:

@@ -102,7 +102,6 @@ def seen_resistances(circuit: Circuit, dc: DcSolution) -> dict[str, float]:
     options = dc.options
     system = compile_network(circuit, gmin_s=options.gmin_s)
     x, _, _ = system.solve_vector(0.0, system.vector_from_voltages(dc.node_v, 0.0), options=options)
-    jac = system.jacobian(x)
     index = {name: i for i, name in enumerate(system.nodes)}
     rhs = np.zeros((system.size, len(circuit.capacitors)))
     for k, cap in enumerate(circuit.capacitors):
@@ -111,7 +110,7 @@ def seen_resistances(circuit: Circuit, dc: DcSolution) -> dict[str, float]:
         if cap.b != GROUND:
             rhs[index[cap.b], k] -= 1.0
     # residual rows are currents leaving a node: an injected current I gives J·dx = I·e
-    dx = np.linalg.solve(jac, rhs)
+    dx = system.solve_jacobian(x, rhs)
     out = {}
     for k, cap in enumerate(circuit.capacitors):
         va = dx[index[cap.a], k] if cap.a != GROUND else 0.0
@@ -332,6 +331,16 @@ class MidBandNetwork:
             ip[:, i] = plate_current(model, vp - vk, vg - vk)
             ig[:, i] = grid_current(model, vg - vk)
         return vgk, ip, ig
+
+    def triode_state(self, x: np.ndarray, index: int) -> tuple[float, float]:
+        """Vgk (V) and plate current (A) of one triode at one unknown vector,
+        evaluated exactly as :meth:`triodes` evaluates it (the same arithmetic on
+        one-point arrays), without evaluating the others."""
+        from chain.tubes import plate_current
+
+        cols = self._pins[index]
+        vp, vg, vk = (np.zeros(1) if c < 0 else np.array([x[c]], dtype=float) for c in cols)
+        return float((vg - vk)[0]), float(plate_current(self._models[index], vp - vk, vg - vk)[0])
 
     def triode_point(self, x: np.ndarray, index: int) -> tuple[float, float]:
         """Vgk (V) and plate current (A) of one triode at one unknown vector."""
