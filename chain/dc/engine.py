@@ -466,6 +466,27 @@ class NetworkSystem:
             b *= scale
         return b
 
+    def newton_and_tangent(self, x: np.ndarray, signal_v: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Residual, Newton step and tangent at ``x`` for source voltage ``signal_v``.
+
+        With ``F(x, v) = A·x + T(x) − b(v)`` the residual (:meth:`residual`) and
+        ``J`` its Jacobian in ``x``: returns ``F``, the Newton step ``−J⁻¹·F``
+        and the tangent ``J⁻¹·∂b/∂v`` (V and A per volt of source: how the
+        solution moves with the source, to first order), both from one LU.
+
+        Raises
+        ------
+        numpy.linalg.LinAlgError
+            When ``J`` is singular.
+        """
+        x = np.asarray(x, dtype=float)
+        f, jac, _ = self._residual_jacobian(x, self.rhs(signal_v), self._a)
+        db_dv = np.zeros(self.size)
+        if self._signal_branch >= 0:
+            db_dv[self._n + self._signal_branch] = 1.0
+        both = self._linear_solve(jac, np.stack([-f, db_dv], axis=1))
+        return f, both[:, 0], both[:, 1]
+
     def _padded_v(self, x: np.ndarray) -> np.ndarray:
         v = np.empty(self._n + 1)
         v[:self._n] = x[:self._n]

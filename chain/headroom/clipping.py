@@ -377,13 +377,26 @@ def _side(curves: TransferCurves, polarity: str) -> np.ndarray:
     return np.arange(zero, -1, -1)
 
 
-def _refine(net: MidBandNetwork, quantity: Callable[[np.ndarray], float], v_a: float, x_a: np.ndarray,
+def _refine(net: MidBandNetwork, quantity: Callable[[np.ndarray], float],
+            slope: Callable[[np.ndarray, np.ndarray], np.ndarray], v_a: float, x_a: np.ndarray,
             v_b: float, x_b: np.ndarray) -> tuple[float, np.ndarray]:
-    """Source voltage between v_a and v_b where ``quantity`` changes sign, and its state."""
-    from scipy.optimize import brentq
+    """Source voltage between v_a and v_b where ``quantity`` changes sign, and its state.
 
+    Newton's method on the network bordered by ``quantity = 0``
+    (:meth:`MidBandNetwork.solve_where`, ``slope`` its directional derivative)
+    from the linear interpolation between the two swept points: a few LUs.
+    Should it leave the bracket or stall, Brent's method on full solves
+    (scipy.optimize.brentq, source voltage to 1e-10 relative).
+    """
     def guess(v: float) -> np.ndarray:
         return x_a + (x_b - x_a) * ((v - v_a) / (v_b - v_a))
+
+    qa, qb = quantity(x_a), quantity(x_b)
+    v0 = v_a + (qa / (qa - qb) if qa != qb else 0.5) * (v_b - v_a)
+    found = net.solve_where(quantity, slope, v0, guess(v0), (v_a, v_b))
+    if found is not None:
+        return found
+    from scipy.optimize import brentq
 
     def f(v: float) -> float:
         return quantity(net.solve(v, guess(v)))
@@ -424,11 +437,20 @@ def _triode_onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecor
 
         def quantity(x: np.ndarray) -> float:
             return net.triode_state(x, t)[0] - model.grid_onset_v
+
+        def slope(x: np.ndarray, ys: np.ndarray) -> np.ndarray:
+            _, g, k = net.triode_pins(ys, t)
+            return g - k
     else:
         values = threshold - curves.ip_a[triode][idx]
 
         def quantity(x: np.ndarray) -> float:
             return threshold - net.triode_state(x, t)[1]
+
+        def slope(x: np.ndarray, ys: np.ndarray) -> np.ndarray:
+            gm_s, gp_s = net.triode_slopes(x, t)
+            p, g, k = net.triode_pins(ys, t)
+            return -(gp_s * (p - k) + gm_s * (g - k))
     active = values >= 0.0
     start = 0
     if active[0]:
@@ -447,7 +469,7 @@ def _triode_onset(net: MidBandNetwork, curves: TransferCurves, stage: StageRecor
     nodes = (stage.input, *stage.outputs.values())
     dc_v = net.node_voltages(net.x0[None, :], nodes)[0]
     a, b = int(idx[k - 1]), int(idx[k])
-    v, x = _refine(net, quantity, float(curves.input_v[a]), np.asarray(curves.states[a]),
+    v, x = _refine(net, quantity, slope, float(curves.input_v[a]), np.asarray(curves.states[a]),
                    float(curves.input_v[b]), np.asarray(curves.states[b]))
     volts = net.node_voltages(x[None, :], nodes)[0] - dc_v
     return Onset(mechanism, abs(v), float(volts[0]), float(volts[1]), triode,

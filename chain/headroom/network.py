@@ -37,7 +37,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
 from types import MappingProxyType
-from typing import Iterable, Mapping
+from typing import Callable, Iterable, Mapping
 
 import numpy as np
 
@@ -304,6 +304,55 @@ class MidBandNetwork:
                 raise
             return self._split(mid, x_mid, v_to, depth - 1)
 
+    def solve_where(self, quantity: Callable[[np.ndarray], float],
+                    slope: Callable[[np.ndarray, np.ndarray], np.ndarray], v_guess: float, x_guess: np.ndarray,
+                    bracket: tuple[float, float], *, max_iter: int = 12) -> tuple[float, np.ndarray] | None:
+        """The source voltage (V) in ``bracket`` where ``quantity`` of the solution is zero, and the state there.
+
+        Newton's method on the network equations bordered by ``quantity = 0``,
+        unknowns the state x and the source voltage v: with ``F(x, v) = 0`` the
+        network, ``J`` its Jacobian in x, ``t = J⁻¹·∂b/∂v`` the tangent and
+        ``dx₀ = −J⁻¹·F`` the plain Newton step, the bordered step is
+        ``dv = −(q + ∇q·dx₀)/(∇q·t)``, ``dx = dx₀ + dv·t`` (block elimination
+        of the bordered Jacobian ``[[J, −∂b/∂v], [∇qᵀ, 0]]``; H. B. Keller's
+        bordering algorithm).  One LU per iteration, quadratic convergence
+        from a guess between two swept points; the state is then solved at the
+        found v by :meth:`solve` (the same convergence test as every point).
+
+        ``slope(x, ys)`` gives ``∇q(x)·y`` for each column of ``ys``.  Returns
+        None when an iterate leaves the bracket, a Jacobian is singular or the
+        iteration does not settle within ``max_iter``: the caller then brackets.
+        """
+        lo, hi = min(bracket), max(bracket)
+        x = np.array(x_guess, dtype=float)
+        v = float(v_guess)
+        n = len(self.system.nodes)
+        for _ in range(max_iter):
+            try:
+                _, dx0, tangent = self.system.newton_and_tangent(x, v)
+            except np.linalg.LinAlgError:
+                return None
+            self.iterations += 1
+            q = quantity(x)
+            d0, dt = slope(x, np.stack([dx0, tangent], axis=1))
+            if not (np.isfinite(q) and np.isfinite(d0) and np.isfinite(dt)) or dt == 0.0:
+                return None
+            dv = -(q + d0) / dt
+            dx = dx0 + dv * tangent
+            if not np.all(np.isfinite(dx)):
+                return None
+            x = x + dx
+            v = v + dv
+            if not lo <= v <= hi:
+                return None
+            step = float(np.abs(dx[:n]).max()) if n else 0.0
+            if abs(dv) <= 1e-13 * max(abs(v), 1e-30) and step <= self.options.tol_v:
+                try:
+                    return float(v), self.solve(v, x)
+                except DcConvergenceError:
+                    return None
+        return None
+
     # ------------------------------------------------------------ reading
     def node_voltages(self, xs: np.ndarray, nodes: Iterable[str]) -> np.ndarray:
         """Node voltages (V) of unknown vectors ``xs`` (shape (P, size)) → (P, len(nodes))."""
@@ -341,6 +390,20 @@ class MidBandNetwork:
         cols = self._pins[index]
         vp, vg, vk = (np.zeros(1) if c < 0 else np.array([x[c]], dtype=float) for c in cols)
         return float((vg - vk)[0]), float(plate_current(self._models[index], vp - vk, vg - vk)[0])
+
+    def triode_pins(self, ys: np.ndarray, index: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Rows of one triode's plate, grid and cathode in ``ys`` (shape (size, k)), 0 for ground."""
+        zero = np.zeros(ys.shape[1:])
+        p, g, k = (zero if c < 0 else ys[c] for c in self._pins[index])
+        return p, g, k
+
+    def triode_slopes(self, x: np.ndarray, index: int) -> tuple[float, float]:
+        """dIp/dVgk and dIp/dVpk (S) of one triode at one unknown vector."""
+        from chain.tubes import plate_current_and_derivatives
+
+        vp, vg, vk = (0.0 if c < 0 else float(x[c]) for c in self._pins[index])
+        _, gm, gp = plate_current_and_derivatives(self._models[index], np.array([vp - vk]), np.array([vg - vk]))
+        return float(np.asarray(gm)[0]), float(np.asarray(gp)[0])
 
     def triode_point(self, x: np.ndarray, index: int) -> tuple[float, float]:
         """Vgk (V) and plate current (A) of one triode at one unknown vector."""
