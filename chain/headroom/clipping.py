@@ -21,7 +21,9 @@ half-cycle where the source EMF is positive):
   (default 1 % and 5 %): for a whole sine, and for each half-wave alone.
 
 The first two are found on the swept transfer curves and refined by
-root-finding on direct solves (source voltage to about 1e-10 relative).
+Newton's method on the network bordered by the onset condition (source
+voltage to about 1e-12 relative), or Brent's method on direct solves (1e-10)
+where that does not settle.
 A stage's clipping point is the earlier of grid conduction and cutoff over
 both half-waves; the available output swing on each side is the output's
 excursion up to that half-wave's limit.  The chain's first stage to clip is
