@@ -32,8 +32,8 @@ solve     ``chain.smallsignal.mna.solve``: the engine's solve of the same
 sweep     ``chain.smallsignal.response`` at POINTS frequencies (as the
           analysis runs it: transfers, input and output impedance) and
           ``stage_table`` at 1 kHz
-headroom  ``chain.headroom.headroom`` of the padded cascade at 100 mV (one
-          run), and its peak traced memory (tracemalloc, a second run)
+headroom  ``chain.headroom.headroom`` of the padded cascade at 100 mV, and
+          its peak traced memory (tracemalloc, one more run)
 analysis  ``chain.analysis.analyze_design`` without headroom: the whole
           small-signal analysis including what other sections add (poles,
           sensitivities)
@@ -121,18 +121,22 @@ def padded_cascade(n: int, points: int) -> str:
     return "\n".join(lines)
 
 
-def time_headroom(n: int, points: int) -> tuple[float, float, int, bool]:
-    """Headroom of the padded ``n``-stage cascade: (seconds, peak MB, stages
-    that clip, stable)."""
+def time_headroom(n: int, points: int, repeats: int = 1) -> tuple[float, float, int, bool]:
+    """Headroom of the padded ``n``-stage cascade: (seconds, best of
+    ``repeats``; peak MB; stages that clip; stable)."""
     from chain.headroom import headroom
 
     design = parse_text(padded_cascade(n, points), f"padded{n}.chain")
     circuit = build(design)
     dc = solve(circuit)
     ok = stable(assemble(linearize(circuit, dc)))
-    t0 = time.perf_counter()
-    room = headroom(circuit, dc, level_v=0.1)
-    seconds = time.perf_counter() - t0
+    got = {}
+
+    def run():
+        got["room"] = headroom(circuit, dc, level_v=0.1)
+
+    seconds = best_of(run, repeats)
+    room = got["room"]
     tracemalloc.start()
     headroom(circuit, dc, level_v=0.1)
     peak_mb = tracemalloc.get_traced_memory()[1] / 2**20
@@ -201,6 +205,7 @@ def main(argv=None) -> int:
     print(head)
     if args.headroom_max_stages >= 1:
         time_headroom(1, args.points)  # imports (scipy.optimize, scipy.interpolate) out of the timing
+    heads: dict[int, tuple[float, float]] = {}
     for n in counts:
         design = parse_text(cascade(n, args.points), f"growth{n}.chain")
         circuit = build(design)
@@ -233,7 +238,7 @@ def main(argv=None) -> int:
         clips, pad_ok = -1, "-"
         if n <= args.headroom_max_stages:
             try:
-                t_head, mb_head, clips, ok = time_headroom(n, args.points)
+                t_head, mb_head, clips, ok = time_headroom(n, args.points, args.repeats)
                 pad_ok = "yes" if ok else "NO"
             except Exception as exc:  # reported, not hidden
                 print(f"  headroom of {n} stages: {type(exc).__name__}: {str(exc).splitlines()[0]}", file=sys.stderr)
@@ -257,6 +262,11 @@ def main(argv=None) -> int:
               f"{clips:5d} {pad_ok:>6} {t_an:10.2f} "
               f"{t_np * 1e3:9.1f} {t_sp * 1e3:9.1f} {t_lc:8.2f} {t_np / t_solve:11.2f} {t_sp / t_solve:12.2f}",
               flush=True)
+        heads[n] = (t_head, mb_head)
+    doubled = [(n, 2 * n) for n in counts if 2 * n in heads and n in heads]
+    if doubled:
+        print("headroom per doubling of stages (time, memory): " + "; ".join(
+            f"{a}->{b}: x{heads[b][0] / heads[a][0]:.2f}, x{heads[b][1] / heads[a][1]:.2f}" for a, b in doubled))
     return 0
 
 
