@@ -20,7 +20,7 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
-__all__ = ["find_chromium", "PageLoad", "load_page", "FLAGS"]
+__all__ = ["find_chromium", "PageLoad", "Browser", "load_page", "FLAGS"]
 
 #: flags for a quiet, offline, reproducible headless run
 FLAGS = ("--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
@@ -91,16 +91,26 @@ class _Pipe:
                 return msg.get("result", {})
             self.events.append(msg)
 
-    def wait_event(self, method: str, timeout_s: float = 30.0) -> dict:
+    def wait_event(self, method: str, session: str | None = None, timeout_s: float = 30.0) -> dict:
+        """The first event ``method`` (of ``session`` when given); other messages are kept."""
+        def wanted(ev: dict) -> bool:
+            return ev.get("method") == method and (session is None or ev.get("sessionId") == session)
+
         for i, ev in enumerate(self.events):
-            if ev.get("method") == method:
+            if wanted(ev):
                 return self.events.pop(i)
         deadline = time.monotonic() + timeout_s
         while True:
             msg = self._read_one(deadline)
-            if msg.get("method") == method:
+            if wanted(msg):
                 return msg
             self.events.append(msg)
+
+    def take_events(self, session: str) -> list[dict]:
+        """The kept events of ``session``, removed from the list."""
+        mine = [ev for ev in self.events if ev.get("sessionId") == session]
+        self.events = [ev for ev in self.events if ev.get("sessionId") != session]
+        return mine
 
 
 def _errors(events: list[dict]) -> list[str]:
@@ -117,55 +127,95 @@ def _errors(events: list[dict]) -> list[str]:
     return out
 
 
-def load_page(path: Path, *, probe: str, width: int = 1280, height: int = 900,
-              timeout_s: float = 60.0) -> PageLoad:
-    """Open ``path`` in headless Chromium, wait for the load event, evaluate
-    ``probe`` (a JavaScript expression whose value is returned), collect
-    every error and take a screenshot of the top ``width`` × ``height``."""
-    exe = find_chromium()
-    if exe is None:
-        raise FileNotFoundError("no chromium on PATH")
-    to_child_r, to_child_w = os.pipe()
-    from_child_r, from_child_w = os.pipe()
+class Browser:
+    """One headless Chromium process; each :meth:`load` opens the page in a
+    new tab of its own, collects that tab's errors and closes it.
 
-    def fds():  # the protocol wants the child's fd 3 (commands) and fd 4 (answers)
-        hi_r, hi_w = os.dup(to_child_r), os.dup(from_child_w)
-        os.dup2(hi_r, 3)
-        os.dup2(hi_w, 4)
+    Starting Chromium is most of the cost of looking at a small page, so a
+    test module that checks several pages shares one ``Browser``
+    (``with Browser() as b: b.load(...)``).
+    """
 
-    with tempfile.TemporaryDirectory(prefix="chain-chromium-") as profile:
-        proc = subprocess.Popen([exe, *FLAGS, f"--user-data-dir={profile}", "--remote-debugging-pipe",
+    def __init__(self, *, width: int = 1280, height: int = 900, timeout_s: float = 60.0):
+        exe = find_chromium()
+        if exe is None:
+            raise FileNotFoundError("no chromium on PATH")
+        self.timeout_s = timeout_s
+        self._profile = tempfile.TemporaryDirectory(prefix="chain-chromium-")
+        to_child_r, to_child_w = os.pipe()
+        from_child_r, from_child_w = os.pipe()
+
+        def fds():  # the protocol wants the child's fd 3 (commands) and fd 4 (answers)
+            hi_r, hi_w = os.dup(to_child_r), os.dup(from_child_w)
+            os.dup2(hi_r, 3)
+            os.dup2(hi_w, 4)
+            # when 3 and 4 were free, the dups above are 3 and 4 themselves, dup2 leaves them
+            # close-on-exec and Chromium starts without its pipe ("file descriptors are not open")
+            os.set_inheritable(3, True)
+            os.set_inheritable(4, True)
+
+        proc = subprocess.Popen([exe, *FLAGS, f"--user-data-dir={self._profile.name}", "--remote-debugging-pipe",
                                  f"--window-size={width},{height}", "about:blank"],
                                 stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
                                 preexec_fn=fds, close_fds=False)
         os.close(to_child_r)
         os.close(from_child_w)
-        pipe = _Pipe(proc, to_child_w, from_child_r)
+        self._pipe = _Pipe(proc, to_child_w, from_child_r)
+
+    def load(self, path: Path, *, probe: str, width: int = 1280, height: int = 900) -> PageLoad:
+        """Open ``path`` in a new tab, wait for the load event, evaluate
+        ``probe`` (a JavaScript expression whose value is returned), collect
+        every error of that tab and take a screenshot of the top
+        ``width`` × ``height``."""
+        pipe, timeout_s = self._pipe, self.timeout_s
+        target = pipe.call("Target.createTarget", {"url": "about:blank"}, timeout_s=timeout_s)["targetId"]
+        session = pipe.call("Target.attachToTarget", {"targetId": target, "flatten": True})["sessionId"]
         result = PageLoad()
         try:
-            target = pipe.call("Target.createTarget", {"url": "about:blank"}, timeout_s=timeout_s)["targetId"]
-            session = pipe.call("Target.attachToTarget", {"targetId": target, "flatten": True})["sessionId"]
             for domain in ("Runtime.enable", "Log.enable", "Page.enable"):
                 pipe.call(domain, session=session)
             pipe.call("Emulation.setDeviceMetricsOverride",
                       {"width": width, "height": height, "deviceScaleFactor": 1, "mobile": False}, session=session)
             pipe.call("Page.navigate", {"url": path.resolve().as_uri()}, session=session)
-            pipe.wait_event("Page.loadEventFired", timeout_s=timeout_s)
+            pipe.wait_event("Page.loadEventFired", session=session, timeout_s=timeout_s)
             value = pipe.call("Runtime.evaluate", {"expression": probe, "returnByValue": True}, session=session)
             result.probe = value.get("result", {}).get("value")
             shot = pipe.call("Page.captureScreenshot", {"format": "png"}, session=session, timeout_s=timeout_s)
             result.screenshot_png = base64.b64decode(shot["data"])
-            result.errors = _errors(pipe.events)
+            result.errors = _errors(pipe.take_events(session))
+        finally:
             try:
-                pipe.call("Browser.close", timeout_s=5.0)
+                pipe.call("Target.closeTarget", {"targetId": target}, timeout_s=timeout_s)
             except (RuntimeError, TimeoutError):
                 pass
+            pipe.take_events(session)
+        return result
+
+    def close(self) -> None:
+        pipe = self._pipe
+        try:
+            pipe.call("Browser.close", timeout_s=5.0)
+        except (RuntimeError, TimeoutError, OSError):
+            pass
         finally:
-            os.close(to_child_w)
-            os.close(from_child_r)
+            os.close(pipe.w)
+            os.close(pipe.r)
             try:
-                proc.wait(timeout=10)
+                pipe.proc.wait(timeout=10)
             except subprocess.TimeoutExpired:
-                proc.kill()
-                proc.wait()
-    return result
+                pipe.proc.kill()
+                pipe.proc.wait()
+            self._profile.cleanup()
+
+    def __enter__(self) -> "Browser":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+
+def load_page(path: Path, *, probe: str, width: int = 1280, height: int = 900,
+              timeout_s: float = 60.0) -> PageLoad:
+    """Open ``path`` in a headless Chromium of its own (see :meth:`Browser.load`)."""
+    with Browser(width=width, height=height, timeout_s=timeout_s) as browser:
+        return browser.load(path, probe=probe, width=width, height=height)
