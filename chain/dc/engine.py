@@ -718,12 +718,40 @@ class NetworkSystem:
         z, _, _, _ = self._prepare_guess()
         return z @ b if z is not None else self._lin_lu.solve(b)
 
+    def _guess_levels(self, dpk: np.ndarray, dgk: np.ndarray) -> list[np.ndarray]:
+        """The triodes in groups that one Gauss–Seidel sweep in signal order may
+        update together with the same result: two triodes whose load or bias
+        lines move with each other's current at all (``dpk``, ``dgk``: V per A
+        of the other's plate current, not exactly zero) go in groups in the
+        order the sweep meets them; a triode joins the first group after all
+        earlier triodes it is coupled to (stages on rails of their own from an
+        ideal supply, with no coupling between them, all share one group)."""
+        t = dpk.shape[0]
+        coupled = (dpk != 0.0) | (dgk != 0.0)
+        coupled |= coupled.T
+        level = np.zeros(t, dtype=np.intp)
+        done = np.zeros(t, dtype=bool)
+        for i in self._order:
+            earlier = coupled[i] & done
+            level[i] = int(level[earlier].max()) + 1 if earlier.any() else 0
+            done[i] = True
+        position = np.empty(t, dtype=np.intp)
+        position[list(self._order)] = np.arange(t)
+        groups = []
+        for lv in range(int(level.max()) + 1 if t else 0):
+            members = np.flatnonzero(level == lv)
+            groups.append(members[np.argsort(position[members])])
+        return groups
+
     def initial_guess(self, signal_v: float = 0.0) -> np.ndarray:
         """Stage-by-stage starting point for Newton.
 
         Each triode in signal order is placed on its exact load line and bias
         line given the present currents of all the others (grid current
-        neglected), repeated for a few Gauss–Seidel sweeps.
+        neglected), repeated for a few Gauss–Seidel sweeps.  Triodes whose
+        lines do not move with each other's current are placed together
+        (:meth:`_guess_levels`, :func:`_load_points`): the same sweep, one
+        vectorised step per group.
         """
         _, d, dvpk, dvgk = self._prepare_guess()
         x_base = self._linear_solution(self.rhs(signal_v))
@@ -740,15 +768,21 @@ class NetworkSystem:
         v = self._padded_v(x_base)
         base_pk = v[self._p] - v[self._k]
         base_gk = v[self._g] - v[self._k]
+        groups = self._guess_levels(dpk, dgk)
+        own_pk, own_gk = np.diagonal(dpk), np.diagonal(dgk)
         current = np.zeros(t)
         for _ in range(_GUESS_SWEEPS):
             change = 0.0
-            for i in self._order:
-                vpk0 = base_pk[i] + dpk[i] @ current - dpk[i, i] * current[i]
-                vgk0 = base_gk[i] + dgk[i] @ current - dgk[i, i] * current[i]
-                new = _load_point(self._models[i], vpk0, dvpk[i], vgk0, dvgk[i])
-                change = max(change, abs(new - current[i]))
-                current[i] = new
+            for ix in groups:
+                vpk0 = base_pk[ix] + dpk[ix] @ current - own_pk[ix] * current[ix]
+                vgk0 = base_gk[ix] + dgk[ix] @ current - own_gk[ix] * current[ix]
+                if ix.size == 1:
+                    new = np.array([_load_point(self._models[ix[0]], float(vpk0[0]), float(dvpk[ix[0]]),
+                                                float(vgk0[0]), float(dvgk[ix[0]]))])
+                else:
+                    new = _load_points(self._models, ix, vpk0, dvpk[ix], vgk0, dvgk[ix])
+                change = max(change, float(np.abs(new - current[ix]).max()))
+                current[ix] = new
             if change <= 1e-9 + 1e-4 * float(np.abs(current).max()):
                 break
         return x_base + d @ current
@@ -1119,6 +1153,89 @@ def _load_point(model: TriodeModel, vpk0: float, dvpk: float, vgk0: float, dvgk:
             return float(min(max(new, lo), hi))
         i_a = new
     return float(i_a)
+
+
+def _load_points(models, ix: np.ndarray, vpk0: np.ndarray, dvpk: np.ndarray, vgk0: np.ndarray,
+                 dvgk: np.ndarray) -> np.ndarray:
+    """Plate current where each tube curve meets its load and bias lines, A.
+
+    For each triode ``ix[m]`` (model ``models[ix[m]]``) solves
+    ``Ip = f(vpk0 + dvpk·Ip, vgk0 + dvgk·Ip)`` by safeguarded Newton–bisection
+    on ``h(I) = f(...) − I`` (h(0) ≥ 0, h < 0 once the load line reaches
+    Vpk = 0) as :func:`_load_point` does for one: all triodes at once, each
+    with its own bracket, stopping when its own step is small, so that each
+    gets the value it would get alone.
+    """
+    m = ix.size
+    groups: dict[int, list[int]] = {}
+    for pos, i in enumerate(ix):
+        groups.setdefault(id(models[i]), []).append(pos)
+    by_model = [(models[ix[pos[0]]], np.array(pos, dtype=np.intp)) for pos in groups.values()]
+
+    def h(which: np.ndarray, i_a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(h, dh/dI)`` of the triodes at positions ``which`` at currents ``i_a``."""
+        value = np.empty(which.size)
+        slope = np.empty(which.size)
+        for model, pos in by_model:
+            sel = np.flatnonzero(np.isin(which, pos))
+            if sel.size == 0:
+                continue
+            w, cur = which[sel], i_a[sel]
+            with np.errstate(over="ignore", invalid="ignore"):
+                ip, gm, gp = plate_current_and_derivatives(model, vpk0[w] + dvpk[w] * cur, vgk0[w] + dvgk[w] * cur)
+            value[sel] = np.asarray(ip, dtype=float) - cur
+            slope[sel] = np.asarray(gp, dtype=float) * dvpk[w] + np.asarray(gm, dtype=float) * dvgk[w] - 1.0
+        return value, slope
+
+    every = np.arange(m)
+    out = np.zeros(m)
+    h0, dh = h(every, np.zeros(m))
+    live = np.isfinite(h0) & (h0 > 0.0)
+    lo = np.zeros(m)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        hi = np.where((dvpk < 0.0) & (vpk0 > 0.0), vpk0 / -dvpk, np.maximum(h0, 1e-3))
+    # widen each bracket until h(hi) < 0 (or not finite)
+    growing = live.copy()
+    for _ in range(60):
+        which = np.flatnonzero(growing)
+        if which.size == 0:
+            break
+        h_hi, _ = h(which, hi[which])
+        stop = ~np.isfinite(h_hi) | (h_hi < 0.0)
+        up = which[~stop]
+        lo[up], hi[up] = hi[up], hi[up] * 2.0
+        growing[which[stop]] = False
+    with np.errstate(divide="ignore", invalid="ignore"):
+        i_a = np.where(dh < 0.0, lo - h0 / dh, 0.5 * (lo + hi))
+    running = live.copy()
+    for _ in range(100):
+        which = np.flatnonzero(running)
+        if which.size == 0:
+            break
+        cur = i_a[which]
+        outside = ~((lo[which] < cur) & (cur < hi[which]))
+        cur = np.where(outside, 0.5 * (lo[which] + hi[which]), cur)
+        value, slope = h(which, cur)
+        bad = ~np.isfinite(value)
+        # not finite: shrink the bracket from above and try its middle
+        nb = which[bad]
+        hi[nb] = cur[bad]
+        i_a[nb] = 0.5 * (lo[nb] + hi[nb])
+        ok = ~bad
+        w, c, val, sl = which[ok], cur[ok], value[ok], slope[ok]
+        pos = val > 0.0
+        lo[w[pos]] = c[pos]
+        hi[w[~pos]] = c[~pos]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            new = np.where(sl < 0.0, c - val / sl, 0.5 * (lo[w] + hi[w]))
+        done = (np.abs(new - c) <= 1e-13 + 1e-10 * np.abs(c)) | (hi[w] - lo[w] <= 1e-13 + 1e-10 * hi[w])
+        fin = w[done]
+        out[fin] = np.minimum(np.maximum(new[done], lo[fin]), hi[fin])
+        running[fin] = False
+        i_a[w[~done]] = new[~done]
+    # a triode that used up its iterations keeps its last point
+    out[running] = i_a[running]
+    return out
 
 
 def compile_network(circuit: Circuit, *, held_caps: Mapping[str, float] | None = None,
