@@ -53,7 +53,7 @@ again, each while its error improves.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Iterable, Sequence, overload
+from typing import Iterable, Literal, Sequence, overload
 
 import numpy as np
 
@@ -76,6 +76,8 @@ __all__ = [
     "solve_each_without",
     "memory_estimate",
     "check_size",
+    "planned_memory",
+    "band_factor_bytes",
     "solve",
     "solve_entry",
     "backward_error",
@@ -112,13 +114,35 @@ BYTES_PER_POINT_UNKNOWN = 16 * 24
 MEMORY_BUDGET = 2 * 2**30
 
 
-def memory_estimate(n_unknowns: int, n_freq: int) -> int:
-    """Bytes an analysis of ``n_unknowns`` at ``n_freq`` frequencies needs, roughly:
-    the dense ``G`` and ``C``, their product form and the DC solve's dense
-    Jacobian and factors (``7·N²`` doubles), a dense stack block, and
-    :data:`BYTES_PER_POINT_UNKNOWN` per frequency and unknown."""
-    dense = 7 * n_unknowns * n_unknowns * 8 + (STACK_BYTES if n_unknowns < SPARSE_FROM else 0)
-    return dense + BYTES_PER_POINT_UNKNOWN * n_unknowns * n_freq
+#: bytes per unknown of one frequency's sparse LU factors kept by
+#: :class:`SparseSolver` (a chain's L and U have about ten entries per column:
+#: value and index; SuperLU holds them outside numpy)
+SPARSE_BYTES_PER_UNKNOWN = 10 * (16 + 4)
+
+
+def memory_estimate(n_unknowns: int, n_freq: int, band: tuple[int, int] | None = None) -> int:
+    """Bytes an analysis of ``n_unknowns`` at ``n_freq`` frequencies needs, roughly,
+    by the direct method the sweep falls back to (the modal solve, tried
+    first on small circuits, needs less):
+
+    * dense ``N × N`` arrays: ``G`` and ``C``, their scaled and reordered
+      copies, the pole solve's pencil and the DC solve's Jacobian and factors
+      (``7·N²`` doubles);
+    * :data:`BYTES_PER_POINT_UNKNOWN` per frequency and unknown (solution,
+      residuals, refinement, transfers, impedances);
+    * the solver's own store: with ``band = (lower, upper)`` (the narrow band
+      :func:`direct_solver` takes) the band factors it keeps
+      (:func:`band_factor_bytes`); else below :data:`SPARSE_FROM` unknowns a
+      block of the dense stack and LAPACK's copy of it (at most
+      :data:`STACK_BYTES` each), from there on the sparse factors
+      (:data:`SPARSE_BYTES_PER_UNKNOWN`, kept up to :data:`KEEP_FACTORS`)."""
+    n, nf = n_unknowns, n_freq
+    need = 7 * n * n * 8 + BYTES_PER_POINT_UNKNOWN * n * nf
+    if band is not None:
+        return need + band_factor_bytes(n, nf, *band)
+    if n < SPARSE_FROM:
+        return need + 2 * min(STACK_BYTES, nf * n * n * 16)
+    return need + (SPARSE_BYTES_PER_UNKNOWN * n * nf if n * nf <= KEEP_FACTORS else 0)
 
 
 def _free_bytes() -> int | None:
@@ -133,13 +157,30 @@ def _free_bytes() -> int | None:
     return None
 
 
-def check_size(circuit, n_freq: int) -> None:
-    """Refuse (E330) an analysis whose :func:`memory_estimate` exceeds
-    :data:`MEMORY_BUDGET` or half the memory free, before any solve starts."""
+def planned_memory(circuit, n_freq: int, budget: int = MEMORY_BUDGET) -> tuple[int, int]:
+    """``(unknowns, bytes)`` an analysis of ``circuit`` at ``n_freq`` frequencies
+    needs (:func:`memory_estimate`), the method found from the circuit's
+    structure (:func:`chain.smallsignal.model.unknown_pattern`, then the band
+    plan of :func:`direct_solver`) unless the dense arrays alone exceed
+    ``budget`` (bytes)."""
+    from chain.smallsignal.model import unknown_pattern
+
     n = len(circuit.nodes()) + len(circuit.inductors) + 1
-    need = memory_estimate(n, n_freq)
+    band = None
+    if 7 * n * n * 8 <= budget and n_freq > DIRECT_BELOW:
+        pattern = unknown_pattern(circuit)
+        n = pattern.shape[0]
+        plan = _band_plan(pattern, n_freq)
+        band = None if plan is None else plan[1:]
+    return n, memory_estimate(n, n_freq, band)
+
+
+def check_size(circuit, n_freq: int) -> None:
+    """Refuse (E330) an analysis whose :func:`planned_memory` exceeds
+    :data:`MEMORY_BUDGET` or half the memory free, before any solve starts."""
     free = _free_bytes()
     budget = MEMORY_BUDGET if free is None else min(MEMORY_BUDGET, free // 2)
+    n, need = planned_memory(circuit, n_freq, budget)
     if need > budget:
         raise AnalysisError(error(
             "E330", f"the circuit is too large to analyse here: about {need / 2**30:.1f} GB needed "
@@ -636,7 +677,7 @@ class BandSolver:
     name = "banded"
 
     def __init__(self, g: np.ndarray, c: np.ndarray, s: np.ndarray,
-                 order: np.ndarray | None = None, changes: "Changes | None" = None):
+                 order: np.ndarray | None = None, changes: "Changes | None" = None, *, keep: bool = True):
         pattern = (g != 0.0) | (c != 0.0)
         if changes is not None:
             pattern[changes.rows, changes.cols] = True
@@ -666,7 +707,12 @@ class BandSolver:
         rows = self._band_rows(gb, cb)
         if changes is not None:
             self._apply(rows, changes)
-        self._piv, self._l, self._u = self._eliminate(rows)
+        #: arg det Y(s) when the factors are not kept (``keep=False``: only :meth:`det_phase` then)
+        self._arg_det: np.ndarray | None = None
+        if keep:
+            self._piv, self._l, self._u = self._eliminate(rows)
+        else:
+            self._arg_det = self._eliminate(rows, keep=False)
 
     def _band_rows(self, gb: np.ndarray, cb: np.ndarray) -> np.ndarray:
         """Every scaled band row ``rs·(G + s·C)``, then ``lo + 1`` rows of zeros
@@ -690,15 +736,26 @@ class BandSolver:
         scale = self._rs[i, k] * self._r[changes.rows] * self._c[changes.cols]
         np.add.at(rows, (i, band, k), scale * (changes.dg + self._s[k] * changes.dc))
 
-    def _eliminate(self, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    @overload
+    def _eliminate(self, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]: ...
+
+    @overload
+    def _eliminate(self, rows: np.ndarray, keep: Literal[False]) -> np.ndarray: ...
+
+    def _eliminate(self, rows: np.ndarray, keep: bool = True):
         """The factors of the band ``rows`` (see :meth:`_band_rows`): ``(row
-        interchange per step (N, nf), multipliers (N, lo, nf), rows of U (N, wide, nf))``."""
+        interchange per step (N, nf), multipliers (N, lo, nf), rows of U (N, wide, nf))``;
+        with ``keep=False`` only ``arg det`` (nf,) (the sum of the pivots' arguments
+        and π per interchange), no factor stored."""
         n, lo, up = self._n, self._lo, self._up
         nf = rows.shape[2]
         wide = lo + up + 1
-        piv = np.zeros((n, nf), dtype=np.intp)
-        low = np.zeros((n, lo, nf), dtype=complex)
-        upp = np.zeros((n, wide, nf), dtype=complex)
+        shape = (n, nf) if keep else (0, nf)
+        piv = np.zeros(shape, dtype=np.intp)
+        low = np.zeros((shape[0], lo, nf), dtype=complex)
+        upp = np.zeros((shape[0], wide, nf), dtype=complex)
+        arg = np.zeros(nf)
+        swaps = np.zeros(nf, dtype=np.intp)
         # window row r, column t: Y[k + r, k + t] at step k
         win = np.zeros((lo + 1, wide, nf), dtype=complex)
         for r in range(lo + 1):
@@ -710,19 +767,28 @@ class BandSolver:
                     p = np.argmax(np.abs(win[:, 0]), axis=0)
                     swap = np.flatnonzero(p)
                     if swap.size:
-                        piv[k, swap] = p[swap]
+                        if keep:
+                            piv[k, swap] = p[swap]
+                        else:
+                            swaps[swap] += 1
                         top = win[p[swap], :, swap]  # (len(swap), wide)
                         win[p[swap], :, swap] = win[0, :, swap]
                         win[0, :, swap] = top
                     mult = win[1:, 0] / win[0, 0]
                     win[1:, 1:] -= mult[:, None, :] * win[0, None, 1:]
-                    low[k] = mult
-                upp[k] = win[0]
+                    if keep:
+                        low[k] = mult
+                if keep:
+                    upp[k] = win[0]
+                else:
+                    arg += np.angle(win[0, 0])
                 # slide: rows 1 … lo move up and left, the next band row enters at the bottom
                 spare[:lo, :wide - 1] = win[1:, 1:]
                 spare[:lo, wide - 1] = 0.0
                 spare[lo] = rows[k + 1 + lo]
                 win, spare = spare, win
+        if not keep:
+            return arg + np.pi * swaps
         return piv, low, upp
 
     def det_phase(self) -> np.ndarray:
@@ -731,6 +797,8 @@ class BandSolver:
         (``det = ±Π u_kk``; the reordering is symmetric and the scale
         factors positive, so neither changes the argument).  0 where ``Y(s)``
         is singular."""
+        if self._arg_det is not None:
+            return self._arg_det
         return np.angle(self._u[:, 0]).sum(axis=0) + np.pi * np.count_nonzero(self._piv, axis=0)
 
     def solve(self, b: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
@@ -810,25 +878,26 @@ def band_factor_bytes(n_unknowns: int, n_freq: int, lower: int, upper: int) -> i
 
 
 #: the determinants of :func:`det_phases` are formed in blocks of frequencies
-#: whose band factors take at most this many bytes
-DET_BLOCK_BYTES = 32 * 2**20
+#: whose band rows take at most this many bytes
+DET_BLOCK_BYTES = 8 * 2**20
 
 
 def det_phases(g: np.ndarray, c: np.ndarray, s: np.ndarray) -> np.ndarray | None:
     """``arg det (G + s·C)`` (rad, not wrapped) at every ``s`` by banded LU
-    factorisations (:meth:`BandSolver.det_phase`), in blocks of at most
-    :data:`DET_BLOCK_BYTES` of factors; None when the reordered band is not
-    narrow (then a dense or sparse LU per frequency is the better way)."""
+    factorisations (:meth:`BandSolver.det_phase`, no factors kept), in blocks
+    whose band rows take at most :data:`DET_BLOCK_BYTES`; None when the
+    reordered band is not narrow (then a dense or sparse LU per frequency is
+    the better way)."""
     n = g.shape[0]
     plan = _band_plan((g != 0.0) | (c != 0.0), 1)
     if plan is None:
         return None
     order, lo, up = plan
-    block = max(1, DET_BLOCK_BYTES // band_factor_bytes(n, 1, lo, up))
+    block = max(1, DET_BLOCK_BYTES // (n * ((lo + up + 1) * 16 + 8)))
     out = np.empty(s.size)
     for start in range(0, s.size, block):
         part = s[start:start + block]
-        out[start:start + part.size] = BandSolver(g, c, part, order).det_phase()
+        out[start:start + part.size] = BandSolver(g, c, part, order, keep=False).det_phase()
     return out
 
 

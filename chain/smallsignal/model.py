@@ -57,6 +57,7 @@ from chain.errors import AnalysisError, error
 from chain.graph import components
 
 __all__ = [
+    "unknown_pattern",
     "TriodeSmallSignal",
     "SmallSignalCircuit",
     "linearize",
@@ -248,6 +249,54 @@ def _check_values(circuit: Circuit) -> None:
                              subject=ind.name))
     if bad:
         raise AnalysisError(bad)
+
+
+def unknown_pattern(circuit: Circuit):
+    """The non-zero pattern (N, N) of ``G + s·C`` that :func:`linearize` and
+    :func:`chain.smallsignal.mna.assemble` will make of ``circuit``, from its
+    structure alone (no DC solve): the nodes merged as :func:`linearize` merges
+    them, each part joining its two nodes, each triode its three pins (``rp``,
+    ``gm`` and the interelectrode capacitances), each inductor and the signal
+    source a branch current.  A part whose value makes it vanish is left out
+    as :func:`linearize` leaves it out."""
+    import numpy as np
+
+    node_of, _ = _merge_shorts(circuit)
+    index: dict[str, int] = {}
+    for n in circuit.nodes():
+        rep = node_of.get(n, n)
+        if rep != GROUND and rep not in index:
+            index[rep] = len(index)
+    inductors = [ind for ind in circuit.inductors
+                 if ind.henries != 0.0 and node_of.get(ind.a, ind.a) != node_of.get(ind.b, ind.b)]
+    size = len(index) + len(inductors) + 1
+    pattern = np.zeros((size, size), dtype=bool)
+
+    def at(node: str) -> int:
+        return index.get(node_of.get(node, node), -1)
+
+    def join(*ix: int) -> None:
+        inside = [i for i in ix if i >= 0]
+        pattern[np.ix_(inside, inside)] = True
+
+    for r in circuit.resistors:
+        if r.ohms != 0.0 and not math.isinf(r.ohms):
+            join(at(r.a), at(r.b))
+    for c in circuit.capacitors:
+        if c.farads != 0.0:
+            join(at(c.a), at(c.b))
+    for t in circuit.triodes:
+        join(at(t.plate), at(t.grid), at(t.cathode))
+    branches = [(ind.a, ind.b) for ind in inductors]
+    branches += [(s.pos, s.neg) for s in circuit.sources if s.role == "signal"][:1]
+    for k, (a, b) in enumerate(branches):
+        br = len(index) + k
+        for node in (at(a), at(b)):
+            if node >= 0:
+                pattern[node, br] = pattern[br, node] = True
+        if k < len(inductors):
+            pattern[br, br] = True  # −L on an inductor branch's diagonal
+    return pattern
 
 
 def _merge_shorts(circuit: Circuit) -> tuple[dict[str, str], list[str]]:

@@ -45,3 +45,47 @@ def test_refusal_exits_2_from_the_command_line(tmp_path, capsys):
     assert main(["report", "--no-headroom", str(net)]) == 2
     err = capsys.readouterr().err
     assert "E330" in err and "internal error" not in err
+
+
+@pytest.mark.parametrize("stages, points", [(8, 2000), (16, 500)])
+def test_the_estimate_bounds_what_the_analysis_allocates(stages, points):
+    """The planned memory against the peak that Python's tracemalloc measures over
+    the whole analysis without headroom (numpy's arrays included): at least the
+    peak, and not more than three times it.  At these sizes the sweep takes the
+    banded solve, whose kept factors the estimate counts."""
+    import tracemalloc
+
+    from chain.analysis import analyze_design, sweep_frequencies
+
+    design = parse_text(cascade(stages).replace('title "cascade"', f'title "cascade"\nset points {points}'),
+                        "c.chain")
+    circuit = build(design)
+    n_freq = len(sweep_frequencies(design))
+    n, planned = M.planned_memory(circuit, n_freq)
+    analyze_design(design, circuit, (), headroom=False)  # imports and caches outside the measurement
+    tracemalloc.start()
+    try:
+        analyze_design(design, circuit, (), headroom=False)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak <= planned <= 3 * peak, (n, peak, planned)
+
+
+def test_the_structure_gives_the_assembled_pattern():
+    """chain.smallsignal.model.unknown_pattern (before any DC solve) against the
+    non-zero pattern of the matrices assembled after linearising."""
+    from pathlib import Path
+
+    import numpy as np
+
+    from chain.build import load
+    from chain.dc import solve
+    from chain.smallsignal import linearize
+    from chain.smallsignal.model import unknown_pattern
+
+    demos = sorted((Path(__file__).parents[2] / "netlists").glob("*.chain"))
+    circuits = [load(p)[1] for p in demos] + [build(parse_text(cascade(5), "c5.chain"))]
+    for circuit in circuits:
+        mna = M.assemble(linearize(circuit, solve(circuit)))
+        assert np.array_equal(unknown_pattern(circuit), (mna.g != 0.0) | (mna.c != 0.0))
