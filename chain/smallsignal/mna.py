@@ -914,10 +914,11 @@ def direct_solver(g: np.ndarray, c: np.ndarray, s: np.ndarray):
     return SparseSolver(g, c, s) if n >= SPARSE_FROM else DirectSolver(g, c, s)
 
 
-def solve_each_without(mna: Mna, s: complex, removals: Sequence[Iterable[Stamp]],
+def solve_each_without(mna: Mna, s: complex | np.ndarray, removals: Sequence[Iterable[Stamp]],
                        b: np.ndarray) -> np.ndarray:
-    """``x[k]`` (K, N) solving ``Y_k(s)·x[k] = b[k]``, ``Y_k`` the matrix of
-    ``mna.without(removals[k])``, refined as :func:`solve` refines a direct solve.
+    """``x[k]`` (K, N) solving ``Y_k(s_k)·x[k] = b[k]``, ``Y_k`` the matrix of
+    ``mna.without(removals[k])`` and ``s_k`` one ``s`` for all or ``s[k]``,
+    refined as :func:`solve` refines a direct solve.
 
     When the band of ``G`` and ``C`` is narrow all ``K`` systems are one
     :class:`BandSolver` (the removals are :func:`removal_changes` to the
@@ -933,14 +934,18 @@ def solve_each_without(mna: Mna, s: complex, removals: Sequence[Iterable[Stamp]]
     pattern = (mna.g != 0.0) | (mna.c != 0.0)
     pattern[changes.rows, changes.cols] = True
     plan = _band_plan(pattern, k)
+    sv = np.broadcast_to(np.asarray(s, dtype=complex), (k,)).copy()
     if plan is None:
-        one = np.array([s], dtype=complex)
-        out = np.empty((k, mna.size), dtype=complex)
+        # each distinct removal stamped once, its systems solved together
+        same: dict[tuple[str, ...], list[int]] = {}
         for i, removed in enumerate(removals):
-            m = mna.without(removed)
-            out[i] = _refine_all(direct_solver(m.g, m.c, one), _Checker(m, one, b[i]), b[i], accept=None)[0]
+            same.setdefault(tuple(st.name for st in removed), []).append(i)
+        out = np.empty((k, mna.size), dtype=complex)
+        for members in same.values():
+            at = np.array(members)
+            m = mna.without(removals[at[0]])
+            out[at] = _refine_all(direct_solver(m.g, m.c, sv[at]), _Checker(m, sv[at], b[at]), b[at], accept=None)
         return out
-    sv = np.full(k, s, dtype=complex)
     solver = BandSolver(mna.g, mna.c, sv, plan[0], changes)
     return _refine_all(solver, _Checker(mna, sv, b, changes), b, accept=None)
 

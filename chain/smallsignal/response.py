@@ -53,7 +53,16 @@ from numpy.typing import ArrayLike
 
 from chain.circuit import GROUND, Owner, Role
 from chain.errors import AnalysisError, error
-from chain.smallsignal.mna import Mna, Stamp, assemble, current_into, solve, solve_entry
+from chain.smallsignal.mna import (
+    DIRECT_BELOW,
+    Mna,
+    Stamp,
+    assemble,
+    current_into,
+    solve,
+    solve_each_without,
+    solve_entry,
+)
 from chain.smallsignal.model import SmallSignalCircuit
 
 __all__ = [
@@ -167,21 +176,29 @@ def response(ss: SmallSignalCircuit, f_hz: ArrayLike, *, method: str = "auto",
     port_zout: dict[str, dict[str, np.ndarray]] = {}
     output_zout: dict[str, np.ndarray] = {}
     if output_impedances:
+        # (label, stage or None, node, parts taken out) of every port
+        jobs: list[tuple[str, str | None, int, list[Stamp]]] = []
         for label, out_node in circuit.outputs.items():
             node = mna.index[ss.node_of[out_node]]
             load = [st for st in mna.stamps if st.kind != "V" and st.role == Role.LOAD and st.touches(node)]
-            output_zout[label] = _frozen(_port_impedance(mna, node, load, s, method))
-        zout = next(iter(output_zout.values()))  # the first output is circuit.output_node
+            jobs.append((label, None, node, load))
+        touching: dict[int, list[Stamp]] = {}
+        for e in mna.stamps:
+            if e.kind != "V" and e.owner.kind != "rail":
+                for end in {e.a, e.b}:
+                    touching.setdefault(end, []).append(e)
         for st in circuit.stages if stage_impedances else ():
             me = Owner("stage", st.name)
-            ports = {}
             for port, port_node in st.outputs.items():
                 node = mna.index[ss.node_of[port_node]]
-                removed = [e for e in mna.stamps
-                           if e.kind != "V" and e.owner != me and e.owner.kind != "rail" and e.touches(node)]
-                ports[port] = _frozen(_port_impedance(mna, node, removed, s, method))
-            port_zout[st.name] = ports
-            stage_zout[st.name] = next(iter(ports.values()))
+                jobs.append((port, st.name, node, [e for e in touching.get(node, ()) if e.owner != me]))
+        for (label, stage, _, _), z in zip(jobs, _port_impedances(mna, jobs, s, method)):
+            if stage is None:
+                output_zout[label] = _frozen(z)
+            else:
+                port_zout.setdefault(stage, {})[label] = _frozen(z)
+        zout = next(iter(output_zout.values()))  # the first output is circuit.output_node
+        stage_zout = {name: next(iter(ports.values())) for name, ports in port_zout.items()}
     return Response(
         f_hz=_frozen(f), h=h, zin_ohm=_frozen(zin), zout_ohm=zout,
         stage_zin_ohm=stage_zin, stage_zout_ohm=stage_zout, ss=ss, method=used,
@@ -245,6 +262,33 @@ def _frozen(a: np.ndarray) -> np.ndarray:
     a = np.array(a, copy=True)
     a.flags.writeable = False
     return a
+
+
+def _port_impedances(mna: Mna, jobs: Sequence[tuple[str, str | None, int, list[Stamp]]], s: np.ndarray,
+                     method: str) -> list[np.ndarray]:
+    """:func:`_port_impedance` of every ``(label, stage, node, removed)`` job.
+
+    At a few frequencies (where :func:`solve_entry` solves directly anyway)
+    every port at every frequency is one system of
+    :func:`chain.smallsignal.mna.solve_each_without`, all solved together."""
+    if method == "modal" or s.size > DIRECT_BELOW:
+        return [_port_impedance(mna, node, removed, s, method) for _, _, node, removed in jobs]
+    live = [k for k, job in enumerate(jobs) if job[2] >= 0]
+    out = [np.zeros(s.shape, dtype=complex) for _ in jobs]
+    if not live:
+        return out
+    removals, rhs, freq = [], [], []
+    for k in live:
+        b = np.zeros(mna.size)
+        b[jobs[k][2]] = 1.0
+        for i in range(s.size):
+            removals.append(jobs[k][3])
+            rhs.append(b)
+            freq.append(s[i])
+    x = solve_each_without(mna, np.array(freq), removals, np.array(rhs))
+    for j, k in enumerate(live):
+        out[k] = x[j * s.size:(j + 1) * s.size, jobs[k][2]]
+    return out
 
 
 def _port_impedance(mna: Mna, node: int, removed: Sequence[Stamp], s: np.ndarray,

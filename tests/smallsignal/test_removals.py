@@ -90,3 +90,27 @@ def test_ac_loads_of_a_long_cascade_are_one_dense_solve_per_stage():
         x = dense_reference(mna, 2j * np.pi * f_hz, own, b)
         ref = (x[k] if k >= 0 else 0.0) - x[p]
         assert got[st.name] == pytest.approx(ref, rel=1e-10)
+
+
+def test_port_impedances_at_a_few_frequencies_are_one_dense_solve_per_port():
+    """Each stage's output impedance (the parts outside the stage, rails aside,
+    taken off its output node, 1 A injected there) at the reference
+    frequencies, all ports solved together, against numpy.linalg.solve of each
+    port's own matrix."""
+    from chain.circuit import Owner
+    from chain.smallsignal import response
+
+    ss = linearised(9)
+    mna = M.assemble(ss)
+    f = np.array([1e3, 7e3])
+    got = response(ss, f)
+    assert got.port_zout_ohm.keys() == {st.name for st in ss.circuit.stages}
+    for st in ss.circuit.stages:
+        me = Owner("stage", st.name)
+        node = mna.index[ss.node_of[st.output]]
+        removed = [e for e in mna.stamps
+                   if e.kind != "V" and e.owner != me and e.owner.kind != "rail" and e.touches(node)]
+        b = np.zeros(mna.size)
+        b[node] = 1.0
+        ref = [dense_reference(mna, 2j * np.pi * fk, removed, b)[node] for fk in f]
+        assert np.allclose(got.stage_zout_ohm[st.name], ref, rtol=1e-10, atol=0.0)
