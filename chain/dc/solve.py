@@ -17,7 +17,7 @@ from chain.dc.diagnose import diagnose
 from chain.dc.engine import NetworkSystem, compile_network
 from chain.dc.result import CapacitorPoint, DcSolution, RailPoint, SolveOptions
 
-__all__ = ["solve", "rail_current"]
+__all__ = ["solve", "rail_current", "rail_currents"]
 
 
 def solve(circuit: Circuit, options: SolveOptions = SolveOptions()) -> DcSolution:
@@ -47,7 +47,8 @@ def solve(circuit: Circuit, options: SolveOptions = SolveOptions()) -> DcSolutio
     system = compile_network(circuit, gmin_s=options.gmin_s)
     state = system.solve(0.0, None, options=options)
     x = state.x
-    rails = {name: RailPoint(name=name, v=system.voltage(x, name), i_a=rail_current(system, x, name))
+    currents = rail_currents(system, x, circuit.rail_names())
+    rails = {name: RailPoint(name=name, v=system.voltage(x, name), i_a=currents[name])
              for name in circuit.rail_names()}
     caps = {c.name: CapacitorPoint(name=c.name, v=system.voltage(x, c.a) - system.voltage(x, c.b),
                                    rated_v=c.rated_v)
@@ -65,24 +66,32 @@ def rail_current(system: NetworkSystem, x: np.ndarray, rail: str) -> float:
     the feed (:meth:`Circuit.rail_feeds`): resistors, voltage branches,
     triode pins and gmin.
     """
+    return rail_currents(system, x, (rail,))[rail]
+
+
+def rail_currents(system: NetworkSystem, x: np.ndarray, rails) -> dict[str, float]:
+    """:func:`rail_current` of every rail in ``rails``, one pass over the parts
+    for all of them (each rail's terms summed in the same order)."""
     circuit = system.circuit
-    feeds = set(circuit.rail_feeds(rail))
-    v = system.voltage(x, rail)
-    total = system.gmin_s * v
+    feeds = {rail: set(circuit.rail_feeds(rail)) for rail in rails}
+    v = {rail: system.voltage(x, rail) for rail in rails}
+    total = {rail: system.gmin_s * v[rail] for rail in rails}
     for r in circuit.resistors:
-        if r.name in feeds or rail not in (r.a, r.b):
-            continue
-        other = r.b if r.a == rail else r.a
-        if other != rail:
-            total += (v - system.voltage(x, other)) / r.ohms
-    total += system.branch_current_out_of(x, rail, exclude=feeds)
+        for rail in dict.fromkeys((r.a, r.b)):
+            if rail not in total or r.name in feeds[rail]:
+                continue
+            other = r.b if r.a == rail else r.a
+            if other != rail:
+                total[rail] += (v[rail] - system.voltage(x, other)) / r.ohms
+    for rail in rails:
+        total[rail] += system.branch_current_out_of(x, rail, exclude=feeds[rail])
     if circuit.triodes:
         ip, ig, *_ = system.triode_currents(x)
         for i, tri in enumerate(circuit.triodes):
-            if tri.plate == rail:
-                total += ip[i]
-            if tri.grid == rail:
-                total += ig[i]
-            if tri.cathode == rail:
-                total -= ip[i] + ig[i]
-    return float(total)
+            if tri.plate in total:
+                total[tri.plate] += ip[i]
+            if tri.grid in total:
+                total[tri.grid] += ig[i]
+            if tri.cathode in total:
+                total[tri.cathode] -= ip[i] + ig[i]
+    return {rail: float(value) for rail, value in total.items()}
