@@ -1087,13 +1087,11 @@ class _Checker:
         self._abs_b = np.abs(b)
         # one product for G·x and C·x together: a dense GEMM, or from SPARSE_FROM
         # unknowns on a sparse one (its cost linear in the number of parts)
-        self._gc = np.hstack([mna.g.T, mna.c.T])
         if n >= SPARSE_FROM:
-            from scipy.sparse import csr_matrix
-
-            self._gc = csr_matrix(self._gc.T)  # (2N, N): both @ x.T
+            self._gc = _stacked_csr(mna.g, mna.c)  # (2N, N) = [G; C]: both @ x.T
             self._abs_gc = abs(self._gc)
         else:
+            self._gc = np.hstack([mna.g.T, mna.c.T])
             self._abs_gc = np.abs(self._gc)
 
     def _product(self, m, x: np.ndarray) -> np.ndarray:
@@ -1142,6 +1140,21 @@ class _Checker:
             return np.zeros_like(x), np.inf
         r, berr = self.each(x)
         return r, float(berr.max()) if berr.size else 0.0
+
+
+def _stacked_csr(g: np.ndarray, c: np.ndarray):
+    """``[G; C]`` (2N, N) as a CSR matrix of its non-zero entries, built from
+    their positions (row by row, columns increasing: the canonical order a
+    conversion from the dense stack gives) without forming that stack."""
+    from scipy.sparse import csr_matrix
+
+    n = g.shape[0]
+    gi, gj = np.nonzero(g)
+    ci, cj = np.nonzero(c)
+    rows = np.r_[gi, ci + n]
+    indptr = np.zeros(2 * n + 1, dtype=np.intp)
+    np.cumsum(np.bincount(rows, minlength=2 * n), out=indptr[1:])
+    return csr_matrix((np.r_[g[gi, gj], c[ci, cj]], np.r_[gj, cj], indptr), shape=(2 * n, n))
 
 
 class _RowPatch:

@@ -105,9 +105,24 @@ def _adjoint(mna: Mna, k: int, f_hz: float) -> tuple[complex, np.ndarray, np.nda
     return s, x, lam, complex(x[k])
 
 
-def gain_sensitivity(mna: Mna, k: int, f_hz: float, parts: set[str] | None = None) -> dict[str, complex]:
+class _Adjoints:
+    """:func:`_adjoint` of one transfer, each frequency solved once (the
+    rankings ask for the reference frequency's several times)."""
+
+    def __init__(self, mna: Mna, k: int):
+        self._mna, self._k = mna, k
+        self._done: dict[float, tuple[complex, np.ndarray, np.ndarray, complex]] = {}
+
+    def __call__(self, f_hz: float) -> tuple[complex, np.ndarray, np.ndarray, complex]:
+        if f_hz not in self._done:
+            self._done[f_hz] = _adjoint(self._mna, self._k, f_hz)
+        return self._done[f_hz]
+
+
+def gain_sensitivity(mna: Mna, k: int, f_hz: float, parts: set[str] | None = None, *,
+                     adjoint: _Adjoints | None = None) -> dict[str, complex]:
     """``d ln H / d ln x`` of the transfer to unknown ``k`` at ``f_hz`` for every part (complex)."""
-    s, x, lam, h = _adjoint(mna, k, f_hz)
+    s, x, lam, h = (adjoint or _Adjoints(mna, k))(f_hz)
     out: dict[str, complex] = {}
     if h == 0:
         return out
@@ -118,17 +133,18 @@ def gain_sensitivity(mna: Mna, k: int, f_hz: float, parts: set[str] | None = Non
     return out
 
 
-def _dlnh_dlnf(mna: Mna, k: int, f_hz: float) -> float:
-    s, x, lam, h = _adjoint(mna, k, f_hz)
+def _dlnh_dlnf(mna: Mna, k: int, f_hz: float, adjoint: _Adjoints | None = None) -> float:
+    s, x, lam, h = (adjoint or _Adjoints(mna, k))(f_hz)
     return float((-s * (lam @ (mna.c @ x)) / h).real)
 
 
 def corner_sensitivity(mna: Mna, k: int, f_corner_hz: float, f_ref_hz: float,
-                       parts: set[str] | None = None) -> dict[str, float]:
+                       parts: set[str] | None = None, *, adjoint: _Adjoints | None = None) -> dict[str, float]:
     """``d ln f_c / d ln x`` of a −3 dB corner relative to the gain at ``f_ref_hz``."""
-    at_c = gain_sensitivity(mna, k, f_corner_hz, parts)
-    at_ref = gain_sensitivity(mna, k, f_ref_hz, parts)
-    slope = _dlnh_dlnf(mna, k, f_corner_hz)
+    adjoint = adjoint or _Adjoints(mna, k)
+    at_c = gain_sensitivity(mna, k, f_corner_hz, parts, adjoint=adjoint)
+    at_ref = gain_sensitivity(mna, k, f_ref_hz, parts, adjoint=adjoint)
+    slope = _dlnh_dlnf(mna, k, f_corner_hz, adjoint)
     if slope == 0.0:
         return {}
     return {name: float(-(at_c[name].real - at_ref.get(name, 0.0).real) / slope) for name in at_c}
@@ -202,13 +218,14 @@ def rankings(ss: SmallSignalCircuit, dc, *, ref_hz: float, f_low_hz: float | Non
     k = mna.index.get(ss.node_of.get(ss.output_node, ss.output_node), -1)
     out: list[Ranking] = []
     if k >= 0:
-        g = gain_sensitivity(mna, k, ref_hz, parts)
-        h_ref = abs(_adjoint(mna, k, ref_hz)[3])
+        adjoint = _Adjoints(mna, k)
+        g = gain_sensitivity(mna, k, ref_hz, parts, adjoint=adjoint)
+        h_ref = abs(adjoint(ref_hz)[3])
         gain_db = db(h_ref) if h_ref > 0 else None
         out.append(_ranked("overall gain", gain_db, "dB", {n: v.real for n, v in g.items()}))
         for name, f_c in (("low corner", f_low_hz), ("high corner", f_high_hz)):
             if f_c is not None:
-                out.append(_ranked(name, f_c, "Hz", corner_sensitivity(mna, k, f_c, ref_hz, parts)))
+                out.append(_ranked(name, f_c, "Hz", corner_sensitivity(mna, k, f_c, ref_hz, parts, adjoint=adjoint)))
     bias = bias_sensitivity(circuit, dc)
     for st in circuit.stages:
         for t in st.triodes:

@@ -1,0 +1,64 @@
+"""Work that grows with the number of stages (issue 16), each checked against
+an independent computation of the same quantity: scipy's conversion of the
+dense matrix, numpy's dense solve, the plain per-pair loop it replaces."""
+
+import numpy as np
+import pytest
+from scipy.sparse import csr_matrix
+
+from chain.build import build
+from chain.dc import solve
+from chain.language import parse_text
+from chain.smallsignal import linearize
+from chain.smallsignal import mna as M
+
+from tests.smallsignal.test_sparse import cascade
+
+
+@pytest.fixture(scope="module")
+def big():
+    circuit = build(parse_text(cascade(12), "c12.chain"))
+    ss = linearize(circuit, solve(circuit))
+    return circuit, ss, M.assemble(ss)
+
+
+def test_stacked_sparse_g_and_c_equal_scipys_conversion_of_the_dense_stack(big):
+    # reference: scipy.sparse.csr_matrix of the dense (2N, N) stack [G; C]
+    _, _, mna = big
+    got = M._stacked_csr(mna.g, mna.c)
+    ref = csr_matrix(np.vstack([mna.g, mna.c]))
+    assert got.shape == ref.shape
+    assert np.array_equal(got.indptr, ref.indptr)
+    assert np.array_equal(got.indices, ref.indices)
+    assert np.array_equal(got.data, ref.data)
+
+
+def test_checker_residual_equals_the_dense_numpy_residual(big):
+    # reference: b − (G + s·C)·x formed with dense numpy products
+    _, _, mna = big
+    assert mna.size >= M.SPARSE_FROM  # the sparse product is the one under test
+    rng = np.random.default_rng(1)
+    s = 2j * np.pi * np.geomspace(10, 1e5, 5)
+    x = rng.standard_normal((s.size, mna.size)) + 1j * rng.standard_normal((s.size, mna.size))
+    b = mna.source_rhs()
+    r = M._Checker(mna, s, b).residual(x)
+    ref = b[None, :] - np.einsum("ij,kj->ki", mna.g, x) - s[:, None] * np.einsum("ij,kj->ki", mna.c, x)
+    assert np.allclose(r, ref, rtol=1e-13, atol=1e-13 * np.abs(ref).max())
+
+
+def test_rankings_solve_each_frequency_once_and_give_the_uncached_values(big, monkeypatch):
+    # reference: gain_sensitivity computed on its own (no shared adjoint), which
+    # tests/smallsignal/test_sensitivity.py checks against finite differences
+    from chain.smallsignal import sensitivity as S
+
+    circuit, ss, mna = big
+    k = mna.index[ss.node_of.get(ss.output_node, ss.output_node)]
+    parts = {p.name for p in (*circuit.resistors, *circuit.capacitors, *circuit.inductors)}
+    ref = S.gain_sensitivity(mna, k, 1e3, parts)
+    calls = []
+    real = S._adjoint
+    monkeypatch.setattr(S, "_adjoint", lambda *a: calls.append(a[2]) or real(*a))
+    got = S.rankings(ss, solve(circuit), ref_hz=1e3, f_low_hz=20.0, f_high_hz=20e3, mna=mna)
+    assert sorted(calls) == [20.0, 1e3, 20e3]  # three frequencies, each solved once
+    gain = dict(got[0].parts)
+    assert gain == {name: v.real for name, v in ref.items()}
