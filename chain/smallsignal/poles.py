@@ -400,15 +400,17 @@ def part_sensitivities(mna: Mna, s: complex, w: np.ndarray, v: np.ndarray) -> di
     return {name: complex(x) for name, x in zip(names, sens[:, 0])}
 
 
-def poles(ss: SmallSignalCircuit, *, mna: Mna | None = None, parts: int = 3) -> tuple[Pole, ...]:
+def poles(ss: SmallSignalCircuit, *, mna: Mna | None = None, parts: int = 3,
+          eigen: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None) -> tuple[Pole, ...]:
     """Every finite natural frequency of ``ss``, lowest first, each with the
     ``parts`` parts of largest normalised sensitivity (see the module docstring).
 
     A triode's ``"<name>.rp"`` counts by its plate resistance; ``"<name>.gm"``
-    by its transconductance.
+    by its transconductance.  ``eigen``: ``pencil_eigen(mna, vectors=True)``
+    when the caller already has it.
     """
     mna = assemble(ss) if mna is None else mna
-    s, w, v = pencil_eigen(mna, vectors=True)
+    s, w, v = pencil_eigen(mna, vectors=True) if eigen is None else eigen
     names, sens = sensitivity_matrix(mna, s, w, v) if parts else ((), np.zeros((0, s.size)))
     out = []
     for k, sk in enumerate(s):
@@ -514,25 +516,29 @@ def _magnitude_key(s: np.ndarray) -> np.ndarray:
 
 
 def _cancel(p: list[complex], z: list[complex]) -> tuple[list[complex], list[complex]]:
-    """Drop pole–zero pairs that coincide within :data:`CANCEL_REL`."""
+    """Drop pole–zero pairs that coincide within :data:`CANCEL_REL`: each pole
+    in turn takes the first zero, in order, that no earlier pole took and that
+    lies within ``CANCEL_REL·max(|p|, |z|)`` of it.  Which pairs are close is
+    found for all of them at once; only poles with a close zero are walked."""
     p, z = list(p), list(z)
-    kept_p = []
-    for x in p:
-        hit = None
-        for i, y in enumerate(z):
-            if abs(x - y) <= CANCEL_REL * max(abs(x), abs(y)):
-                hit = i
-                break
-        if hit is None:
-            kept_p.append(x)
-        else:
-            z.pop(hit)
-    return kept_p, z
+    if not p or not z:
+        return p, z
+    pa, za = np.array(p, dtype=complex), np.array(z, dtype=complex)
+    close = np.abs(pa[:, None] - za[None, :]) <= CANCEL_REL * np.maximum(np.abs(pa)[:, None], np.abs(za)[None, :])
+    taken = np.zeros(za.size, dtype=bool)
+    dropped = np.zeros(pa.size, dtype=bool)
+    for i in np.flatnonzero(close.any(axis=1)):
+        free = np.flatnonzero(close[i] & ~taken)
+        if free.size:
+            taken[free[0]] = True
+            dropped[i] = True
+    return ([x for x, d in zip(p, dropped) if not d], [y for y, t in zip(z, taken) if not t])
 
 
 def pole_zero(ss: SmallSignalCircuit, node: str | None = None, *, ref_hz: float = 1e3,
-              mna: Mna | None = None) -> PoleZero:
-    """The transfer from the source EMF to ``node`` (default: the output) as a :class:`PoleZero`."""
+              mna: Mna | None = None, poles_rad_s: np.ndarray | None = None) -> PoleZero:
+    """The transfer from the source EMF to ``node`` (default: the output) as a :class:`PoleZero`
+    (``poles_rad_s``: ``pencil_eigen(mna)`` when the caller already has it)."""
     from chain.smallsignal.mna import DirectSolver
 
     mna = assemble(ss) if mna is None else mna
@@ -546,7 +552,7 @@ def pole_zero(ss: SmallSignalCircuit, node: str | None = None, *, ref_hz: float 
         return PoleZero(node, (), (), ref_hz, 0j)
     x = DirectSolver(mna.g, mna.c, s_ref).solve(mna.source_rhs())
     h_ref = complex(x[0, k])
-    p = [complex(x) / (2.0 * math.pi) for x in pencil_eigen(mna)]
+    p = [complex(x) / (2.0 * math.pi) for x in (pencil_eigen(mna) if poles_rad_s is None else poles_rad_s)]
     z = [complex(x) / (2.0 * math.pi) for x in zeros(mna, k)]
     p, z = _cancel(p, z)
     return PoleZero(node, tuple(_snap_conjugates(p)), tuple(_snap_conjugates(z)), ref_hz, h_ref)
@@ -578,6 +584,8 @@ WINDING_MAX_STEP = math.pi / 4
 WINDING_PER_DECADE = 40
 #: halvings of one interval at most
 WINDING_MAX_DEPTH = 30
+#: roots whose phases along the fine grid are formed together in :func:`rhp_count`
+TURN_BLOCK = 64
 
 
 class _Determinant:
@@ -668,9 +676,7 @@ def rhp_count(mna: Mna, estimates: np.ndarray | None = None) -> int | None:
     # each root's phase arg(jω − p) is monotonic in ω; the sum of how far each has
     # turned (its sign aside: a root misplaced across the axis turns the other
     # way, the true one as much) says how densely to sample
-    turned = np.zeros(fine.size)
-    for p in s_est:
-        turned += np.abs(np.unwrap(np.angle(1j * fine - p)) - np.angle(1j * fine[0] - p))
+    turned = _turned(s_est, fine)
     # one sample each time the roots have turned by a quarter of the allowed step
     # in all (located clusters are spread out by rounding, the true ones are
     # tighter and turn faster), and at least WINDING_PER_DECADE per decade
@@ -685,6 +691,19 @@ def rhp_count(mna: Mna, estimates: np.ndarray | None = None) -> int | None:
     if abs(count - nearest) > 0.1 or nearest < 0:
         return None
     return int(nearest)
+
+
+def _turned(roots: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """``Σ_p |arg(jω − p) − arg(jω₀ − p)|`` (rad) along the increasing grid ``w``
+    (rad/s), each root's phase unwrapped along it: the phases of a block of
+    :data:`TURN_BLOCK` roots formed together, the sum taken root by root."""
+    turned = np.zeros(w.size)
+    jw = 1j * w
+    for lo in range(0, roots.size, TURN_BLOCK):
+        phase = np.angle(jw[None, :] - roots[lo:lo + TURN_BLOCK, None])
+        for row in np.abs(np.unwrap(phase, axis=1) - phase[:, :1]):
+            turned += row
+    return turned
 
 
 def _wrapped(a):

@@ -384,8 +384,9 @@ def stability(ss: SmallSignalCircuit, *, ref_hz: float = 1e3, band_hz: tuple[flo
     gain margin under :data:`GAIN_MARGIN_DB`.
     """
     mna = assemble(ss) if mna is None else mna
-    ps = poles(ss, mna=mna)
-    out = pole_zero(ss, ref_hz=ref_hz, mna=mna)
+    eigen = pencil_eigen(mna, vectors=True)  # one eigen-solve for the poles and the pole–zero form
+    ps = poles(ss, mna=mna, eigen=eigen)
+    out = pole_zero(ss, ref_hz=ref_hz, mna=mna, poles_rad_s=eigen[0])
     unstable = _pair_representatives(tuple(p for p in ps if p.unstable))
     diags: list[Diagnostic] = []
     if unstable and rhp_count(mna, np.array([2.0 * math.pi * p.s_hz for p in ps])) == 0:

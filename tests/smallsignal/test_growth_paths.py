@@ -62,3 +62,69 @@ def test_rankings_solve_each_frequency_once_and_give_the_uncached_values(big, mo
     assert sorted(calls) == [20.0, 1e3, 20e3]  # three frequencies, each solved once
     gain = dict(got[0].parts)
     assert gain == {name: v.real for name, v in ref.items()}
+
+
+def _cancel_by_pairs(p, z):
+    """The plain per-pair walk: each pole takes the first remaining zero within
+    CANCEL_REL of it (the definition the vectorised form must reproduce)."""
+    from chain.smallsignal.poles import CANCEL_REL
+
+    p, z = list(p), list(z)
+    kept = []
+    for x in p:
+        hit = next((i for i, y in enumerate(z) if abs(x - y) <= CANCEL_REL * max(abs(x), abs(y))), None)
+        if hit is None:
+            kept.append(x)
+        else:
+            z.pop(hit)
+    return kept, z
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_cancel_matches_the_per_pair_walk(seed):
+    # reference: _cancel_by_pairs above, on roots with planted near-coincident
+    # poles and zeros, repeated roots and a zero at the origin
+    from chain.smallsignal.poles import _cancel
+
+    rng = np.random.default_rng(seed)
+    p = list(rng.standard_normal(40) * 1e3 + 1j * rng.standard_normal(40) * 1e3)
+    p += [p[3], p[3], 0j]
+    z = [x * (1 + 1e-9 * rng.standard_normal()) for x in rng.choice(np.array(p), 15)]
+    z += list(rng.standard_normal(10) * 1e3) + [0j, p[3]]
+    rng.shuffle(z)
+    assert _cancel(p, z) == _cancel_by_pairs(p, z)
+
+
+def test_stability_uses_one_eigen_solve_with_the_same_poles_as_pole_zero_alone(big, monkeypatch):
+    # reference: pole_zero and poles each solving the pencil themselves (their
+    # accuracy against scipy's QZ: test_poles_and_zeros_agree_with_qz)
+    from chain.smallsignal import poles as P
+    from chain.smallsignal import stability as St
+
+    _, ss, mna = big
+    alone = P.pole_zero(ss, mna=mna)
+    calls = []
+    real = P.pencil_eigen
+    monkeypatch.setattr(St, "pencil_eigen", lambda *a, **k: calls.append(1) or real(*a, **k))
+    monkeypatch.setattr(P, "pencil_eigen", lambda *a, **k: calls.append(1) or real(*a, **k))
+    st = St.stability(ss, mna=mna)
+    assert len(calls) == 1
+    assert st.output.poles_hz == alone.poles_hz and st.output.zeros_hz == alone.zeros_hz
+    assert [p.s_hz for p in st.poles] == [p.s_hz for p in P.poles(ss, mna=mna)]
+
+
+def test_rhp_count_grid_turning_equals_the_per_root_sum(big):
+    # reference: the per-root loop it replaces (each root's unwrapped phase turn
+    # summed root by root): the same sample grid bit for bit, and the count of
+    # a stable cascade is zero
+    from chain.smallsignal import poles as P
+
+    _, _, mna = big
+    s_est = P.pencil_eigen(mna)
+    fine = np.geomspace(1.0, 1e9, 2000)
+    ref = np.zeros(fine.size)
+    for p in s_est:
+        ref += np.abs(np.unwrap(np.angle(1j * fine - p)) - np.angle(1j * fine[0] - p))
+    got = P._turned(s_est, fine)
+    assert np.array_equal(got, ref)
+    assert P.rhp_count(mna) == 0
