@@ -53,7 +53,7 @@ again, each while its error improves.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Iterable, Literal, Sequence, overload
+from typing import Callable, Iterable, Literal, Sequence, overload
 
 import numpy as np
 
@@ -700,19 +700,23 @@ class BandSolver:
         safe = np.where(inside, cols, 0)
         gb = np.where(inside, np.take_along_axis(gs, safe, axis=1), 0.0)
         cb = np.where(inside, np.take_along_axis(cs, safe, axis=1), 0.0)
-        rs = np.abs(gs).max(axis=1, initial=0.0)[:, None] + np.abs(cs).max(axis=1, initial=0.0)[:, None] * w[None, :]
-        with np.errstate(divide="ignore"):
-            self._rs = np.exp2(-np.round(np.log2(np.where(rs > 0.0, rs, 1.0))))  # (N, nf)
+        gmax, cmax = np.abs(gs).max(axis=1, initial=0.0), np.abs(cs).max(axis=1, initial=0.0)
+        #: arg det Y(s) when the factors are not kept (``keep=False``: only :meth:`det_phase` then)
+        self._arg_det: np.ndarray | None = None
+        if not keep and changes is None:
+            # each band row formed as the elimination reaches it: memory per
+            # frequency a few band rows, not the whole band (:func:`det_phases`)
+            self._arg_det = self._eliminate(self._row_maker(gb, cb, gmax, cmax), keep=False)
+            return
+        self._rs = _row_scales(gmax[:, None], cmax[:, None], w[None, :])  # (N, nf)
         # frequencies last throughout: every slice below is a contiguous run
         rows = self._band_rows(gb, cb)
         if changes is not None:
             self._apply(rows, changes)
-        #: arg det Y(s) when the factors are not kept (``keep=False``: only :meth:`det_phase` then)
-        self._arg_det: np.ndarray | None = None
         if keep:
-            self._piv, self._l, self._u = self._eliminate(rows)
+            self._piv, self._l, self._u = self._eliminate(rows.__getitem__)
         else:
-            self._arg_det = self._eliminate(rows, keep=False)
+            self._arg_det = self._eliminate(rows.__getitem__, keep=False)
 
     def _band_rows(self, gb: np.ndarray, cb: np.ndarray) -> np.ndarray:
         """Every scaled band row ``rs·(G + s·C)``, then ``lo + 1`` rows of zeros
@@ -724,6 +728,27 @@ class BandSolver:
             rows.real[:n] += self._rs[:, None, :] * cb[:, :, None] * s.real[None, None, :]
         np.multiply(self._rs[:, None, :] * s.imag[None, None, :], cb[:, :, None], out=rows.imag[:n])
         return rows
+
+    def _row_maker(self, gb: np.ndarray, cb: np.ndarray, gmax: np.ndarray, cmax: np.ndarray):
+        """``row(k)``: band row ``k`` as :meth:`_band_rows` forms it (the same
+        operations, element by element), its row scale included; zeros past N."""
+        n, s = self._n, self._s
+        w = np.abs(s)
+        real = bool(np.any(s.real != 0.0))
+        zero = np.zeros((self._lo + self._up + 1, s.size), dtype=complex)
+
+        def row(k: int) -> np.ndarray:
+            if k >= n:
+                return zero
+            rs = _row_scales(gmax[k], cmax[k], w)
+            out = np.empty_like(zero)
+            np.multiply(rs[None, :], gb[k][:, None], out=out.real)
+            if real:
+                out.real += rs[None, :] * cb[k][:, None] * s.real[None, :]
+            np.multiply((rs * s.imag)[None, :], cb[k][:, None], out=out.imag)
+            return out
+
+        return row
 
     def _apply(self, rows: np.ndarray, changes: "Changes") -> None:
         """Add each system's own entries (``changes``, in the original unknowns'
@@ -737,18 +762,19 @@ class BandSolver:
         np.add.at(rows, (i, band, k), scale * (changes.dg + self._s[k] * changes.dc))
 
     @overload
-    def _eliminate(self, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]: ...
+    def _eliminate(self, row: Callable[[int], np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]: ...
 
     @overload
-    def _eliminate(self, rows: np.ndarray, keep: Literal[False]) -> np.ndarray: ...
+    def _eliminate(self, row: Callable[[int], np.ndarray], keep: Literal[False]) -> np.ndarray: ...
 
-    def _eliminate(self, rows: np.ndarray, keep: bool = True):
-        """The factors of the band ``rows`` (see :meth:`_band_rows`): ``(row
-        interchange per step (N, nf), multipliers (N, lo, nf), rows of U (N, wide, nf))``;
-        with ``keep=False`` only ``arg det`` (nf,) (the sum of the pivots' arguments
+    def _eliminate(self, row: Callable[[int], np.ndarray], keep: bool = True):
+        """The factors of the band whose row ``k`` is ``row(k)`` ((wide, nf), see
+        :meth:`_band_rows`; zeros for ``k ≥ N``): ``(row interchange per step
+        (N, nf), multipliers (N, lo, nf), rows of U (N, wide, nf))``; with
+        ``keep=False`` only ``arg det`` (nf,) (the sum of the pivots' arguments
         and π per interchange), no factor stored."""
         n, lo, up = self._n, self._lo, self._up
-        nf = rows.shape[2]
+        nf = self._s.size
         wide = lo + up + 1
         shape = (n, nf) if keep else (0, nf)
         piv = np.zeros(shape, dtype=np.intp)
@@ -759,7 +785,7 @@ class BandSolver:
         # window row r, column t: Y[k + r, k + t] at step k
         win = np.zeros((lo + 1, wide, nf), dtype=complex)
         for r in range(lo + 1):
-            win[r, :up + 1 + r] = rows[r, lo - r:]
+            win[r, :up + 1 + r] = row(r)[lo - r:]
         spare = np.zeros_like(win)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             for k in range(n):
@@ -785,7 +811,7 @@ class BandSolver:
                 # slide: rows 1 … lo move up and left, the next band row enters at the bottom
                 spare[:lo, :wide - 1] = win[1:, 1:]
                 spare[:lo, wide - 1] = 0.0
-                spare[lo] = rows[k + 1 + lo]
+                spare[lo] = row(k + 1 + lo)
                 win, spare = spare, win
         if not keep:
             return arg + np.pi * swaps
@@ -830,6 +856,14 @@ class BandSolver:
         out[:, self._order] = y[:n].T
         with np.errstate(over="ignore", invalid="ignore"):
             return out * self._c
+
+
+def _row_scales(gmax, cmax, w):
+    """Per-frequency row scales: the powers of two nearest ``1 / (gmax + |s|·cmax)``
+    (1 where that sum is 0); ``gmax``, ``cmax`` and ``w = |s|`` broadcast together."""
+    rs = gmax + cmax * w
+    with np.errstate(divide="ignore"):
+        return np.exp2(-np.round(np.log2(np.where(rs > 0.0, rs, 1.0))))
 
 
 def _equilibrate_entries(rows: np.ndarray, cols: np.ndarray, values: np.ndarray, n: int,
@@ -878,7 +912,7 @@ def band_factor_bytes(n_unknowns: int, n_freq: int, lower: int, upper: int) -> i
 
 
 #: the determinants of :func:`det_phases` are formed in blocks of frequencies
-#: whose band rows take at most this many bytes
+#: whose elimination windows and band rows in flight take at most this many bytes
 DET_BLOCK_BYTES = 8 * 2**20
 
 
@@ -893,7 +927,9 @@ def det_phases(g: np.ndarray, c: np.ndarray, s: np.ndarray) -> np.ndarray | None
     if plan is None:
         return None
     order, lo, up = plan
-    block = max(1, DET_BLOCK_BYTES // (n * ((lo + up + 1) * 16 + 8)))
+    # per frequency: the window and its spare ((lo + 1) rows each), the next
+    # band row and the elimination's temporaries (about four rows more)
+    block = max(1, DET_BLOCK_BYTES // ((2 * (lo + 1) + 5) * (lo + up + 1) * 16))
     out = np.empty(s.size)
     for start in range(0, s.size, block):
         part = s[start:start + block]
