@@ -577,7 +577,7 @@ class SparseSolver:
         n = g.shape[0]
         w = np.abs(s)
         s_mid = float(np.sqrt(w.min() * w.max())) if w.size else 1.0
-        cols, rows = np.nonzero((g != 0.0).T | (c != 0.0).T)  # column-major: CSC order
+        cols, rows = nonzero_positions((g != 0.0).T | (c != 0.0).T)  # column-major: CSC order
         self._r, self._c = _equilibrate_entries(rows, cols, np.abs(g[rows, cols]) + s_mid * np.abs(c[rows, cols]), n)
         scale = self._r[rows] * self._c[cols]
         gd, cd = g[rows, cols] * scale, c[rows, cols] * scale
@@ -607,6 +607,14 @@ class SparseSolver:
                 xs[i] = lu.solve(rhs[i].astype(complex))
         with np.errstate(over="ignore", invalid="ignore"):
             return xs * self._c
+
+
+def nonzero_positions(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``np.nonzero(mask)`` of a 2-D boolean ``mask``: the same (row, column)
+    pairs in the same (row-major) order, found on the flattened mask, which
+    numpy scans several times faster than a 2-D one."""
+    flat = np.flatnonzero(mask)
+    return np.divmod(flat, mask.shape[1])
 
 
 def _band_order(pattern: np.ndarray) -> np.ndarray:
@@ -642,7 +650,7 @@ def _band_order(pattern: np.ndarray) -> np.ndarray:
 
 def _bandwidths(pattern: np.ndarray) -> tuple[int, int]:
     """``(lower, upper)`` bandwidth of the non-zero ``pattern``."""
-    i, j = np.nonzero(pattern)
+    i, j = nonzero_positions(pattern)
     if i.size == 0:
         return 0, 0
     return int(max(0, (i - j).max())), int(max(0, (j - i).max()))
@@ -1185,8 +1193,8 @@ def _stacked_csr(g: np.ndarray, c: np.ndarray):
     from scipy.sparse import csr_matrix
 
     n = g.shape[0]
-    gi, gj = np.nonzero(g)
-    ci, cj = np.nonzero(c)
+    gi, gj = nonzero_positions(g != 0.0)
+    ci, cj = nonzero_positions(c != 0.0)
     rows = np.r_[gi, ci + n]
     indptr = np.zeros(2 * n + 1, dtype=np.intp)
     np.cumsum(np.bincount(rows, minlength=2 * n), out=indptr[1:])

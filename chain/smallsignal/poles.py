@@ -595,12 +595,12 @@ class _Determinant:
     :data:`chain.smallsignal.mna.SPARSE_FROM` unknowns, sparse) LU per point."""
 
     def __init__(self, mna: Mna):
-        from chain.smallsignal.mna import SPARSE_FROM
+        from chain.smallsignal.mna import SPARSE_FROM, nonzero_positions
 
         self.g, self.c = mna.g, mna.c
         self.sparse = mna.size >= SPARSE_FROM
         if self.sparse:
-            cols, rows = np.nonzero((mna.g != 0.0).T | (mna.c != 0.0).T)  # column-major: CSC order
+            cols, rows = nonzero_positions((mna.g != 0.0).T | (mna.c != 0.0).T)  # column-major: CSC order
             self.rows, self.indptr, self.n = rows, np.searchsorted(cols, np.arange(mna.size + 1)), mna.size
             self.gd, self.cd = mna.g[rows, cols], mna.c[rows, cols]
 

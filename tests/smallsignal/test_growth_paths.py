@@ -154,3 +154,14 @@ def test_cascade_determinant_phases_match_numpy_slogdet(big, monkeypatch, block_
     ref = np.array([np.angle(np.linalg.slogdet(mna.g + sk * mna.c)[0]) for sk in s])
     diff = (got - ref + np.pi) % (2 * np.pi) - np.pi
     assert np.all(np.abs(diff) < 1e-8)
+
+
+@pytest.mark.parametrize("shape", [(1, 1), (7, 3), (40, 40), (0, 5)])
+def test_nonzero_positions_equal_numpys_nonzero(shape):
+    # reference: numpy.nonzero of the same 2-D mask, and of its transpose
+    rng = np.random.default_rng(sum(shape))
+    mask = rng.random(shape) < 0.2
+    for m in (mask, mask.T):
+        got = M.nonzero_positions(m)
+        ref = np.nonzero(m)
+        assert all(np.array_equal(a, b) for a, b in zip(got, ref))
