@@ -81,12 +81,14 @@ def diagnose(circuit: Circuit, solution: DcSolution, options: SolveOptions | Non
     ordered = [name for s in circuit.stages for name in s.triodes if name in triodes]
     ordered += [name for name in triodes if name not in ordered]
     cold = _cold_plate_voltages(circuit, options)
+    leaks = _grid_leaks(circuit)
     out: list[Diagnostic] = []
     for name in ordered:
         point = solution.points.get(name)
         if point is None:
             continue
-        out.extend(_triode_checks(circuit, triodes[name], point, cold.get(name), options))
+        leak = leaks.get(Owner("stage", circuit.stage_of_triode(name)))
+        out.extend(_triode_checks(circuit, triodes[name], point, cold.get(name), options, leak))
     out.extend(_capacitor_checks(circuit, solution))
     out.extend(_floating_checks(circuit))
     return tuple(out)
@@ -102,7 +104,9 @@ def _cold_plate_voltages(circuit: Circuit, options: SolveOptions) -> dict[str, f
 
 
 def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: float | None,
-                   options: SolveOptions) -> list[Diagnostic]:
+                   options: SolveOptions, leak: Resistor | None) -> list[Diagnostic]:
+    """The warnings about one triode's operating point; ``leak``: its stage's
+    grid leak (:func:`_grid_leaks`), or None."""
     subject = circuit.stage_of_triode(tri.name)
     who = circuit.stage_label(subject)
     r = tri.model.ratings
@@ -167,7 +171,6 @@ def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: f
             hint="raise the cathode resistor or the plate load", subject=subject))
     rg_max = _rating(r, "rg_max_ohm")
     if rg_max is not None:
-        leak = _grid_leak(circuit, tri)
         if leak is not None and leak.ohms > rg_max:
             out.append(warning(
                 "W408", f"{who} grid leak {leak.name} = {_ohm(leak.ohms)} is over the rated maximum "
@@ -177,11 +180,16 @@ def _triode_checks(circuit: Circuit, tri: Triode, p: OperatingPoint, cold_vpk: f
     return out
 
 
-def _grid_leak(circuit: Circuit, tri: Triode) -> Resistor | None:
-    """The grid leak of the stage that holds ``tri`` (the largest, if several), or None."""
-    own = Owner("stage", circuit.stage_of_triode(tri.name))
-    leaks = [r for r in circuit.resistors if r.owner == own and r.role == Role.GRID_LEAK]
-    return max(leaks, key=lambda r: r.ohms) if leaks else None
+def _grid_leaks(circuit: Circuit) -> dict[Owner, Resistor]:
+    """Each owner's grid leak (the largest, the first of equals, if several),
+    in one pass over the resistors."""
+    out: dict[Owner, Resistor] = {}
+    for r in circuit.resistors:
+        if r.role == Role.GRID_LEAK:
+            best = out.get(r.owner)
+            if best is None or r.ohms > best.ohms:
+                out[r.owner] = r
+    return out
 
 
 def _capacitor_checks(circuit: Circuit, solution: DcSolution) -> list[Diagnostic]:
