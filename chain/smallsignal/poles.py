@@ -539,7 +539,7 @@ def pole_zero(ss: SmallSignalCircuit, node: str | None = None, *, ref_hz: float 
               mna: Mna | None = None, poles_rad_s: np.ndarray | None = None) -> PoleZero:
     """The transfer from the source EMF to ``node`` (default: the output) as a :class:`PoleZero`
     (``poles_rad_s``: ``pencil_eigen(mna)`` when the caller already has it)."""
-    from chain.smallsignal.mna import DirectSolver
+    from chain.smallsignal.mna import direct_solver
 
     mna = assemble(ss) if mna is None else mna
     node = ss.output_node if node is None else node
@@ -550,7 +550,7 @@ def pole_zero(ss: SmallSignalCircuit, node: str | None = None, *, ref_hz: float 
     s_ref = np.array([2j * math.pi * ref_hz])
     if k < 0:
         return PoleZero(node, (), (), ref_hz, 0j)
-    x = DirectSolver(mna.g, mna.c, s_ref).solve(mna.source_rhs())
+    x = direct_solver(mna.g, mna.c, s_ref).solve(mna.source_rhs())  # dense, or sparse LU when large
     h_ref = complex(x[0, k])
     p = [complex(x) / (2.0 * math.pi) for x in (pencil_eigen(mna) if poles_rad_s is None else poles_rad_s)]
     z = [complex(x) / (2.0 * math.pi) for x in zeros(mna, k)]

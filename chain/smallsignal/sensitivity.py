@@ -47,7 +47,7 @@ from typing import Mapping
 import numpy as np
 
 from chain.circuit import Capacitor, Inductor, Resistor
-from chain.smallsignal.mna import DirectSolver, Mna, Stamp, assemble
+from chain.smallsignal.mna import Mna, Stamp, assemble, direct_solver
 from chain.smallsignal.model import SmallSignalCircuit
 from chain.decibels import db
 
@@ -95,13 +95,14 @@ def _pair(st: Stamp, lam: np.ndarray, x: np.ndarray, s: complex) -> complex:
 
 
 def _adjoint(mna: Mna, k: int, f_hz: float) -> tuple[complex, np.ndarray, np.ndarray, complex]:
-    """``(s, x, λ, H)`` at ``f_hz``."""
+    """``(s, x, λ, H)`` at ``f_hz``: one direct solve each (:func:`direct_solver`
+    at one frequency: dense below ``SPARSE_FROM`` unknowns, a sparse LU from there)."""
     s = 2j * math.pi * f_hz
     sv = np.array([s])
-    x = DirectSolver(mna.g, mna.c, sv).solve(mna.source_rhs())[0]
+    x = direct_solver(mna.g, mna.c, sv).solve(mna.source_rhs())[0]
     e = np.zeros(mna.size)
     e[k] = 1.0
-    lam = DirectSolver(mna.g.T, mna.c.T, sv).solve(e)[0]
+    lam = direct_solver(mna.g.T, mna.c.T, sv).solve(e)[0]
     return s, x, lam, complex(x[k])
 
 

@@ -165,3 +165,32 @@ def test_nonzero_positions_equal_numpys_nonzero(shape):
         got = M.nonzero_positions(m)
         ref = np.nonzero(m)
         assert all(np.array_equal(a, b) for a, b in zip(got, ref))
+
+
+def test_adjoint_of_a_large_circuit_matches_numpy_dense_solves(big):
+    # reference: numpy.linalg.solve of Y(s) and of its transpose (the sparse LU
+    # serves from SPARSE_FROM unknowns on)
+    from chain.smallsignal.sensitivity import _adjoint
+
+    _, ss, mna = big
+    k = mna.index[ss.node_of.get(ss.output_node, ss.output_node)]
+    s, x, lam, h = _adjoint(mna, k, 1e3)
+    y = mna.g + s * mna.c
+    e = np.zeros(mna.size)
+    e[k] = 1.0
+    x_ref = np.linalg.solve(y, mna.source_rhs())
+    lam_ref = np.linalg.solve(y.T, e)
+    assert np.allclose(x, x_ref, rtol=1e-9, atol=1e-12 * np.abs(x_ref).max())
+    assert np.allclose(lam, lam_ref, rtol=1e-9, atol=1e-12 * np.abs(lam_ref).max())
+    assert h == x[k]
+
+
+def test_pole_zero_reference_gain_of_a_large_circuit_matches_numpy(big):
+    # reference: numpy.linalg.solve of Y(j·2π·1 kHz) for the output's transfer
+    from chain.smallsignal.poles import pole_zero
+
+    _, ss, mna = big
+    k = mna.index[ss.node_of.get(ss.output_node, ss.output_node)]
+    pz = pole_zero(ss, mna=mna, ref_hz=1e3)
+    ref = np.linalg.solve(mna.g + 2j * np.pi * 1e3 * mna.c, mna.source_rhs())[k]
+    assert abs(pz.h_ref - ref) <= 1e-9 * abs(ref)
