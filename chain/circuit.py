@@ -45,7 +45,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from enum import Enum
 from types import MappingProxyType
-from typing import Literal, Mapping, Protocol, Union
+from typing import Iterable, Literal, Mapping, Protocol, Union
 
 from chain.errors import Span
 from chain.language.design import StageKind
@@ -560,17 +560,29 @@ class Circuit:
         it to a rail listed before it.  The rail's current is what flows out
         of the node through every *other* element.
         """
+        return self.rails_feeds((rail,))[rail]
+
+    def rails_feeds(self, rails: Iterable[str]) -> dict[str, tuple[str, ...]]:
+        """:meth:`rail_feeds` of every rail in ``rails``, in one pass over the parts."""
         names = self.rail_names()
-        earlier = set(names[:names.index(rail)]) if rail in names else set()
-        feeds = [s.name for s in self.sources if rail in (s.pos, s.neg)]
-        own_feed = {(Owner("rail", rail), Role.RAIL_DROP), (Owner("supply", rail), Role.SUPPLY_IMPEDANCE)}
+        place: dict[str, int] = {}
+        for i, name in enumerate(names):
+            place.setdefault(name, i)  # each rail's first place in the list
+        wanted = {rail: place.get(rail, -1) for rail in rails}
+        feeds: dict[str, list[str]] = {rail: [s.name for s in self.sources if rail in (s.pos, s.neg)]
+                                       for rail in wanted}
         parts: tuple[Resistor | Inductor, ...] = (*self.resistors, *self.inductors)
         for part in parts:
-            if rail in (part.a, part.b):
+            for rail in dict.fromkeys((part.a, part.b)):
+                if rail not in wanted:
+                    continue
                 other = part.b if part.a == rail else part.a
-                if (part.owner, part.role) in own_feed or other in earlier:
-                    feeds.append(part.name)
-        return tuple(feeds)
+                own = (part.role == Role.RAIL_DROP and part.owner == Owner("rail", rail)) or \
+                    (part.role == Role.SUPPLY_IMPEDANCE and part.owner == Owner("supply", rail))
+                # "other" is a rail listed before this one (none is before a rail not listed)
+                if own or 0 <= place.get(other, -1) < wanted[rail]:
+                    feeds[rail].append(part.name)
+        return {rail: tuple(names_) for rail, names_ in feeds.items()}
 
     def dc_floating_nodes(self, held_caps: Mapping[str, float] | None = None) -> tuple[str, ...]:
         """Nodes with no DC path to ground through resistors, inductors or sources.

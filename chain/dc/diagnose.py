@@ -30,7 +30,7 @@ the report layer formats further.
 from __future__ import annotations
 
 from chain.circuit import Circuit, Owner, Resistor, Role, Triode
-from chain.dc.engine import compile_network
+from chain.dc.engine import NetworkSystem, compile_network
 from chain.dc.result import DcSolution, OperatingPoint, SolveOptions
 from chain.errors import Diagnostic, warning
 from chain.units import format_si
@@ -59,7 +59,8 @@ def _rating(ratings, name: str) -> float | None:
     return None if value is None else float(value)
 
 
-def diagnose(circuit: Circuit, solution: DcSolution, options: SolveOptions | None = None) -> tuple[Diagnostic, ...]:
+def diagnose(circuit: Circuit, solution: DcSolution, options: SolveOptions | None = None, *,
+             system: NetworkSystem | None = None) -> tuple[Diagnostic, ...]:
     """Warnings about a solved DC operating point.
 
     Parameters
@@ -70,6 +71,9 @@ def diagnose(circuit: Circuit, solution: DcSolution, options: SolveOptions | Non
         Its DC solution (``solution.diagnostics`` is ignored).
     options : SolveOptions, optional
         Thresholds and derating; defaults to ``solution.options``.
+    system : NetworkSystem, optional
+        The circuit's compiled network, when the caller has it (with the same
+        gmin): the cold plate voltages are then solved on it, not on a new one.
 
     Returns
     -------
@@ -80,7 +84,7 @@ def diagnose(circuit: Circuit, solution: DcSolution, options: SolveOptions | Non
     triodes = {t.name: t for t in circuit.triodes}
     ordered = [name for s in circuit.stages for name in s.triodes if name in triodes]
     ordered += [name for name in triodes if name not in ordered]
-    cold = _cold_plate_voltages(circuit, options)
+    cold = _cold_plate_voltages(circuit, options, system)
     leaks = _grid_leaks(circuit)
     out: list[Diagnostic] = []
     for name in ordered:
@@ -94,11 +98,14 @@ def diagnose(circuit: Circuit, solution: DcSolution, options: SolveOptions | Non
     return tuple(out)
 
 
-def _cold_plate_voltages(circuit: Circuit, options: SolveOptions) -> dict[str, float]:
-    """Plate–cathode voltage of each triode with every tube cold (no current), V."""
+def _cold_plate_voltages(circuit: Circuit, options: SolveOptions,
+                         system: NetworkSystem | None = None) -> dict[str, float]:
+    """Plate–cathode voltage of each triode with every tube cold (no current), V
+    (on ``system`` when it is this circuit's network with the same gmin)."""
     if not circuit.triodes:
         return {}
-    system = compile_network(circuit, gmin_s=options.gmin_s)
+    if system is None or system.circuit is not circuit or system.gmin_s != options.gmin_s:
+        system = compile_network(circuit, gmin_s=options.gmin_s)
     x = system.cold_solution(0.0)
     return {t.name: system.voltage(x, t.plate) - system.voltage(x, t.cathode) for t in circuit.triodes}
 

@@ -56,7 +56,7 @@ def solve(circuit: Circuit, options: SolveOptions = SolveOptions()) -> DcSolutio
     solution = DcSolution(points=system.operating_points(x), rails=rails, capacitors=caps,
                           node_v=dict(state.node_v), iterations=state.iterations,
                           max_residual_a=state.max_residual_a, options=options)
-    return replace(solution, diagnostics=diagnose(circuit, solution, options))
+    return replace(solution, diagnostics=diagnose(circuit, solution, options, system=system))
 
 
 def rail_current(system: NetworkSystem, x: np.ndarray, rail: str) -> float:
@@ -73,7 +73,7 @@ def rail_currents(system: NetworkSystem, x: np.ndarray, rails) -> dict[str, floa
     """:func:`rail_current` of every rail in ``rails``, one pass over the parts
     for all of them (each rail's terms summed in the same order)."""
     circuit = system.circuit
-    feeds = {rail: set(circuit.rail_feeds(rail)) for rail in rails}
+    feeds = {rail: set(names) for rail, names in circuit.rails_feeds(rails).items()}
     v = {rail: system.voltage(x, rail) for rail in rails}
     total = {rail: system.gmin_s * v[rail] for rail in rails}
     for r in circuit.resistors:
