@@ -35,7 +35,8 @@ sweep     ``chain.smallsignal.response`` at POINTS frequencies (as the
           ``stage_table`` at 1 kHz
 headroom  ``chain.headroom.headroom`` of the padded cascade at 100 mV, and
           its peak traced memory (tracemalloc, one more run)
-analysis  ``chain.analysis.analyze_design`` without headroom: the whole
+analysis  ``chain.analysis.analyze_design`` without headroom (best of REPEATS,
+          and its peak traced memory): the whole
           small-signal analysis including what other sections add (poles,
           sensitivities)
 numpy     the floor: ``numpy.linalg.solve`` of the stack of ``Y(s)`` for the
@@ -201,12 +202,14 @@ def main(argv=None) -> int:
           f"load average {os.getloadavg()[0]:.2f}; {args.points} points; best of {args.repeats}")
     head = (f"{'stages':>6} {'unknowns':>8} {'stable':>6} {'dc ms':>8} {'solve ms':>9} {'sweep ms':>9} "
             f"{'method':>16} {'sweep MB':>8} {'headroom s':>10} {'head MB':>7} {'clips':>5} {'padded':>6} "
-            f"{'analysis s':>10} {'numpy ms':>9} "
+            f"{'analysis s':>10} {'an. MB':>6} {'numpy ms':>9} "
             f"{'sparse ms':>9} {'lcapy s':>8} {'numpy/solve':>11} {'sparse/solve':>12}")
     print(head)
     if args.headroom_max_stages >= 1:
         time_headroom(1, args.points)  # imports (scipy.optimize, scipy.interpolate) out of the timing
     heads: dict[int, tuple[float, float]] = {}
+    whole: dict[int, tuple[float, float]] = {}
+    dcs: dict[int, tuple[float, float]] = {}
     for n in counts:
         design = parse_text(cascade(n, args.points), f"growth{n}.chain")
         circuit = build(design)
@@ -243,12 +246,15 @@ def main(argv=None) -> int:
                 pad_ok = "yes" if ok else "NO"
             except Exception as exc:  # reported, not hidden
                 print(f"  headroom of {n} stages: {type(exc).__name__}: {str(exc).splitlines()[0]}", file=sys.stderr)
-        t0 = time.perf_counter()
+        t_an = mb_an = float("nan")
         try:
+            t_an = best_of(lambda: analyze_design(design, circuit, (), headroom=False), args.repeats)
+            tracemalloc.start()
             analyze_design(design, circuit, (), headroom=False)
-            t_an = time.perf_counter() - t0
+            mb_an = tracemalloc.get_traced_memory()[1] / 2**20
+            tracemalloc.stop()
         except Exception as exc:  # an analysis section refusing the circuit is reported, not hidden
-            t_an = float("nan")
+            tracemalloc.stop()
             print(f"  analysis of {n} stages: {type(exc).__name__}: {exc}", file=sys.stderr)
         t_lc = float("nan")
         if n <= args.lcapy_max_stages:
@@ -260,14 +266,19 @@ def main(argv=None) -> int:
                 t_lc = got[1]
         print(f"{n:6d} {mna.size:8d} {'yes' if stable(mna) else 'NO':>6} {t_dc * 1e3:8.1f} {t_solve * 1e3:9.1f} "
               f"{t_sweep * 1e3:9.1f} {result['r'].method:>16} {peak_mb:8.1f} {t_head:10.2f} {mb_head:7.1f} "
-              f"{clips:5d} {pad_ok:>6} {t_an:10.2f} "
+              f"{clips:5d} {pad_ok:>6} {t_an:10.2f} {mb_an:6.1f} "
               f"{t_np * 1e3:9.1f} {t_sp * 1e3:9.1f} {t_lc:8.2f} {t_np / t_solve:11.2f} {t_sp / t_solve:12.2f}",
               flush=True)
         heads[n] = (t_head, mb_head)
+        whole[n] = (t_an, mb_an)
+        dcs[n] = (t_dc, float("nan"))
     doubled = [(n, 2 * n) for n in counts if 2 * n in heads and n in heads]
-    if doubled:
-        print("headroom per doubling of stages (time, memory): " + "; ".join(
-            f"{a}->{b}: x{heads[b][0] / heads[a][0]:.2f}, x{heads[b][1] / heads[a][1]:.2f}" for a, b in doubled))
+    for what, table in (("headroom", heads), ("analysis", whole), ("dc solve", dcs)):
+        if doubled:
+            print(f"{what} per doubling of stages (time, memory): " + "; ".join(
+                f"{a}->{b}: x{table[b][0] / table[a][0]:.2f}"
+                + (f", x{table[b][1] / table[a][1]:.2f}" if np.isfinite(table[a][1]) else "")
+                for a, b in doubled))
     return 0
 
 
