@@ -213,7 +213,7 @@ def _labels(circuit, nodes: Sequence[str]) -> list[str]:
         if node in chain_outs:
             labels.append(f"output {chain_outs[node]}")
         elif node == circuit.output_node:
-            labels.append(f"output ({node})")
+            labels.append("output" if node == "output" else f"output ({node})")
         elif node in outs:
             labels.append(f"{outs[node]} out ({node})")
         else:

@@ -61,7 +61,7 @@ def test_stage_traces_and_corners(resp):
     assert len(plot.corner_lines) == 2  # one marker per panel
     assert all(line.get_xdata()[0] == 35.0 for line in plot.corner_lines)
     labels = [t.get_text() for t in plot.legend.get_texts()]
-    assert labels == ["V1 out (V1.plate)", "output (output)"]
+    assert labels == ["V1 out (V1.plate)", "output"]  # the node named 'output' is not named twice
     assert plot.figure._suptitle.get_text() == "stage V1"
 
 
