@@ -179,26 +179,29 @@ def _fail(parts, what: str, netlist: str, exc: Exception) -> FormulaError:
 
 
 def _solve(parts, model: "StageModel", quantities, what: str) -> dict[str, Any]:
-    """Solve one drive's netlist; each quantity read from it as a sympy expression."""
-    import lcapy
+    """Solve one drive's netlist; each quantity read from it as a sympy expression.
+
+    The netlist is solved by :func:`chain.formulas.nodal.solve_netlist`
+    (exact, the same rational functions as lcapy), or by lcapy when it uses
+    an element that solver does not read.
+    """
     import sympy
 
     try:
-        cct = lcapy.Circuit(model.text)
-        s = lcapy.s
+        cct = _circuit(model.text)
         voltages: dict[str, Any] = {}
 
         def v(node: str):
             n = model.node(node)
             if n not in voltages:
-                voltages[n] = sympy.Integer(0) if n == "0" or n not in cct.nodes else cct[n].V(s).sympy
+                voltages[n] = sympy.Integer(0) if n == "0" or n not in cct.nodes else cct.V(n)
             return voltages[n]
 
         out = {}
         for q in quantities:
             how, *args = q.read
             if how == "z":
-                y = sympy.cancel(-cct[args[0]].I(s).sympy)
+                y = sympy.cancel(-cct.I(args[0]))
                 out[q.name] = sympy.zoo if y == 0 else sympy.factor(sympy.cancel(1 / y))
                 continue
             if how == "v":
@@ -218,10 +221,37 @@ def _solve(parts, model: "StageModel", quantities, what: str) -> dict[str, Any]:
         raise _fail(parts, what, model.text, exc) from exc
 
 
-def _laplace_symbol():
-    import lcapy
+class _LcapyCircuit:
+    """lcapy's solution of a netlist, read like :class:`~chain.formulas.nodal.NodalSolution`."""
 
-    return lcapy.s.sympy
+    def __init__(self, text: str) -> None:
+        import lcapy
+
+        self._cct = lcapy.Circuit(text)
+        self._s = lcapy.s
+        self.nodes = tuple(self._cct.nodes)
+
+    def V(self, node: str):
+        return self._cct[node].V(self._s).sympy
+
+    def I(self, source: str):  # noqa: E743 - the circuit-theory name
+        return self._cct[source].I(self._s).sympy
+
+
+def _circuit(text: str):
+    """The solved netlist: by the nodal solver, else (an element it does not read) by lcapy."""
+    from chain.formulas.nodal import UnsupportedNetlist, solve_netlist
+
+    try:
+        return solve_netlist(text)
+    except UnsupportedNetlist:
+        return _LcapyCircuit(text)
+
+
+def _laplace_symbol():
+    from chain.formulas.nodal import laplace_symbol
+
+    return laplace_symbol()
 
 
 def _substitute(expr, values: dict[str, float]):
