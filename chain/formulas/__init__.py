@@ -10,8 +10,10 @@ functions that need them: importing this package loads neither.
 * :func:`stage_parts` — one stage's parts record from a Circuit and its DC
   solution (found by owner and role);
 * :func:`stage_netlist` — a single-triode stage's netlist text;
-* :func:`stage_formulas` — every quantity of the stage's kind solved by
-  lcapy: symbolic mid-band and s-domain forms in the stage's own symbols,
+* :func:`stage_formulas` — every quantity of the stage's kind solved from
+  that netlist text by the exact nodal solver of :mod:`chain.formulas.nodal`
+  (the same rational functions lcapy gives, much faster; lcapy for any
+  element it does not read): symbolic mid-band and s-domain forms in the stage's own symbols,
   the full numeric model with interelectrode capacitances, plain text and
   LaTeX;
 * :func:`flat_netlist`, :func:`flat_solve`, :func:`flat_transfer` — the

@@ -1,4 +1,4 @@
-"""Closed-form gain, input and output impedance of one stage, solved by lcapy.
+"""Closed-form gain, input and output impedance of one stage, solved from its netlist text.
 
 Three levels, chosen so that every stage solves in well under a second:
 
@@ -29,7 +29,10 @@ Definitions (with the triode's Thevenin model, see
 * output impedance — seen looking back into an output node with the inputs
   at AC ground and that output's load removed.
 
-lcapy and sympy are imported inside the functions that use them.
+Each netlist is solved exactly by :mod:`chain.formulas.nodal` (the same
+rational functions as lcapy, which stays the reference in the tests and
+solves any element that module does not read).  lcapy and sympy are
+imported inside the functions that use them.
 """
 
 from __future__ import annotations
@@ -202,7 +205,7 @@ def _solve(parts, model: "StageModel", quantities, what: str) -> dict[str, Any]:
             how, *args = q.read
             if how == "z":
                 y = sympy.cancel(-cct.I(args[0]))
-                out[q.name] = sympy.zoo if y == 0 else sympy.factor(sympy.cancel(1 / y))
+                out[q.name] = sympy.zoo if y == 0 else _factor(sympy.cancel(1 / y))
                 continue
             if how == "v":
                 expr = v(args[0])
@@ -215,10 +218,38 @@ def _solve(parts, model: "StageModel", quantities, what: str) -> dict[str, Any]:
                 expr = (v(args[0]) + v(args[1])) / 2
             else:  # pragma: no cover - the kind modules use the reads above
                 raise ValueError(f"unknown read {how!r}")
-            out[q.name] = sympy.factor(sympy.cancel(expr))
+            out[q.name] = _factor(sympy.cancel(expr))
         return out
     except Exception as exc:  # lcapy raises many kinds; report them all the same way
         raise _fail(parts, what, model.text, exc) from exc
+
+
+#: sympy.factor's results by argument; a result is also its own entry
+_FACTORED: dict[Any, Any] = {}
+_FACTORED_MAX = 4096
+
+
+def _factor(expr):
+    """``sympy.factor(expr)``, remembered.
+
+    The forms are factored once when solved and again when written out (the
+    whole expression, then its numerator and denominator, which quantities
+    of one stage often share).  A result is remembered as its own factored
+    form: sympy's ``factor`` returns a rational constant times powers of
+    irreducible primitive polynomials, which factoring again leaves as it is
+    (``factor`` is idempotent; the test suite checks it on the pair's forms).
+    """
+    import sympy
+
+    hit = _FACTORED.get(expr)
+    if hit is not None:
+        return hit
+    out = sympy.factor(expr)
+    if len(_FACTORED) >= _FACTORED_MAX:
+        _FACTORED.clear()
+    _FACTORED[expr] = out
+    _FACTORED.setdefault(out, out)
+    return out
 
 
 class _LcapyCircuit:
@@ -285,7 +316,7 @@ def _display_part(x, s, mu):
     ``mu·X + X`` written as ``(mu + 1)·X`` where that is shorter."""
     import sympy
 
-    best = sympy.factor(x)
+    best = _factor(x)
     if s in x.free_symbols:
         best = sympy.factor_terms(sympy.collect(sympy.expand(x), s))
     if mu is not None and mu in x.free_symbols:
@@ -305,7 +336,7 @@ def _strings(expr, s) -> tuple[str, str]:
     if expr in (sympy.zoo, sympy.oo):
         return "inf", r"\infty"
     mu = next((x for x in expr.free_symbols if x.name == "mu"), None)
-    num, den = sympy.fraction(sympy.factor(expr))
+    num, den = sympy.fraction(_factor(expr))
     sign = ""
     if num.could_extract_minus_sign():
         sign, num = "-", -num
