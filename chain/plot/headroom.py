@@ -280,7 +280,8 @@ def plot_harmonics(dist, *, stages: Sequence[str] | None = None, own: bool = Fal
     ax.set_ylim(floor_db, 0.0)
     what = "added by each stage alone (own THD)" if own else "at each stage output (cumulative THD)"
     heading = f"harmonics {what}, {format_si(dist.level_v, 'V')} peak sine at the input"
-    fig.suptitle(f"{title}: {heading}" if title else heading, x=0.01, ha="left", color=_TEXT, fontsize=11)
+    # the netlist's title on a line of its own: both on one line run off a figure this narrow
+    fig.suptitle(f"{title}\n{heading}" if title else heading, x=0.01, ha="left", color=_TEXT, fontsize=11)
     _style(ax)
     fig.legend(loc="outside lower center", ncol=min(len(series), 2), fontsize=8, frameon=False)
     return HarmonicsPlot(figure=fig, axes=ax, bars=bars, levels_db=levels, floor_db=float(floor_db))

@@ -82,6 +82,20 @@ def test_harmonic_bars_carry_the_levels(result):
     assert own.levels_db["V2"] == dist.stage("V2").own_relative_db
 
 
+def test_harmonics_heading_stays_inside_the_figure(result):
+    """A netlist title of typical length plus the heading must not run off the
+    right edge of the saved figure."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    from chain.plot.headroom import plot_harmonics
+
+    plot = plot_harmonics(result.distortion, title="Heron bass channel, second voicing")
+    canvas = FigureCanvasAgg(plot.figure)
+    canvas.draw()
+    box = plot.figure._suptitle.get_window_extent(canvas.get_renderer())
+    assert 0.0 <= box.x0 and box.x1 <= plot.figure.bbox.width
+
+
 @pytest.mark.parametrize("suffix, magic", [(".png", b"\x89PNG"), (".svg", b"<?xml")])
 def test_save_by_suffix(result, tmp_path, suffix, magic):
     from chain.plot.files import save_figure as save
