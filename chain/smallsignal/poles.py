@@ -193,14 +193,118 @@ def _finite(alpha: np.ndarray, beta: np.ndarray) -> np.ndarray:
     return np.abs(beta) > INFINITE_BETA * np.abs(alpha)
 
 
+#: fewest purely resistive unknowns (no capacitance in their row or column)
+#: worth eliminating before the dense eigen work; below it the pencil is
+#: taken whole, as it always was
+STATIC_MIN = 64
+
+
+@dataclass(frozen=True, slots=True)
+class _Static:
+    """The pencil with its purely resistive unknowns eliminated: ``keep`` and
+    ``drop`` partition the unknowns so that ``C₁₂ = C₂₁ = C₂₂ = 0``; then
+    ``det(G + sC) = det(G₂₂)·det(G₁₁ − G₁₂·G₂₂⁻¹·G₂₁ + s·C₁₁)`` (the
+    determinant of a block matrix through its Schur complement), so the
+    finite eigenvalues of ``(G, C)`` are those of ``(g, c)`` below when
+    ``G₂₂`` is non-singular: the eliminated block has no dynamics of its own
+    (from memory of Golub & Van Loan, §3.2, block elimination)."""
+
+    keep: np.ndarray
+    drop: np.ndarray
+    #: ``G₁₁ − G₁₂·G₂₂⁻¹·G₂₁`` and ``C₁₁``, dense, kept × kept
+    g: np.ndarray
+    c: np.ndarray
+    #: the sparse LU of ``G₂₂`` and the off-diagonal blocks
+    lu: object
+    g12: np.ndarray
+    g21: np.ndarray
+
+    def lift(self, w: np.ndarray, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Left and right eigenvectors of the whole pencil from the kept ones:
+        ``v₂ = −G₂₂⁻¹·G₂₁·v₁`` (rows of the eliminated unknowns) and
+        ``w₂ = −G₂₂⁻ᵀ·G₁₂ᵀ·w₁`` (their columns, ``G`` real)."""
+        n = self.keep.size + self.drop.size
+        v_full = np.empty((n, v.shape[1]), dtype=complex)
+        w_full = np.empty((n, w.shape[1]), dtype=complex)
+        v_full[self.keep] = v
+        w_full[self.keep] = w
+        v_full[self.drop] = -_solve_real(self.lu, self.g21 @ v, "N")
+        w_full[self.drop] = -_solve_real(self.lu, self.g12.T @ w, "T")
+        return w_full, v_full
+
+
+def _solve_real(lu, b: np.ndarray, trans: str) -> np.ndarray:
+    """``G₂₂⁻¹·b`` (or ``G₂₂⁻ᵀ·b``) of a complex ``b`` with the real factors."""
+    if b.shape[1] == 0:
+        return b.astype(complex)
+    return lu.solve(np.ascontiguousarray(b.real), trans=trans) + 1j * lu.solve(np.ascontiguousarray(b.imag), trans=trans)
+
+
+def _static_split(g: np.ndarray, c: np.ndarray, kept: tuple[int, ...] = ()) -> _Static | None:
+    """Eliminate the unknowns whose row and column of ``c`` are zero (all but
+    ``kept``) when there are at least :data:`STATIC_MIN` of them and ``G₂₂``
+    factors (SuperLU) with a reciprocal condition, estimated on the
+    equilibrated block, above :data:`REDUCTION_RCOND`; else None."""
+    dynamic = np.any(c != 0.0, axis=0) | np.any(c != 0.0, axis=1)
+    dynamic[list(kept)] = True
+    drop = np.flatnonzero(~dynamic)
+    if drop.size < STATIC_MIN:
+        return None
+    keep = np.flatnonzero(dynamic)
+    from scipy.sparse import csc_matrix, diags
+    from scipy.sparse.linalg import LinearOperator, onenormest, splu
+
+    from chain.smallsignal.mna import _equilibrate_entries
+
+    g22 = csc_matrix(g[np.ix_(drop, drop)])
+    coo = g22.tocoo()
+    r, col = _equilibrate_entries(coo.row, coo.col, np.abs(coo.data), drop.size)
+    scaled = csc_matrix(diags(r) @ g22 @ diags(col))
+    try:
+        lu_scaled = splu(scaled)
+    except RuntimeError:  # exactly singular
+        return None
+    inverse = LinearOperator(scaled.shape, matvec=lu_scaled.solve, rmatvec=lambda x: lu_scaled.solve(x, trans="T"),
+                             dtype=float)
+    norm = float(abs(scaled).sum(axis=0).max())
+    inv_norm = float(onenormest(inverse))
+    if not np.isfinite(inv_norm) or 1.0 / (norm * inv_norm) < REDUCTION_RCOND:
+        return None
+    lu = _ScaledLu(lu_scaled, r, col)
+    g12 = g[np.ix_(keep, drop)]
+    g21 = g[np.ix_(drop, keep)]
+    schur = g[np.ix_(keep, keep)] - g12 @ lu.solve(g21)
+    if not np.all(np.isfinite(schur)):
+        return None
+    return _Static(keep, drop, schur, c[np.ix_(keep, keep)], lu, g12, g21)
+
+
+@dataclass(frozen=True, slots=True)
+class _ScaledLu:
+    """Solves with ``G₂₂ = R⁻¹·A·K⁻¹`` from the LU of the equilibrated ``A``:
+    ``G₂₂⁻¹·b = K·A⁻¹·R·b`` and ``G₂₂⁻ᵀ·b = R·A⁻ᵀ·K·b``."""
+
+    lu: object
+    r: np.ndarray
+    col: np.ndarray
+
+    def solve(self, b: np.ndarray, trans: str = "N") -> np.ndarray:
+        if trans == "T":
+            return self.r[:, None] * self.lu.solve(self.col[:, None] * b, trans="T")  # type: ignore[attr-defined]
+        return self.col[:, None] * self.lu.solve(self.r[:, None] * b)  # type: ignore[attr-defined]
+
+
 def pencil_eigen(mna: Mna, *, vectors: bool = False):
     """Finite natural frequencies ``s`` (rad/s, complex) of ``G + s·C``.
 
     With ``vectors=True`` also the left and right eigenvectors in the
     unscaled coordinates, columns matching ``s``:
-    ``wᴴ·(G + sC) = 0``, ``(G + sC)·v = 0``.
+    ``wᴴ·(G + sC) = 0``, ``(G + sC)·v = 0``.  Purely resistive unknowns are
+    eliminated first when there are many (:func:`_static_split`).
     """
-    gs, cs, r, col = _scaled_pencil(mna.g, mna.c)
+    static = _static_split(mna.g, mna.c)
+    g, c = (mna.g, mna.c) if static is None else (static.g, static.c)
+    gs, cs, r, col = _scaled_pencil(g, c)
     got = _reduced_eigen(gs, cs, vectors=vectors)
     if got is None:
         got = _qz_eigen(gs, cs, vectors=vectors)
@@ -213,6 +317,8 @@ def pencil_eigen(mna: Mna, *, vectors: bool = False):
     # scaled pencil: R·(G + sC)·Col; right vector v = Col·ṽ, left w = R·w̃
     v = col[:, None] * vr[:, order]
     w = r[:, None] * wl[:, order]
+    if static is not None:
+        w, v = static.lift(w, v)
     return s, w, v
 
 
@@ -429,13 +535,20 @@ def zeros(mna: Mna, node: int) -> np.ndarray:
     By Cramer's rule (on the transposed system) the transfer's numerator is
     the determinant of the pencil with the source's own equation (the row
     of its branch: the EMF across its nodes) replaced by ``x_node = 0``;
-    that row holds no capacitance, so ``C`` stays as it is.
+    that row holds no capacitance, so ``C`` stays as it is.  Purely resistive
+    unknowns other than the source branch and ``node`` are eliminated first
+    when there are many (:func:`_static_split`).
     """
     g = mna.g.copy()
     br = mna.source.branch
     g[br, :] = 0.0
     g[br, node] = 1.0
-    gs, cs, _, _ = _scaled_pencil(g, mna.c)
+    c = mna.c
+    # the source's branch and the output stay: the numerator's border
+    static = _static_split(g, c, kept=(br, node))
+    if static is not None:
+        g, c = static.g, static.c
+    gs, cs, _, _ = _scaled_pencil(g, c)
     z = _finite_eigenvalues(gs, cs)
     if z is None:
         z = _qz_eigen(gs, cs, vectors=False)[0]

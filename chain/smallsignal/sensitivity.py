@@ -158,7 +158,6 @@ def bias_sensitivity(circuit, dc) -> dict[str, dict[str, float]]:
 
     system = compile_network(circuit, gmin_s=dc.options.gmin_s if dc.options is not None else 1e-12)
     x = system.vector_from_voltages(dc.node_v)
-    jac = system.jacobian(x)
     index = {name: i for i, name in enumerate(system.nodes)}
     n = len(system.nodes)
 
@@ -186,7 +185,8 @@ def bias_sensitivity(circuit, dc) -> dict[str, dict[str, float]]:
             cols.append(col)
     if not cols:
         return {}
-    dx = -np.linalg.solve(jac, np.array(cols).T)  # (size, parts)
+    # one LU of the DC Jacobian: dense LAPACK, or sparse on a long network
+    dx = -system.solve_jacobian(x, np.array(cols).T)  # (size, parts)
     ip, _, gm, gp, _, _, _ = system.triode_currents(x)
     out: dict[str, dict[str, float]] = {}
     for t_i, t_name in enumerate(system.triode_names):
