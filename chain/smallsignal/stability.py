@@ -381,7 +381,9 @@ def stability(ss: SmallSignalCircuit, *, ref_hz: float = 1e3, band_hz: tuple[flo
 
     Diagnostics: E801 per unstable pole (pair); W801 for a stable feedback
     network loop with a phase margin under :data:`PHASE_MARGIN_DEG` or a
-    gain margin under :data:`GAIN_MARGIN_DB`.
+    gain margin under :data:`GAIN_MARGIN_DB`; W802 when located right-half-plane
+    poles are counted there by none; W803 when computed output zeros failed
+    their check and were left out.
     """
     mna = assemble(ss) if mna is None else mna
     eigen = pencil_eigen(mna, vectors=True)  # one eigen-solve for the poles and the pole–zero form
@@ -399,6 +401,8 @@ def stability(ss: SmallSignalCircuit, *, ref_hz: float = 1e3, band_hz: tuple[flo
             "the circuit is stable, and the listed pole positions are uncertain (near-equal poles of "
             "similar stages in a long chain, which rounding scatters by many percent)"))
         unstable = ()
+    if out.zeros_left_out:
+        diags.append(_zeros_left_out(out))
     guilty = culprits(ss, mna, unstable) if unstable else ()
     loops = []
     f_loop = loop_frequencies(*band_hz)
@@ -435,6 +439,19 @@ def stability(ss: SmallSignalCircuit, *, ref_hz: float = 1e3, band_hz: tuple[flo
                     "expect ringing and a peak in the response near the crossover",
                     subject=lg.path.parts[0] if lg.path.parts else ""))
     return Stability(ps, out, unstable, guilty, tuple(loops), tuple(diags))
+
+
+def _zeros_left_out(out: PoleZero) -> Diagnostic:
+    """W803: computed zeros of the output transfer at which the solved output
+    does not vanish (:func:`chain.smallsignal.poles.verified_zeros`)."""
+    n = out.zeros_left_out
+    total = n + len(out.zeros_hz)
+    return warning(
+        "W803",
+        f"{n} of the {total} computed zeros of the transfer to {out.node} did not check out (solving the "
+        "circuit at each, the output does not vanish there) and are left out of the zeros listed: the "
+        "eigen-solve cannot resolve a zero at infinity of high order (a long ladder-like path whose "
+        "response falls steeply at high frequencies) and scatters it into spurious finite zeros")
 
 
 def _s_text(s_hz: complex) -> str:
