@@ -637,6 +637,7 @@ def _cmd_transfer(args) -> int:
     from chain.report.transfer import transfer_document, transfer_json, transfer_text
     from chain.smallsignal import linearize
     from chain.smallsignal.poles import pole_zero
+    from chain.smallsignal.stability import zeros_left_out_warning
 
     design, circuit, _ = load(args.file)
     node = args.node or circuit.output_node
@@ -651,8 +652,10 @@ def _cmd_transfer(args) -> int:
     doc = transfer_document(design.title, pz, symbolic_transfer(ss, parts, node=node))
     print(transfer_json(doc) if args.format == "json" else transfer_text(doc, latex=args.latex), end="")
     unstable = _bias_stability(design, circuit, dc)
-    _print_diagnostics(unstable)
+    notes = [zeros_left_out_warning(pz)] if pz.zeros_left_out else []
+    _print_diagnostics([*notes, *unstable])
     return EXIT_UNSTABLE if unstable else 0
+
 
 def _quantities(text: str, unit: str, option: str) -> list[float]:
     from chain.units import QuantityError, parse_quantity

@@ -80,6 +80,32 @@ def test_transfer_of_an_unstable_chain_exits_4(capsys):
     assert main(["transfer", MOTORBOAT]) == EXIT_UNSTABLE
 
 
+def test_transfer_says_when_computed_zeros_were_left_out(tmp_path, capsys):
+    """A stage into a 70-section RC ladder (1k, 1n; invented values): read at
+    the far end, the ladder's transfer has no finite zero (its transfer is
+    1/polynomial in s, the network-theory form of an RC ladder), so the
+    computed zeros there are the eigen-solve's scatter of the zero at infinity;
+    `chain transfer` lists the zeros that check out and says how many did not
+    (W803), as `chain report` does."""
+    lines = ['title "ladder"', "supply HT 300V", "input into V1 resistance 10k",
+             "rail B1 from HT drop 10k decouple 22u", "stage V1 common-cathode 12AX7", "  plate 100k from B1",
+             "  cathode 1k5 bypass 22u", "  grid leak 1M", "network lad: in -> out"]
+    for i in range(70):
+        a, b = ("in" if i == 0 else f"n{i}"), ("out" if i == 69 else f"n{i + 1}")
+        lines += [f"  resistor r{i} {a} -- {b} 1k", f"  capacitor c{i} {b} -- gnd 1n"]
+    lines += ["couple V1 -> output via lad", "output load 1M", ""]
+    path = tmp_path / "ladder.chain"
+    path.write_text("\n".join(lines))
+    assert main(["transfer", str(path)]) == 0
+    captured = capsys.readouterr()
+    assert "warning W803" in captured.err and "did not check out" in captured.err
+    zeros_line = next(line for line in captured.out.splitlines() if line.startswith("zeros ("))
+    # the bypassed cathode's, the rail decoupling's and the Miller feed-forward zero survive; 68 do not
+    assert int(zeros_line.split("(")[1].split(")")[0]) < 10
+    assert main(["transfer", STABLE]) == 0
+    assert "W803" not in capsys.readouterr().err
+
+
 def test_plot_loop_writes_one_figure_per_feedback_network(tmp_path, capsys):
     path = tmp_path / "fp.png"
     assert main(["plot", str(ROOT / "netlists" / "feedback_pair.chain"), "-o", str(path), "--loop"]) == 0

@@ -73,6 +73,7 @@ __all__ = [
     "feedback_networks",
     "PHASE_MARGIN_DEG",
     "GAIN_MARGIN_DB",
+    "zeros_left_out_warning",
 ]
 
 #: phase margin below which a loop is reported as marginal, degrees (common practice)
@@ -402,7 +403,7 @@ def stability(ss: SmallSignalCircuit, *, ref_hz: float = 1e3, band_hz: tuple[flo
             "similar stages in a long chain, which rounding scatters by many percent)"))
         unstable = ()
     if out.zeros_left_out:
-        diags.append(_zeros_left_out(out))
+        diags.append(zeros_left_out_warning(out))
     guilty = culprits(ss, mna, unstable) if unstable else ()
     loops = []
     f_loop = loop_frequencies(*band_hz)
@@ -441,7 +442,7 @@ def stability(ss: SmallSignalCircuit, *, ref_hz: float = 1e3, band_hz: tuple[flo
     return Stability(ps, out, unstable, guilty, tuple(loops), tuple(diags))
 
 
-def _zeros_left_out(out: PoleZero) -> Diagnostic:
+def zeros_left_out_warning(out: PoleZero) -> Diagnostic:
     """W803: computed zeros of the output transfer at which the solved output
     does not vanish (:func:`chain.smallsignal.poles.verified_zeros`)."""
     n = out.zeros_left_out
