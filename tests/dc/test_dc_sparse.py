@@ -10,31 +10,18 @@ from chain.build import build
 from chain.dc import SolveOptions, compile_network
 from chain.dc.engine import SPARSE_MIN_SIZE
 from chain.language import parse_text
-
-
-def _padded(n: int) -> str:
-    """``n`` common-cathode stages, each on its own decoupled rail, a volume pot between them."""
-    lines = ['title "padded"', "supply HT 330V", "input into V1 resistance 10k"]
-    lines += [f"rail B{i} from HT drop 10k decouple 22u" for i in range(1, n + 1)]
-    for i in range(1, n + 1):
-        lines += [f"stage V{i} common-cathode 12AX7", f"  plate 100k from B{i}",
-                  "  cathode 1k5 bypass 22u" if i % 2 else "  cathode 2k7", "  grid leak 1M stopper 33k"]
-    lines += ["network volume: in -> out", "  capacitor block in -- top 22n",
-              "  pot level cw top wiper out ccw gnd 1M audio 10% at 3"]
-    lines += [f"couple V{i} -> V{i + 1} via volume as volume{i}" for i in range(1, n)]
-    lines += [f"couple V{n} -> output cap 22n", "output load 1M", ""]
-    return "\n".join(lines)
+from tests.cascades import padded
 
 
 @pytest.fixture(scope="module")
 def pair():
-    circuit = build(parse_text(_padded(12), "padded12.chain"))
+    circuit = build(parse_text(padded(12), "padded12.chain"))
     return compile_network(circuit, sparse=False), compile_network(circuit, sparse=True)
 
 
 def test_the_form_follows_the_size():
-    small = compile_network(build(parse_text(_padded(2), "padded2.chain")))
-    large = compile_network(build(parse_text(_padded(24), "padded24.chain")))
+    small = compile_network(build(parse_text(padded(2), "padded2.chain")))
+    large = compile_network(build(parse_text(padded(24), "padded24.chain")))
     assert small.size < SPARSE_MIN_SIZE <= large.size
     assert not small.sparse and large.sparse
 

@@ -8,6 +8,7 @@ from chain.build import build
 from chain.dc import solve
 from chain.headroom import headroom
 from chain.language import parse_text
+from tests.cascades import padded
 
 
 def _cascade(n: int) -> str:
@@ -52,23 +53,8 @@ def test_a_chain_beyond_double_precision_says_so():
     assert info.value.diagnostics[0].code == "E404"
 
 
-def _padded(n: int) -> str:
-    """The cascade with a volume pot between the stages (net gain per stage of
-    order one, so a long one stays within double precision)."""
-    lines = ['title "padded"', "supply HT 330V", "input into V1 resistance 10k"]
-    lines += [f"rail B{i} from HT drop 10k decouple 22u" for i in range(1, n + 1)]
-    for i in range(1, n + 1):
-        lines += [f"stage V{i} common-cathode 12AX7", f"  plate 100k from B{i}",
-                  "  cathode 1k5 bypass 22u" if i % 2 else "  cathode 2k7", "  grid leak 1M stopper 33k"]
-    lines += ["network volume: in -> out", "  capacitor block in -- top 22n",
-              "  pot level cw top wiper out ccw gnd 1M audio 10% at 3"]
-    lines += [f"couple V{i} -> V{i + 1} via volume as volume{i}" for i in range(1, n)]
-    lines += [f"couple V{n} -> output cap 22n", "output load 1M", ""]
-    return "\n".join(lines)
-
-
 def _padded_headroom(n: int):
-    circuit = build(parse_text(_padded(n), f"padded{n}.chain"))
+    circuit = build(parse_text(padded(n), f"padded{n}.chain"))
     return headroom(circuit, solve(circuit), level_v=0.1, spectrum=False)
 
 
