@@ -94,14 +94,22 @@ TONE = """network tone: in -> out
 """
 
 
+def stage_lines(n: int) -> list[str]:
+    """The rails and stages of every cascade here: ``n`` common-cathode 12AX7
+    stages, bypassed and unbypassed cathodes alternating, each plate on its
+    own decoupled rail from the supply."""
+    lines = [f"rail B{i} from HT drop 10k decouple 22u" for i in range(1, n + 1)]
+    for i in range(1, n + 1):
+        lines += [f"stage V{i} common-cathode 12AX7", f"  plate 100k from B{i}",
+                  "  cathode 1k5 bypass 22u" if i % 2 else "  cathode 2k7", "  grid leak 1M stopper 33k"]
+    return lines
+
+
 def cascade(n: int, points: int) -> str:
     """The netlist of an ``n``-stage stable cascade."""
     lines = [f'title "growth {n} stages"', f"set points {points}", "supply HT 330V",
              "input into V1 resistance 10k"]
-    lines += [f"rail B{i} from HT drop 10k decouple 22u" for i in range(1, n + 1)]
-    for i in range(1, n + 1):
-        lines += [f"stage V{i} common-cathode 12AX7", f"  plate 100k from B{i}",
-                  "  cathode 1k5 bypass 22u" if i % 2 else "  cathode 2k7", "  grid leak 1M stopper 33k"]
+    lines += stage_lines(n)
     lines.append(TONE)
     lines += [f"couple V{i} -> V{i + 1} cap 22n" for i in range(1, n)]
     lines += [f"couple V{n} -> output via tone", "output load 1M", ""]
@@ -113,10 +121,7 @@ def padded_cascade(n: int, points: int) -> str:
     between the stages (for the headroom columns)."""
     lines = [f'title "padded growth {n} stages"', f"set points {points}", "supply HT 330V",
              "input into V1 resistance 10k"]
-    lines += [f"rail B{i} from HT drop 10k decouple 22u" for i in range(1, n + 1)]
-    for i in range(1, n + 1):
-        lines += [f"stage V{i} common-cathode 12AX7", f"  plate 100k from B{i}",
-                  "  cathode 1k5 bypass 22u" if i % 2 else "  cathode 2k7", "  grid leak 1M stopper 33k"]
+    lines += stage_lines(n)
     lines += [TONE, VOLUME]
     lines += [f"couple V{i} -> V{i + 1} via volume as volume{i}" for i in range(1, n)]
     lines += [f"couple V{n} -> output via tone", "output load 1M", ""]

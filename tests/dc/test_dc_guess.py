@@ -18,7 +18,7 @@ from chain.dc.engine import _GUESS_SWEEPS, _load_point, _load_points, compile_ne
 from chain.language import parse_text
 from chain.tubes import plate_current_and_derivatives
 
-from tests.smallsignal.test_sparse import cascade
+from tests.cascades import cascade
 
 LEAD = Path(__file__).parents[2] / "netlists" / "lead_four_stage.chain"
 

@@ -11,7 +11,7 @@ from chain.circuit import Owner, Role
 from chain.dc.diagnose import _grid_leaks
 from chain.language import parse_text
 
-from tests.smallsignal.test_sparse import cascade
+from tests.cascades import cascade
 
 ROOT = Path(__file__).resolve().parents[2]
 

@@ -13,7 +13,7 @@ from chain.circuit import Resistor
 from chain.dc import solve
 from chain.language import parse_text
 
-from tests.smallsignal.test_sparse import cascade
+from tests.cascades import cascade
 
 DEMOS = sorted((Path(__file__).parents[2] / "netlists").glob("*.chain"))
 

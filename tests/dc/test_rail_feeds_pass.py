@@ -16,7 +16,7 @@ from chain.dc.diagnose import _cold_plate_voltages
 from chain.dc.engine import compile_network
 from chain.language import parse_text
 
-from tests.smallsignal.test_sparse import cascade
+from tests.cascades import cascade
 
 ROOT = Path(__file__).resolve().parents[2]
 CIRCUITS = [*sorted((ROOT / "netlists").glob("*.chain")), "cascade"]

@@ -98,6 +98,22 @@ def common_cathode(net: Net, name: str, *, rail: str, rl: float, rk: float, ck: 
     return top, plate
 
 
+def rc_ladder(sections: int, r: float, c: float):
+    """Series R, shunt C, ``sections`` times from the source ("src") to the
+    open far end ("out"), linearised (no triodes)."""
+    from chain.smallsignal import linearize
+
+    net = Net()
+    net.signal("src")
+    prev = "src"
+    for i in range(1, sections + 1):
+        node = "out" if i == sections else f"n{i}"
+        net.r(f"R{i}", prev, node, r)
+        net.c(f"C{i}", node, GROUND, c)
+        prev = node
+    return linearize(net.circuit("src", "out"), dc_of())
+
+
 def parallel(*rs: float) -> float:
     return 1.0 / sum(1.0 / r for r in rs)
 

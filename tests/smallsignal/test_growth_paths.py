@@ -6,20 +6,8 @@ import numpy as np
 import pytest
 from scipy.sparse import csr_matrix
 
-from chain.build import build
 from chain.dc import solve
-from chain.language import parse_text
-from chain.smallsignal import linearize
 from chain.smallsignal import mna as M
-
-from tests.smallsignal.test_sparse import cascade
-
-
-@pytest.fixture(scope="module")
-def big():
-    circuit = build(parse_text(cascade(12), "c12.chain"))
-    ss = linearize(circuit, solve(circuit))
-    return circuit, ss, M.assemble(ss)
 
 
 def test_stacked_sparse_g_and_c_equal_scipys_conversion_of_the_dense_stack(big):

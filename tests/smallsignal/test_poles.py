@@ -15,7 +15,7 @@ from chain.circuit import GROUND
 from chain.smallsignal import linearize, response
 from chain.smallsignal.mna import Mna, Stamp, _matrices, assemble
 from chain.smallsignal.poles import pencil_eigen, pole_zero, poles
-from ss_circuits import Net, dc_of
+from ss_circuits import Net, dc_of, rc_ladder
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMOS = sorted((ROOT / "netlists").glob("*.chain"))
@@ -157,17 +157,6 @@ def test_pole_sensitivities_match_finite_differences():
     assert checked >= 12
 
 
-def _rc_ladder(sections: int, r: float, c: float):
-    def build(net):
-        prev = "src"
-        for i in range(1, sections + 1):
-            node = "out" if i == sections else f"n{i}"
-            net.r(f"R{i}", prev, node, r)
-            net.c(f"C{i}", node, GROUND, c)
-            prev = node
-    return _passive(build)
-
-
 @pytest.mark.parametrize("sections", [1, 3, 8])
 def test_rc_ladder_poles_closed_form(sections):
     """A uniform RC ladder (series R, shunt C, open at the far end) driven by a
@@ -177,7 +166,7 @@ def test_rc_ladder_poles_closed_form(sections):
     of G. Strang, "Introduction to Applied Mathematics", §1.5), so the poles
     are s = −(2 − 2cos((2k−1)π/(2n+1)))/(RC)."""
     r, c = 10e3, 47e-9
-    got = np.sort(np.array([p.s_hz for p in poles(_rc_ladder(sections, r, c), parts=0)]).real)
+    got = np.sort(np.array([p.s_hz for p in poles(rc_ladder(sections, r, c), parts=0)]).real)
     k = np.arange(1, sections + 1)
     expected = np.sort(-(2 - 2 * np.cos((2 * k - 1) * np.pi / (2 * sections + 1))) / (r * c) / (2 * np.pi))
     assert_allclose(got, expected, rtol=1e-10)

@@ -16,7 +16,7 @@ from chain.language import parse_text
 from chain.smallsignal import linearize
 from chain.smallsignal import mna as M
 
-from tests.smallsignal.test_sparse import cascade
+from tests.cascades import cascade
 
 
 def linearised(stages: int):

@@ -12,7 +12,7 @@ from chain.errors import AnalysisError
 from chain.language import parse_text
 from chain.smallsignal import mna as M
 
-from tests.smallsignal.test_sparse import cascade
+from tests.cascades import cascade
 
 
 def test_sixteen_stages_at_100000_points_are_refused_with_the_estimate(monkeypatch):

@@ -2,44 +2,9 @@
 the same matrices (the reference library): the same numbers to rounding."""
 
 import numpy as np
-import pytest
 
-from chain.build import build
-from chain.dc import solve
-from chain.language import parse_text
-from chain.smallsignal import linearize, response
 from chain.smallsignal import mna as M
-
-TONE = """network tone: in -> out
-  capacitor treble_c in -- t 390p
-  resistor feed in -- a 47k
-  capacitor bass_c a -- b 47n
-  capacitor mid_c a -- m 22n
-  pot treble cw t wiper out ccw b 250k audio 10% at 6
-  rheostat bass m -- b 500k audio 10% at 5
-  rheostat mid m -- gnd 20k linear at 4
-"""
-
-
-def cascade(n: int) -> str:
-    """n common-cathode 12AX7 stages, each on its own decoupled rail from a stiff supply (no
-    feedback through the supply: a stable cascade), then a tone network."""
-    lines = ['title "cascade"', "supply HT 330V", "input into V1 resistance 10k"]
-    lines += [f"rail R{i} from HT drop 10k decouple 22u" for i in range(1, n + 1)]
-    for i in range(1, n + 1):
-        lines += [f"stage V{i} common-cathode 12AX7", f"  plate 100k from R{i}",
-                  "  cathode 1k5 bypass 22u" if i % 2 else "  cathode 2k7", "  grid leak 1M stopper 33k"]
-    lines.append(TONE)
-    lines += [f"couple V{i} -> V{i + 1} cap 22n" for i in range(1, n)]
-    lines += [f"couple V{n} -> output via tone", "output load 1M", ""]
-    return "\n".join(lines)
-
-
-@pytest.fixture(scope="module")
-def big():
-    circuit = build(parse_text(cascade(12), "c12.chain"))
-    ss = linearize(circuit, solve(circuit))
-    return circuit, ss, M.assemble(ss)
+from chain.smallsignal import response
 
 
 def test_the_cascade_is_big_enough_for_the_sparse_path(big):

@@ -14,22 +14,9 @@ from chain.smallsignal import linearize
 from chain.smallsignal.mna import assemble, direct_solver
 from chain.smallsignal.poles import pole_zero, zeros
 from chain.smallsignal.stability import stability
-from ss_circuits import MU, RP, Net, common_cathode, dc_of, model, op
+from ss_circuits import MU, RP, Net, common_cathode, dc_of, model, op, rc_ladder
 
 LADDER_SECTIONS = 70
-
-
-def _rc_ladder(sections: int, r: float, c: float):
-    """Series R, shunt C, open at the far end ("out"), driven by the source."""
-    net = Net()
-    net.signal("src")
-    prev = "src"
-    for i in range(1, sections + 1):
-        node = "out" if i == sections else f"n{i}"
-        net.r(f"R{i}", prev, node, r)
-        net.c(f"C{i}", node, GROUND, c)
-        prev = node
-    return linearize(net.circuit("src", "out"), dc_of())
 
 
 def _codes(st) -> list[str]:
@@ -43,7 +30,7 @@ def test_long_rc_ladder_read_at_its_far_end_has_no_zeros():
     eigen-solve scatters the zero at infinity of order 70 into spurious
     finite zeros; none of them checks out, and W803 says how many were left out."""
     r, c = 10e3, 47e-9
-    ss = _rc_ladder(LADDER_SECTIONS, r, c)
+    ss = rc_ladder(LADDER_SECTIONS, r, c)
     mna = assemble(ss)
     k = mna.index["out"]
     raw = zeros(mna, k)
@@ -106,7 +93,7 @@ def test_ladder_read_near_its_source_keeps_its_zeros():
     G. Strang, "Introduction to Applied Mathematics", §1.5): all 69 are true
     zeros and all are kept."""
     r, c, n = 10e3, 47e-9, LADDER_SECTIONS
-    ss = _rc_ladder(n, r, c)
+    ss = rc_ladder(n, r, c)
     pz = pole_zero(ss, "n1")
     m = n - 1
     k = np.arange(1, m + 1)
